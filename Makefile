@@ -1,0 +1,33 @@
+# Two commands do all the setup on a fresh clone: `make demo` and `make test`.
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.installed-test
+
+.PHONY: demo test bench lint format clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+$(STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/python demo/run_demo.py
+
+test: $(STAMP)
+	$(BIN)/ruff check .
+	$(BIN)/ruff format --check .
+	$(BIN)/python -m pytest -q
+
+bench: $(STAMP)
+	$(BIN)/python tests/benchmarks/run_bench.py
+
+format: $(STAMP)
+	$(BIN)/ruff check --fix .
+	$(BIN)/ruff format .
+
+clean:
+	rm -rf $(VENV) build *.egg-info demo/out

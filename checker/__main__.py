@@ -1,0 +1,3 @@
+from checker.cli import main_entry
+
+main_entry()

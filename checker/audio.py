@@ -1,0 +1,187 @@
+"""Open an audio file with libsndfile (soundfile) and yield blocks.
+
+The read loop is our own: ``read(out=buffer)`` into a reused buffer until a
+short read, so the header's frame count is never trusted (a truncated WAV
+opens without error, a FLAC without a length reports 2**63 - 1 frames, MP3
+frame counts can be far off). ``frames_declared`` keeps what the header said;
+``frames`` (set by the caller after the loop) is what was actually decoded.
+
+Integer PCM is read as int32 so the sample-domain meters see the exact
+integer codes; the float view handed to every meter is ``int32 / 2**31``.
+Float and lossy files are read as float64.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Iterator
+from dataclasses import dataclass
+
+import numpy as np
+import soundfile as sf
+
+from checker.errors import AudioReadError, UnsupportedAudioError
+
+MIN_SAMPLE_RATE_HZ = 8_000
+MAX_SAMPLE_RATE_HZ = 768_000
+MAX_CHANNELS = 64
+DEFAULT_BLOCK_FRAMES = 48_000
+
+#: libsndfile subtypes whose samples are integer codes.
+INTEGER_SUBTYPES = {
+    "PCM_S8": 8,
+    "PCM_U8": 8,
+    "PCM_16": 16,
+    "PCM_24": 24,
+    "PCM_32": 32,
+}
+FLOAT_SUBTYPES = {"FLOAT": 32, "DOUBLE": 64}
+
+#: Frame counts at or above this are "unknown" (libsndfile's FLAC without a length).
+UNKNOWN_FRAMES = 2**62
+
+INT32_SCALE = 1.0 / 2**31
+
+
+@dataclass(frozen=True)
+class StreamInfo:
+    path: str
+    container: str  # libsndfile format name, e.g. "WAV", "WAVEX", "FLAC", "MP3"
+    subtype: str  # e.g. "PCM_24", "FLOAT", "VORBIS"
+    sample_rate_hz: int
+    channels: int
+    frames_declared: int | None  # None when the header gives no usable length
+    extra_info: str = ""
+
+    @property
+    def is_integer_pcm(self) -> bool:
+        return self.subtype in INTEGER_SUBTYPES
+
+    @property
+    def is_float(self) -> bool:
+        return self.subtype in FLOAT_SUBTYPES
+
+    @property
+    def format_bits(self) -> int | None:
+        """Nominal bits per sample of the stored format (None for lossy codecs)."""
+        return INTEGER_SUBTYPES.get(self.subtype) or FLOAT_SUBTYPES.get(self.subtype)
+
+
+@dataclass
+class Block:
+    """One block of audio as every meter sees it.
+
+    ``x``: float64 array (frames, channels), full scale = 1.0.
+    ``raw``: the int32 codes for integer PCM (left-justified: a PCM_16 sample
+    is ``code << 16``), else None.
+    ``start``: index of the block's first frame in the file.
+    """
+
+    x: np.ndarray
+    raw: np.ndarray | None
+    start: int
+
+    @property
+    def frames(self) -> int:
+        return self.x.shape[0]
+
+
+def open_info(path: str) -> StreamInfo:
+    """Read the header only. Raises AudioReadError with a one-line message."""
+    try:
+        info = sf.info(path)
+    except Exception as exc:  # soundfile raises several types (LibsndfileError, RuntimeError)
+        raise AudioReadError(f"{path}: cannot open as audio ({_clean(exc)})") from None
+    return _check_info(path, info)
+
+
+def _clean(exc: BaseException) -> str:
+    text = str(exc).strip().replace("\n", " ")
+    # soundfile prefixes messages with the path; keep just the reason.
+    if "Error opening" in text and ":" in text:
+        text = text.rsplit(":", 1)[-1].strip()
+    return text or type(exc).__name__
+
+
+def _check_info(path: str, info) -> StreamInfo:
+    rate = int(info.samplerate)
+    channels = int(info.channels)
+    if channels < 1 or channels > MAX_CHANNELS:
+        raise UnsupportedAudioError(f"{path}: channels = {channels} (expected 1 to {MAX_CHANNELS})")
+    if rate < MIN_SAMPLE_RATE_HZ or rate > MAX_SAMPLE_RATE_HZ:
+        raise UnsupportedAudioError(
+            f"{path}: sample_rate_hz = {rate} "
+            f"(expected {MIN_SAMPLE_RATE_HZ} to {MAX_SAMPLE_RATE_HZ} Hz)"
+        )
+    frames = int(info.frames)
+    declared = None if frames < 0 or frames >= UNKNOWN_FRAMES else frames
+    return StreamInfo(
+        path=path,
+        container=str(info.format),
+        subtype=str(info.subtype),
+        sample_rate_hz=rate,
+        channels=channels,
+        frames_declared=declared,
+        extra_info=str(getattr(info, "extra_info", "") or ""),
+    )
+
+
+def read_blocks(
+    path: str, block_frames: int = DEFAULT_BLOCK_FRAMES
+) -> tuple[StreamInfo, Iterator[Block]]:
+    """Open ``path`` and return its StreamInfo and an iterator of Blocks.
+
+    The iterator raises AudioReadError if decoding fails part-way; blocks
+    already yielded stay valid.
+    """
+    if block_frames < 1:
+        raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
+    if os.path.isdir(path):
+        raise AudioReadError(f"{path}: is a directory (expected an audio file)")
+    try:
+        handle = sf.SoundFile(path)
+    except Exception as exc:
+        raise AudioReadError(f"{path}: cannot open as audio ({_clean(exc)})") from None
+    try:
+        info = _check_info(path, handle)
+    except Exception:
+        handle.close()
+        raise
+    return info, _iterate(handle, info, block_frames)
+
+
+def _iterate(handle: sf.SoundFile, info: StreamInfo, block_frames: int) -> Iterator[Block]:
+    integer = info.is_integer_pcm
+    dtype = "int32" if integer else "float64"
+    buf = np.empty((block_frames, info.channels), dtype=dtype)
+    start = 0
+    try:
+        with handle:
+            while True:
+                try:
+                    n = handle.read(out=buf, dtype=dtype, always_2d=True)
+                    n = len(n)
+                except Exception as exc:
+                    raise AudioReadError(
+                        f"{info.path}: decoding failed at {start / info.sample_rate_hz:.2f} s "
+                        f"({_clean(exc)})"
+                    ) from None
+                if n == 0:
+                    break
+                if integer:
+                    raw = buf[:n]
+                    x = raw * INT32_SCALE
+                    yield Block(x=x, raw=raw, start=start)
+                else:
+                    x = buf[:n]
+                    yield Block(x=x, raw=None, start=start)
+                start += n
+                if n < block_frames:
+                    break
+    finally:
+        handle.close()
+
+
+def duration_s(frames: int, sample_rate_hz: int) -> float:
+    return frames / sample_rate_hz if sample_rate_hz > 0 else math.nan

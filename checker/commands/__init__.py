@@ -1,0 +1,1 @@
+"""Subcommands of the deliverycheck CLI, one module each (see checker.cli)."""

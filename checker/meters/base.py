@@ -1,0 +1,56 @@
+"""The meter protocol shared by every streaming meter.
+
+A meter is built once per file with the stream's facts and the options, is fed
+every block in order, and gives one result at the end:
+
+    meter = SomeMeter(info, layout, options)
+    for block in blocks:
+        meter.feed(block)        # Block: x (frames, channels) float64, raw int32|None, start
+    result = meter.result()      # has .to_dict() -> flat {unit_suffixed_name: value}
+
+Rules every meter follows (tested for each one):
+- feed() accepts any frame count, including 0, and results do not depend on how
+  the signal was split into blocks (exact for peaks and counts, ~1e-9 for sums).
+- Blocks are views of a reused read buffer: copy anything kept past feed().
+- Memory grows at most by one small record per 100 ms of audio.
+- No Python loop over samples; vectorise within the block.
+- result() does not change state and never returns NaN: undefined values are
+  None (with a reason in a *_note field where useful); silence levels are -inf.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Protocol
+
+from checker.audio import Block, StreamInfo
+from checker.layout import Layout
+
+
+@dataclass(frozen=True)
+class MeasureOptions:
+    block_frames: int = 48_000
+    #: Explicit channel layout ("L R C LFE Ls Rs"); None = from file or assumed.
+    layout: str | None = None
+    #: True-peak overs are counted above this ceiling.
+    true_peak_ceiling_dbtp: float = -1.0
+    #: Clipped run: at least this many consecutive samples at full scale (common practice: 3).
+    clip_run_min_samples: int = 3
+    #: Leading/trailing silence threshold (common practice: -60 dBFS).
+    silence_threshold_dbfs: float = -60.0
+    #: Mid-file digital-zero dropouts shorter than this are ignored (common practice: 10 ms).
+    dropout_min_s: float = 0.010
+    #: How many first positions to keep for overs, clips, dropouts.
+    max_positions: int = 10
+
+
+class MeterResult(Protocol):
+    def to_dict(self) -> dict[str, Any]: ...
+
+
+class Meter(Protocol):
+    def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None: ...
+
+    def feed(self, block: Block) -> None: ...
+
+    def result(self) -> MeterResult: ...

@@ -1,0 +1,59 @@
+"""Plain-data and JSON helpers shared by the CLI, the store and the reports.
+
+JSON never carries NaN or Infinity tokens: -inf (digital silence) is written as
+the string "-inf", +inf as "inf", NaN as null (NaN should never occur).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+import numpy as np
+
+
+def plain(value: Any) -> Any:
+    """numpy scalars/arrays and tuples -> Python floats, ints, lists (pickle/JSON friendly)."""
+    if isinstance(value, dict):
+        return {str(k): plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return [plain(v) for v in value.tolist()]
+    if isinstance(value, (np.bool_,)):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, (np.floating, float)):
+        x = float(value)
+        return None if math.isnan(x) else x
+    return value
+
+
+def json_safe(value: Any) -> Any:
+    value = plain(value)
+    if isinstance(value, dict):
+        return {k: json_safe(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [json_safe(v) for v in value]
+    if isinstance(value, float) and math.isinf(value):
+        return "-inf" if value < 0 else "inf"
+    return value
+
+
+def from_json_safe(value: Any) -> Any:
+    """Inverse of json_safe for the strings it writes."""
+    if isinstance(value, dict):
+        return {k: from_json_safe(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [from_json_safe(v) for v in value]
+    if value == "-inf":
+        return -math.inf
+    if value == "inf":
+        return math.inf
+    return value
+
+
+def dumps(value: Any) -> str:
+    return json.dumps(json_safe(value), allow_nan=False, ensure_ascii=False, sort_keys=False)
