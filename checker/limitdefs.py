@@ -1,0 +1,223 @@
+"""The catalogue of every limit a profile may set: one table entry per limit.
+
+Each entry says which profile key sets the limit, which measured value it
+judges, how (``kind``), in which unit, in which profile section it lives, where
+in the file the violation is (``position``), and what to do about it (``hint``).
+Adding a simple min/max limit on any flat measured value is one entry here;
+profiles.py validates it and rules.py evaluates it without further code.
+
+Kinds:
+  max / min      measured <= value / measured >= value (optional ``warn_value``)
+  target         |measured - value| <= tolerance_lu (integrated loudness)
+  one_of         measured is one of a list (format)
+  allowed        value = false: the measured list (e.g. silent channels) must be empty
+  declared       |declared - measured| <= value (bext loudness vs measurement)
+  required       value = true: every listed measured key must be present (not None)
+  must_be_true   value = true: the measured flag must be True (stem sets)
+  no_cutoff_below  a steep cutoff, if found, must not lie below value
+
+Scope: "file" limits judge one file; "set" limits judge a stem set's values.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+MAX = "max"
+MIN = "min"
+TARGET = "target"
+ONE_OF = "one_of"
+ALLOWED = "allowed"
+DECLARED = "declared"
+REQUIRED = "required"
+MUST_BE_TRUE = "must_be_true"
+NO_CUTOFF_BELOW = "no_cutoff_below"
+
+FILE = "file"
+SET = "set"
+
+SECTIONS = (
+    "format",
+    "loudness",
+    "peaks",
+    "levels",
+    "silence",
+    "channels",
+    "bandwidth",
+    "metadata",
+    "stems",
+)
+
+#: Unit suffix of a key -> the unit shown to people.
+UNIT_SUFFIXES = {
+    "lufs": "LUFS",
+    "lu": "LU",
+    "dbtp": "dBTP",
+    "dbfs": "dBFS",
+    "db": "dB",
+    "s": "s",
+    "hz": "Hz",
+    "frames": "frames",
+}
+
+DECLARED_KEYS = (
+    "declared_integrated_lufs",
+    "declared_loudness_range_lu",
+    "declared_true_peak_dbtp",
+    "declared_max_momentary_lufs",
+    "declared_max_short_term_lufs",
+)
+
+
+@dataclass(frozen=True)
+class LimitDef:
+    key: str  # the profile key, e.g. "true_peak_max_dbtp"
+    kind: str
+    measure: str | tuple[str, ...]  # the measured key(s) judged
+    unit: str  # shown to people: "dBTP", "LU", "" for counts and ratios
+    what: str  # plain words for the measured quantity
+    section: str
+    position: str | None = None  # measured key holding the position (float or list of floats)
+    hint: str = ""  # what to do about a violation
+    scope: str = FILE
+    min_channels: int = 1  # the limit applies only to files with at least this many channels
+    none_means_ok: bool = False  # None is a result ("no cutoff found"), not "unmeasured"
+    item: str = "number"  # value type: number | int | str | bool (lists for one_of)
+
+
+def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
+    return LimitDef(key, kind, measure, unit, what, section, **kw)
+
+
+_LOWER = "lower the level or use a true-peak limiter"
+
+# fmt: off
+CATALOGUE: tuple[LimitDef, ...] = (
+    # format
+    _d("sample_rates_hz", ONE_OF, "sample_rate_hz", "Hz", "sample rate", "format", item="int",
+       hint="resample or re-export at an allowed rate"),
+    _d("bit_depths", ONE_OF, "format_bits", "bits", "bit depth", "format", item="int",
+       hint="re-export at an allowed bit depth"),
+    _d("subtypes", ONE_OF, "subtype", "", "sample format", "format", item="str",
+       hint="re-export in an allowed sample format"),
+    _d("channel_counts", ONE_OF, "channels", "", "channel count", "format", item="int",
+       hint="re-export with an allowed channel count"),
+    _d("containers", ONE_OF, "container", "", "file type", "format", item="str",
+       hint="re-export in an allowed file type"),
+    _d("duration_min_s", MIN, "duration_s", "s", "duration", "format",
+       hint="check the export range: the file is too short"),
+    _d("duration_max_s", MAX, "duration_s", "s", "duration", "format",
+       hint="check the export range: the file is too long"),
+    # loudness
+    _d("integrated_target_lufs", TARGET, "integrated_lufs", "LUFS", "integrated loudness",
+       "loudness", hint="apply the gain in the advice"),
+    _d("loudness_range_min_lu", MIN, "loudness_range_lu", "LU", "loudness range", "loudness",
+       hint="the programme is more compressed than allowed"),
+    _d("loudness_range_max_lu", MAX, "loudness_range_lu", "LU", "loudness range", "loudness",
+       hint="reduce the dynamics (compression or mix rides); gain alone cannot fix this"),
+    _d("momentary_max_lufs", MAX, "max_momentary_lufs", "LUFS", "maximum momentary loudness",
+       "loudness", position="max_momentary_time_s", hint="tame the loudest moment"),
+    _d("short_term_max_lufs", MAX, "max_short_term_lufs", "LUFS",
+       "maximum short-term loudness", "loudness", position="max_short_term_time_s",
+       hint="tame the loudest passage"),
+    # peaks
+    _d("true_peak_max_dbtp", MAX, "true_peak_dbtp", "dBTP", "true peak", "peaks",
+       position="true_peak_time_s", hint=_LOWER),
+    _d("sample_peak_max_dbfs", MAX, "sample_peak_dbfs", "dBFS", "sample peak", "peaks",
+       position="sample_peak_time_s", hint="lower the level"),
+    _d("sample_peak_min_dbfs", MIN, "sample_peak_dbfs", "dBFS", "sample peak", "peaks",
+       position="sample_peak_time_s", hint="the level is lower than this delivery expects"),
+    _d("clipped_runs_max", MAX, "clipped_runs", "", "number of clipped runs", "peaks",
+       item="int", position="clipped_run_times_s",
+       hint="the audio was clipped: re-export from the source at a lower level"),
+    _d("over_full_scale_samples_max", MAX, "over_full_scale_samples", "",
+       "number of samples beyond full scale", "peaks", item="int",
+       hint="float samples above 1.0 clip when converted to fixed point: lower the level"),
+    _d("nonfinite_samples_max", MAX, "nonfinite_samples", "", "number of NaN/Inf samples",
+       "peaks", item="int", hint="the file holds invalid samples: re-export it"),
+    # levels
+    _d("dc_offset_max_dbfs", MAX, "dc_offset_dbfs", "dBFS", "DC offset", "levels",
+       hint="remove the DC offset (high-pass filter)"),
+    _d("effective_bits_min", MIN, "effective_bits", "bits", "effective bit depth", "levels",
+       hint="the audio was made at a lower resolution than the file claims"),
+    _d("rms_min_dbfs", MIN, "rms_dbfs", "dBFS", "RMS level", "levels", hint="raise the level"),
+    _d("rms_max_dbfs", MAX, "rms_dbfs", "dBFS", "RMS level", "levels", hint="lower the level"),
+    _d("noise_floor_max_dbfs", MAX, "noise_floor_dbfs", "dBFS", "noise floor", "levels",
+       hint="reduce the background noise"),
+    _d("footroom_min_db", MIN, "footroom_db", "dB", "footroom", "levels",
+       hint="the quietest content sits too close to the noise floor"),
+    # silence
+    _d("leading_silence_min_s", MIN, "leading_silence_s", "s", "leading silence", "silence",
+       hint="add room tone or silence at the start"),
+    _d("leading_silence_max_s", MAX, "leading_silence_s", "s", "leading silence", "silence",
+       hint="trim the start"),
+    _d("trailing_silence_min_s", MIN, "trailing_silence_s", "s", "trailing silence", "silence",
+       hint="add room tone or silence at the end"),
+    _d("trailing_silence_max_s", MAX, "trailing_silence_s", "s", "trailing silence", "silence",
+       hint="trim the end"),
+    _d("dropouts_max", MAX, "dropouts", "", "number of dropouts", "silence", item="int",
+       position="dropout_times_s", hint="listen at the position: audio drops to digital zero"),
+    # channels
+    _d("correlation_min", MIN, "min_correlation", "", "lowest inter-channel correlation",
+       "channels", min_channels=2, hint="check for phase problems between channels"),
+    _d("silent_channels_allowed", ALLOWED, "silent_channels", "", "silent channels",
+       "channels", item="bool", hint="a channel carries no audio: check the routing"),
+    _d("identical_channels_allowed", ALLOWED, "identical_channels", "", "identical channels",
+       "channels", item="bool", min_channels=2,
+       hint="channels carry the same audio: check the routing (or deliver mono)"),
+    _d("inverted_channels_allowed", ALLOWED, "inverted_channels", "",
+       "polarity-inverted channel pairs", "channels", item="bool", min_channels=2,
+       hint="one channel is the inverse of another: fix the polarity"),
+    # bandwidth
+    _d("bandwidth_fraction_min", MIN, "bandwidth_fraction", "", "effective bandwidth "
+       "(fraction of the Nyquist frequency)", "bandwidth",
+       hint="the content stops well below the Nyquist frequency: probably upsampled"),
+    _d("steep_cutoff_min_hz", NO_CUTOFF_BELOW, "steep_cutoff_hz", "Hz", "steep cutoff",
+       "bandwidth", none_means_ok=True,
+       hint="a brick-wall cutoff is typical of a lossy source or a resampler"),
+    # metadata (Broadcast WAV bext, EBU Tech 3285 v2)
+    _d("declared_integrated_tolerance_lu", DECLARED,
+       ("declared_integrated_lufs", "integrated_lufs"), "LU", "declared integrated loudness",
+       "metadata", hint="rewrite the bext loudness fields from the measurement"),
+    _d("declared_loudness_range_tolerance_lu", DECLARED,
+       ("declared_loudness_range_lu", "loudness_range_lu"), "LU", "declared loudness range",
+       "metadata", hint="rewrite the bext loudness fields from the measurement"),
+    _d("declared_true_peak_tolerance_db", DECLARED,
+       ("declared_true_peak_dbtp", "true_peak_dbtp"), "dB", "declared true peak", "metadata",
+       hint="rewrite the bext loudness fields from the measurement"),
+    _d("declared_momentary_tolerance_lu", DECLARED,
+       ("declared_max_momentary_lufs", "max_momentary_lufs"), "LU",
+       "declared maximum momentary loudness", "metadata",
+       hint="rewrite the bext loudness fields from the measurement"),
+    _d("declared_short_term_tolerance_lu", DECLARED,
+       ("declared_max_short_term_lufs", "max_short_term_lufs"), "LU",
+       "declared maximum short-term loudness", "metadata",
+       hint="rewrite the bext loudness fields from the measurement"),
+    _d("declared_loudness_required", REQUIRED, DECLARED_KEYS, "", "bext loudness fields",
+       "metadata", item="bool", hint="write a version 2 bext chunk with all five loudness values"),
+    # stem sets (issue 8): judged on the set-level values, not on each stem
+    _d("formats_must_match", MUST_BE_TRUE, "set_formats_match", "", "stem formats match",
+       "stems", item="bool", scope=SET,
+       hint="re-export every stem with the same rate, sample format and channel count"),
+    _d("length_mismatch_max_frames", MAX, "set_length_mismatch_frames", "frames",
+       "stem length mismatch", "stems", item="int", scope=SET,
+       hint="re-export every stem over the same range"),
+    _d("start_offset_max_s", MAX, "set_start_offset_max_s", "s", "stem start offset",
+       "stems", scope=SET, hint="a stem slipped: re-export it from the session start"),
+    _d("sum_true_peak_max_dbtp", MAX, "sum_true_peak_dbtp", "dBTP", "true peak of the stem sum",
+       "stems", scope=SET, position="sum_true_peak_time_s",
+       hint="the stems clip when summed: lower every stem by the same amount"),
+    _d("sum_sample_peak_max_dbfs", MAX, "sum_sample_peak_dbfs", "dBFS",
+       "sample peak of the stem sum", "stems", scope=SET, position="sum_sample_peak_time_s",
+       hint="the stems clip when summed: lower every stem by the same amount"),
+    _d("null_residual_max_db", MAX, "null_residual_db", "dB",
+       "null-test residual (mix minus stem sum, relative to the mix)", "stems", scope=SET,
+       hint="the stems do not rebuild the reference mix: check for missing or changed stems"),
+)
+# fmt: on
+
+BY_KEY: dict[str, LimitDef] = {d.key: d for d in CATALOGUE}
+
+
+def measured_keys(d: LimitDef) -> tuple[str, ...]:
+    return d.measure if isinstance(d.measure, tuple) else (d.measure,)
