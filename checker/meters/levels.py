@@ -1,0 +1,404 @@
+"""Sample-domain levels: sample peak, headroom, DC offset, clipping, bits, RMS, noise floor.
+
+Definitions (project choices unless a source is named):
+
+- Sample peak: largest |sample| per channel, dBFS re full scale 1.0; the time is
+  the first frame reaching it. ``headroom_db`` = -sample_peak_dbfs (+inf for digital
+  silence).
+- DC offset: mean of each channel over the whole file, as a signed percentage of
+  full scale per channel; ``dc_offset_percent`` / ``dc_offset_dbfs`` use the channel
+  with the largest |mean|. Integer PCM sums the int32 codes exactly.
+- Clipping: a run of at least ``options.clip_run_min_samples`` consecutive samples
+  of one channel at the same full-scale value: the format's largest or smallest
+  code for integer PCM (left-justified int32, so PCM_16 full scale is
+  32767 << 16 and -32768 << 16), |x| >= 1.0 for float. Runs spanning blocks count
+  once; a run open at the end of the file counts if long enough.
+  ``over_full_scale_samples``: float samples with |x| > 1.0 (0 for integer PCM).
+- Effective bits per channel: integer PCM: 32 minus the trailing zero bits of the
+  OR of every int32 code (a PCM_24 file whose low 8 bits are always 0 carries 16).
+  Float: the smallest N such that every sample lies on the N-bit grid k / 2**(N-1),
+  when N <= 24; otherwise the format's bits (32/64). Lossy codecs: None. A
+  channel that is digital zero throughout: None; ``effective_bits`` is the minimum
+  over the other channels.
+- RMS: per channel over the whole file, re 1.0 (a full-scale sine reads
+  -3.01 dBFS, see checker.units.power_to_db); ``rms_dbfs`` is the loudest channel.
+- Noise floor: the signal is cut into 100 ms segments (one record of per-channel
+  sums of squares and a count of all-channel digital-zero frames per segment);
+  400 ms blocks step by 100 ms. A block's level is the RMS of its loudest channel.
+  Blocks that are digital zero or have more than half of their frames digital
+  zero in every channel are skipped (they sit at the edges of padding and
+  dropouts). ``noise_floor_dbfs`` is the 10th percentile (numpy method "lower",
+  i.e. an actual block's level) of the remaining block levels. It is the level of
+  the quietest passages, so a file without pauses reads its quietest programme.
+- Footroom: noise_floor_dbfs minus checker.units.quantization_floor_dbfs(N) for
+  N = effective_bits (6.02 N + 1.76 dB rule). None for float files that are not on
+  an integer grid (no fixed quantization floor) and for lossy files.
+- Non-finite samples (NaN/Inf, float files only) are counted and treated as 0 by
+  every sample-domain meter (:func:`finite_x`), so no NaN reaches any result.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from checker.audio import Block, StreamInfo
+from checker.layout import Layout
+from checker.meters.base import MeasureOptions
+from checker.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
+
+SEGMENT_S = 0.1
+NOISE_BLOCK_SEGMENTS = 4  # 400 ms blocks, 100 ms step
+NOISE_FLOOR_PERCENTILE = 10.0
+NOISE_BLOCK_MAX_ZERO_FRACTION = 0.5
+#: Float files finer than this grid report their format's bits.
+MAX_GRID_BITS = 24
+
+_EMPTY = np.empty(0, dtype=np.int64)
+
+
+def finite_x(block: Block) -> np.ndarray:
+    """The block's float samples with NaN/Inf replaced by 0 (a copy only when needed)."""
+    x = block.x
+    if block.raw is not None:
+        return x
+    finite = np.isfinite(x)
+    if finite.all():
+        return x
+    return np.where(finite, x, 0.0)
+
+
+def find_runs(
+    mask: np.ndarray, start: int, open_start: int | None
+) -> tuple[np.ndarray, np.ndarray, int | None]:
+    """Runs of True in a 1-D block mask, continuing a run open since ``open_start``.
+
+    Returns the absolute (starts, ends) of runs that closed inside this block
+    (end exclusive; a run still open at block start is included with its old
+    start) and the start of the run left open at the block's end, or None.
+    """
+    n = mask.size
+    if n == 0 or (open_start is None and not mask.any()):
+        return _EMPTY, _EMPTY, open_start
+    m = mask.astype(np.int8)
+    d = np.diff(m, prepend=np.int8(open_start is not None))
+    starts = np.flatnonzero(d == 1) + start
+    ends = np.flatnonzero(d == -1) + start
+    if open_start is not None:
+        starts = np.concatenate((np.array([open_start], dtype=np.int64), starts))
+    new_open = None
+    if starts.size > ends.size:
+        new_open = int(starts[-1])
+        starts = starts[:-1]
+    return starts, ends, new_open
+
+
+def keep_first(kept: np.ndarray, new: np.ndarray, limit: int) -> np.ndarray:
+    """The ``limit`` smallest distinct values of kept and new (sorted)."""
+    if new.size == 0:
+        return kept
+    return np.unique(np.concatenate((kept, new)))[:limit]
+
+
+def integer_full_scale_codes(info: StreamInfo) -> tuple[int, int]:
+    """(largest, smallest) int32 code of the format, left-justified."""
+    bits = info.format_bits or 32
+    shift = 32 - bits
+    return ((1 << (bits - 1)) - 1) << shift, -(1 << (bits - 1)) << shift
+
+
+def trailing_zero_bits(code: int) -> int:
+    """Trailing zero bits of a nonzero 32-bit two's complement code."""
+    v = code & 0xFFFFFFFF
+    return (v & -v).bit_length() - 1
+
+
+def float_grid_bits(x: np.ndarray) -> np.ndarray:
+    """Per column: smallest N with every sample on the grid k / 2**(N-1); 0 for all-zero."""
+    mant, exp = np.frexp(x)
+    m = (mant * 2.0**53).astype(np.int64)  # exact: |mant| in [0.5, 1)
+    low = m & -m  # lowest set bit (a power of two), 0 for zero samples
+    tz = np.frexp(low.astype(np.float64))[1] - 1
+    bits = np.where(m != 0, np.maximum(54 - exp - tz, 1), 0)
+    return bits.max(axis=0, initial=0)
+
+
+@dataclass(frozen=True)
+class LevelsResult:
+    sample_peak_dbfs: float
+    sample_peak_time_s: float | None
+    sample_peak_channel_dbfs: list[float]
+    headroom_db: float
+    dc_offset_dbfs: float | None
+    dc_offset_percent: float | None
+    dc_offset_channel_percent: list[float] | None
+    clipped_runs: int
+    clipped_run_times_s: list[float]
+    clipped_runs_channel: list[int]
+    over_full_scale_samples: int
+    effective_bits: int | None
+    effective_bits_channel: list[int | None]
+    effective_bits_note: str | None
+    rms_dbfs: float | None
+    noise_floor_dbfs: float | None
+    noise_floor_note: str | None
+    footroom_db: float | None
+    footroom_note: str | None
+    nonfinite_samples: int
+    findings: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        d = dict(self.__dict__)
+        d.pop("findings")
+        return d
+
+
+class LevelsMeter:
+    def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
+        self.info = info
+        self.options = options
+        ch = info.channels
+        self.rate = info.sample_rate_hz
+        self.frames = 0
+        self.peak = np.zeros(ch)
+        self.peak_frame = np.full(ch, -1, dtype=np.int64)
+        self.dc_int = [0] * ch  # exact sums of int32 codes (integer PCM)
+        self.dc_float = np.zeros(ch)
+        self.sumsq = np.zeros(ch)
+        # Clipping: open run start per (channel, sign), counts, first starts.
+        self.clip_open: list[list[int | None]] = [[None, None] for _ in range(ch)]
+        self.clip_counts = np.zeros(ch, dtype=np.int64)
+        self.clip_first = _EMPTY
+        if info.is_integer_pcm:
+            self.clip_hi, self.clip_lo = integer_full_scale_codes(info)
+        self.overs = 0
+        # Effective bits.
+        self.code_or = np.zeros(ch, dtype=np.int32)
+        self.grid_bits = np.zeros(ch, dtype=np.int64)
+        # Non-finite samples.
+        self.nan_count = 0
+        self.inf_count = 0
+        self.nan_first: int | None = None
+        self.inf_first: int | None = None
+        # 100 ms segments for the noise floor.
+        self.seg_len = max(1, round(self.rate * SEGMENT_S))
+        self.seg_sums: list[np.ndarray] = []
+        self.seg_zeros: list[np.ndarray] = []
+        self.part_sum = np.zeros(ch)
+        self.part_zeros = 0
+        self.part_frames = 0
+
+    # ------------------------------------------------------------------ feed
+    def feed(self, block: Block) -> None:
+        n = block.frames
+        if n == 0:
+            return
+        x = block.x
+        raw = block.raw
+        if raw is None and self.info.is_float:
+            x = self._count_nonfinite(x, block.start)
+        elif raw is None:
+            x = finite_x(block)
+        ax = np.abs(x)
+        m = ax.max(axis=0)
+        better = m > self.peak
+        if better.any():
+            idx = ax.argmax(axis=0)
+            self.peak = np.where(better, m, self.peak)
+            self.peak_frame = np.where(better, idx + block.start, self.peak_frame)
+        if raw is not None:
+            sums = raw.sum(axis=0, dtype=np.int64)
+            self.dc_int = [a + int(b) for a, b in zip(self.dc_int, sums, strict=True)]
+            self.code_or |= np.bitwise_or.reduce(raw, axis=0)
+            self._clip(raw == self.clip_hi, raw == self.clip_lo, block.start)
+        else:
+            self.dc_float += x.sum(axis=0)
+            if self.info.is_float:
+                self._clip(x >= 1.0, x <= -1.0, block.start)
+                self.overs += int(np.count_nonzero(ax > 1.0))
+                active = self.grid_bits <= MAX_GRID_BITS
+                if active.any():
+                    bits = float_grid_bits(x[:, active])
+                    self.grid_bits[active] = np.maximum(self.grid_bits[active], bits)
+        x2 = x * x
+        self.sumsq += x2.sum(axis=0)
+        self._segments(x2, ~np.any(x != 0.0, axis=1))
+        self.frames += n
+
+    def _count_nonfinite(self, x: np.ndarray, start: int) -> np.ndarray:
+        finite = np.isfinite(x)
+        if finite.all():
+            return x
+        nan = np.isnan(x)
+        inf = ~finite & ~nan
+        for mask, kind in ((nan, "nan"), (inf, "inf")):
+            count = int(np.count_nonzero(mask))
+            if count == 0:
+                continue
+            setattr(self, f"{kind}_count", getattr(self, f"{kind}_count") + count)
+            if getattr(self, f"{kind}_first") is None:
+                setattr(self, f"{kind}_first", start + int(np.flatnonzero(mask.any(axis=1))[0]))
+        return np.where(finite, x, 0.0)
+
+    def _clip(self, hi: np.ndarray, lo: np.ndarray, start: int) -> None:
+        minimum = self.options.clip_run_min_samples
+        any_hi = hi.any(axis=0)
+        any_lo = lo.any(axis=0)
+        found = []
+        for c, state in enumerate(self.clip_open):
+            for s, (mask, any_) in enumerate(((hi, any_hi), (lo, any_lo))):
+                if not any_[c] and state[s] is None:
+                    continue
+                starts, ends, state[s] = find_runs(mask[:, c], start, state[s])
+                long = starts[(ends - starts) >= minimum]
+                if long.size:
+                    self.clip_counts[c] += long.size
+                    found.append(long)
+        if found:
+            self.clip_first = keep_first(
+                self.clip_first, np.concatenate(found), self.options.max_positions
+            )
+
+    def _segments(self, x2: np.ndarray, zero: np.ndarray) -> None:
+        seg = self.seg_len
+        n = x2.shape[0]
+        first = min(n, seg - self.part_frames)
+        self.part_sum = self.part_sum + x2[:first].sum(axis=0)
+        self.part_zeros += int(np.count_nonzero(zero[:first]))
+        self.part_frames += first
+        if self.part_frames == seg:
+            self.seg_sums.append(self.part_sum[None, :])
+            self.seg_zeros.append(np.array([self.part_zeros]))
+            self.part_sum = np.zeros_like(self.part_sum)
+            self.part_zeros = 0
+            self.part_frames = 0
+        rest = n - first
+        full = rest // seg
+        if full:
+            body = slice(first, first + full * seg)
+            ch = x2.shape[1]
+            self.seg_sums.append(x2[body].reshape(full, seg, ch).sum(axis=1))
+            self.seg_zeros.append(zero[body].reshape(full, seg).sum(axis=1))
+        tail = slice(first + full * seg, n)
+        if tail.stop > tail.start:
+            self.part_sum = self.part_sum + x2[tail].sum(axis=0)
+            self.part_zeros += int(np.count_nonzero(zero[tail]))
+            self.part_frames += tail.stop - tail.start
+
+    # ---------------------------------------------------------------- result
+    def result(self) -> LevelsResult:
+        rate = self.rate
+        frames = self.frames
+        peak_db = [amplitude_to_db(p) for p in self.peak]
+        top = float(self.peak.max(initial=0.0))
+        peak_time = None
+        if top > 0.0:
+            peak_time = float(self.peak_frame[self.peak == top].min()) / rate
+        dc_pct = dc_db = dc_channel = None
+        if frames:
+            if self.info.is_integer_pcm:
+                means = np.array([s / frames for s in self.dc_int]) / 2.0**31
+            else:
+                means = self.dc_float / frames
+            dc_channel = [float(100.0 * v) for v in means]
+            worst = float(np.abs(means).max())
+            dc_pct, dc_db = 100.0 * worst, amplitude_to_db(worst)
+        counts = self.clip_counts.copy()
+        first = self.clip_first
+        for c, state in enumerate(self.clip_open):  # runs still open at the end count
+            for s in state:
+                if s is not None and frames - s >= self.options.clip_run_min_samples:
+                    counts[c] += 1
+                    first = keep_first(first, np.array([s]), self.options.max_positions)
+        bits, bits_channel, bits_note = self._bits()
+        rms = None
+        if frames:
+            rms = power_to_db(float(self.sumsq.max()) / frames)
+        floor, floor_note = self._noise_floor()
+        footroom, footroom_note = None, None
+        if floor is None:
+            footroom_note = "no noise floor"
+        elif bits is None:
+            footroom_note = f"no effective bit depth ({bits_note})"
+        elif self.info.is_float and bits > MAX_GRID_BITS:
+            footroom_note = "float samples are not on an integer grid: no fixed quantization floor"
+        else:
+            footroom = floor - quantization_floor_dbfs(bits)
+        return LevelsResult(
+            sample_peak_dbfs=amplitude_to_db(top),
+            sample_peak_time_s=peak_time,
+            sample_peak_channel_dbfs=peak_db,
+            headroom_db=0.0 - amplitude_to_db(top),
+            dc_offset_dbfs=dc_db,
+            dc_offset_percent=dc_pct,
+            dc_offset_channel_percent=dc_channel,
+            clipped_runs=int(counts.sum()),
+            clipped_run_times_s=[float(f) / rate for f in first],
+            clipped_runs_channel=[int(c) for c in counts],
+            over_full_scale_samples=self.overs,
+            effective_bits=bits,
+            effective_bits_channel=bits_channel,
+            effective_bits_note=bits_note,
+            rms_dbfs=rms,
+            noise_floor_dbfs=floor,
+            noise_floor_note=floor_note,
+            footroom_db=footroom,
+            footroom_note=footroom_note,
+            nonfinite_samples=self.nan_count + self.inf_count,
+            findings=self._findings(),
+        )
+
+    def _bits(self) -> tuple[int | None, list[int | None], str | None]:
+        info = self.info
+        ch = info.channels
+        if info.is_integer_pcm:
+            per: list[int | None] = [
+                None if int(v) == 0 else 32 - trailing_zero_bits(int(v)) for v in self.code_or
+            ]
+        elif info.is_float:
+            fmt = info.format_bits or 32
+            per = [
+                None if g == 0 else (int(g) if g <= MAX_GRID_BITS else fmt) for g in self.grid_bits
+            ]
+        else:
+            return None, [None] * ch, f"lossy codec ({info.subtype}): no fixed bit depth"
+        used = [b for b in per if b is not None]
+        if not used:
+            return None, per, "every channel is digital zero"
+        note = None
+        if len(used) < ch:
+            note = "digital-zero channels have no bits in use and are left out"
+        return min(used), per, note
+
+    def _noise_floor(self) -> tuple[float | None, str | None]:
+        if not self.seg_sums:
+            return None, "shorter than one 400 ms block"
+        sums = np.concatenate(self.seg_sums)
+        zeros = np.concatenate(self.seg_zeros)
+        k = sums.shape[0] - NOISE_BLOCK_SEGMENTS + 1
+        if k < 1:
+            return None, "shorter than one 400 ms block"
+        power = sum(sums[i : i + k] for i in range(NOISE_BLOCK_SEGMENTS))
+        zero = sum(zeros[i : i + k] for i in range(NOISE_BLOCK_SEGMENTS))
+        level = power.max(axis=1) / (NOISE_BLOCK_SEGMENTS * self.seg_len)
+        limit = NOISE_BLOCK_MAX_ZERO_FRACTION * NOISE_BLOCK_SEGMENTS * self.seg_len
+        keep = level[(level > 0.0) & (zero <= limit)]
+        if keep.size == 0:
+            return None, "no 400 ms block with signal (digital zero throughout)"
+        p = float(np.percentile(keep, NOISE_FLOOR_PERCENTILE, method="lower"))
+        return power_to_db(p), None
+
+    def _findings(self) -> tuple[str, ...]:
+        out = []
+        for name, count, first in (
+            ("NaN", self.nan_count, self.nan_first),
+            ("Inf", self.inf_count, self.inf_first),
+        ):
+            if count:
+                out.append(
+                    f"{name} samples: {count}, first at {first / self.rate:.3f} s "
+                    "(treated as 0 by the sample-domain meters)"
+                )
+        return tuple(out)
