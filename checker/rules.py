@@ -106,8 +106,10 @@ def position_of(values: Mapping[str, Any], key: str | None) -> float | None:
     return p if math.isfinite(p) else None
 
 
-def _at(pos: float | None) -> str:
-    return "" if pos is None else f" at {pos:.2f} s"
+def _at(pos: float | None, first: bool = False) -> str:
+    if pos is None:
+        return ""
+    return f" (first at {pos:.2f} s)" if first else f" at {pos:.2f} s"
 
 
 def _present(x: Any) -> bool:
@@ -168,6 +170,7 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
     sign = 1.0 if d.kind == MAX else -1.0
     word = "above" if d.kind == MAX else "below"
     pos = position_of(values, d.position)
+    first = isinstance(values.get(d.position or ""), list)
     if sign * (m - lim.value) > EPS:
         limit, severity, level = lim.value, lim.severity, "limit"
     elif lim.warn_value is not None and sign * (m - lim.warn_value) > EPS:
@@ -175,7 +178,7 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
     else:
         return None
     msg = (
-        f"{_cap(d.what)} is {_with_unit(m, d.unit)}{_at(pos)}, {word} the {level} of "
+        f"{_cap(d.what)} is {_with_unit(m, d.unit)}{_at(pos, first)}, {word} the {level} of "
         f"{_with_unit(limit, d.unit)}: {d.hint}."
     )
     return _flag(lim, m, limit, msg, pos, severity)

@@ -1,0 +1,431 @@
+"""evaluate(): one table case per limit, unmeasured values, scope, gain advice, mono convention.
+
+Measurements are built from dicts (no audio is read). Limits in the table are
+test values chosen around each limit; the published values of the shipped
+profiles are checked in test_profiles.py.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pytest
+from numpy.testing import assert_allclose
+
+from checker.limitdefs import CATALOGUE, DECLARED_KEYS, MAX, MIN, REQUIRED
+from checker.measure import Measurement
+from checker.profiles import load_profile
+from checker.rules import evaluate
+from checker.verdict import ERROR, FAIL, PASS, WARN
+
+SET_BASE = {"set_stem_count": 3}  # any set_* key marks set-level values
+STEREO = {"channels": 2}
+
+
+def write_profile(tmp_path: Path, body: str, name: str = "t") -> Path:
+    path = tmp_path / f"{name}.toml"
+    path.write_text(f'name = "{name}"\ntitle = "test"\n{body}\n', encoding="utf-8")
+    return path
+
+
+def toml_value(v) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, str):
+        return f'"{v}"'
+    if isinstance(v, list):
+        return "[" + ", ".join(toml_value(x) for x in v) + "]"
+    return repr(v)
+
+
+def one_limit_profile(tmp_path, key, value, severity="fail", **extra):
+    section = next(d.section for d in CATALOGUE if d.key == key)
+    fields = {"value": value, **extra, "severity": severity, "source": "test value"}
+    inline = ", ".join(f"{k} = {toml_value(v)}" for k, v in fields.items())
+    return load_profile(str(write_profile(tmp_path, f"[{section}]\n{key} = {{ {inline} }}")))
+
+
+def m(values: dict) -> Measurement:
+    return Measurement("t.wav", dict(values))
+
+
+# (key, limit value, extra limit fields, base values, values at the limit (pass),
+#  values just past it (fail), expected message fragment, expected position_s)
+CASES = [
+    ("sample_rates_hz", [44100, 48000], {}, {}, {"sample_rate_hz": 48000},
+     {"sample_rate_hz": 96000}, "Sample rate is 96000 Hz, not one of the allowed 44100, 48000 Hz",
+     None),
+    ("bit_depths", [24], {}, {}, {"format_bits": 24}, {"format_bits": 16},
+     "Bit depth is 16 bits, not one of the allowed 24 bits", None),
+    ("subtypes", ["PCM_24", "FLOAT"], {}, {}, {"subtype": "FLOAT"}, {"subtype": "PCM_16"},
+     "Sample format is PCM_16, not one of the allowed PCM_24, FLOAT", None),
+    ("channel_counts", [2], {}, {}, {"channels": 2}, {"channels": 6},
+     "Channel count is 6, not one of the allowed 2", None),
+    ("containers", ["WAV"], {}, {}, {"container": "WAV"}, {"container": "FLAC"},
+     "File type is FLAC, not one of the allowed WAV", None),
+    ("duration_min_s", 10.0, {}, {}, {"duration_s": 10.0}, {"duration_s": 9.99},
+     "Duration is 9.99 s, below the limit of 10.00 s", None),
+    ("duration_max_s", 3600.0, {}, {}, {"duration_s": 3600.0}, {"duration_s": 3600.01},
+     "Duration is 3600.01 s, above the limit of 3600.00 s", None),
+    ("integrated_target_lufs", -23.0, {"tolerance_lu": 0.5}, STEREO,
+     {"integrated_lufs": -22.5}, {"integrated_lufs": -22.49},
+     "Integrated loudness is -22.49 LUFS, 0.51 LU above the target of -23.00 LUFS "
+     "(tolerance +- 0.50 LU): apply -0.51 dB of gain", None),
+    ("loudness_range_min_lu", 4.0, {}, {}, {"loudness_range_lu": 4.0},
+     {"loudness_range_lu": 3.99}, "Loudness range is 3.99 LU, below the limit of 4.00 LU", None),
+    ("loudness_range_max_lu", 20.0, {}, {}, {"loudness_range_lu": 20.0},
+     {"loudness_range_lu": 20.01}, "Loudness range is 20.01 LU, above the limit of 20.00 LU",
+     None),
+    ("momentary_max_lufs", -15.0, {}, {"max_momentary_time_s": 3.2},
+     {"max_momentary_lufs": -15.0}, {"max_momentary_lufs": -14.99},
+     "Maximum momentary loudness is -14.99 LUFS at 3.20 s, above the limit of -15.00 LUFS", 3.2),
+    ("short_term_max_lufs", -18.0, {}, {"max_short_term_time_s": 61.5},
+     {"max_short_term_lufs": -18.0}, {"max_short_term_lufs": -17.99},
+     "Maximum short-term loudness is -17.99 LUFS at 61.50 s, above the limit of -18.00 LUFS",
+     61.5),
+    ("true_peak_max_dbtp", -1.0, {}, {"true_peak_time_s": 12.5}, {"true_peak_dbtp": -1.0},
+     {"true_peak_dbtp": -0.99},
+     "True peak is -0.99 dBTP at 12.50 s, above the limit of -1.00 dBTP: lower the level", 12.5),
+    ("sample_peak_max_dbfs", -3.0, {}, {"sample_peak_time_s": 0.25}, {"sample_peak_dbfs": -3.0},
+     {"sample_peak_dbfs": -2.99}, "Sample peak is -2.99 dBFS at 0.25 s, above the limit of "
+     "-3.00 dBFS", 0.25),
+    ("sample_peak_min_dbfs", -6.0, {}, {}, {"sample_peak_dbfs": -6.0},
+     {"sample_peak_dbfs": -6.01}, "Sample peak is -6.01 dBFS, below the limit of -6.00 dBFS",
+     None),
+    ("clipped_runs_max", 0, {}, {"clipped_run_times_s": [1.25, 7.0]}, {"clipped_runs": 0},
+     {"clipped_runs": 2}, "Number of clipped runs is 2 (first at 1.25 s), above the limit of 0",
+     1.25),
+    ("over_full_scale_samples_max", 0, {}, {}, {"over_full_scale_samples": 0},
+     {"over_full_scale_samples": 5}, "Number of samples beyond full scale is 5, above the "
+     "limit of 0", None),
+    ("nonfinite_samples_max", 0, {}, {}, {"nonfinite_samples": 0}, {"nonfinite_samples": 1},
+     "Number of NaN/Inf samples is 1, above the limit of 0", None),
+    ("dc_offset_max_dbfs", -40.0, {}, {}, {"dc_offset_dbfs": -40.0}, {"dc_offset_dbfs": -39.99},
+     "DC offset is -39.99 dBFS, above the limit of -40.00 dBFS", None),
+    ("effective_bits_min", 20, {}, {}, {"effective_bits": 20}, {"effective_bits": 19},
+     "Effective bit depth is 19 bits, below the limit of 20 bits", None),
+    ("rms_min_dbfs", -23.0, {}, {}, {"rms_dbfs": -23.0}, {"rms_dbfs": -23.01},
+     "RMS level is -23.01 dBFS, below the limit of -23.00 dBFS", None),
+    ("rms_max_dbfs", -18.0, {}, {}, {"rms_dbfs": -18.0}, {"rms_dbfs": -17.99},
+     "RMS level is -17.99 dBFS, above the limit of -18.00 dBFS", None),
+    ("noise_floor_max_dbfs", -60.0, {}, {}, {"noise_floor_dbfs": -60.0},
+     {"noise_floor_dbfs": -59.99}, "Noise floor is -59.99 dBFS, above the limit of -60.00 dBFS",
+     None),
+    ("footroom_min_db", 10.0, {}, {}, {"footroom_db": 10.0}, {"footroom_db": 9.99},
+     "Footroom is 9.99 dB, below the limit of 10.00 dB", None),
+    ("leading_silence_min_s", 0.5, {}, {}, {"leading_silence_s": 0.5},
+     {"leading_silence_s": 0.49}, "Leading silence is 0.49 s, below the limit of 0.50 s", None),
+    ("leading_silence_max_s", 1.0, {}, {}, {"leading_silence_s": 1.0},
+     {"leading_silence_s": 1.01}, "Leading silence is 1.01 s, above the limit of 1.00 s", None),
+    ("trailing_silence_min_s", 1.0, {}, {}, {"trailing_silence_s": 1.0},
+     {"trailing_silence_s": 0.99}, "Trailing silence is 0.99 s, below the limit of 1.00 s", None),
+    ("trailing_silence_max_s", 5.0, {}, {}, {"trailing_silence_s": 5.0},
+     {"trailing_silence_s": 5.01}, "Trailing silence is 5.01 s, above the limit of 5.00 s", None),
+    ("dropouts_max", 0, {}, {"dropout_times_s": [4.5]}, {"dropouts": 0}, {"dropouts": 1},
+     "Number of dropouts is 1 (first at 4.50 s), above the limit of 0", 4.5),
+    ("correlation_min", 0.0, {}, STEREO, {"min_correlation": 0.0}, {"min_correlation": -0.01},
+     "Lowest inter-channel correlation is -0.01, below the limit of 0.00", None),
+    ("silent_channels_allowed", False, {}, STEREO, {"silent_channels": []},
+     {"silent_channels": [1]}, "Silent channels found (channels 2, counting from 1)", None),
+    ("identical_channels_allowed", False, {}, STEREO, {"identical_channels": []},
+     {"identical_channels": [[0, 1]]}, "Identical channels found (channels 1 and 2, counting "
+     "from 1)", None),
+    ("inverted_channels_allowed", False, {}, STEREO, {"inverted_channels": []},
+     {"inverted_channels": [[0, 1]]}, "Polarity-inverted channel pairs found (channels 1 and 2",
+     None),
+    ("bandwidth_fraction_min", 0.8, {}, {}, {"bandwidth_fraction": 0.8},
+     {"bandwidth_fraction": 0.79}, "Effective bandwidth (fraction of the Nyquist frequency) is "
+     "0.79, below the limit of 0.80", None),
+    ("steep_cutoff_min_hz", 15000.0, {}, {"sample_rate_hz": 48000},
+     {"steep_cutoff_hz": 15000.0}, {"steep_cutoff_hz": 14999.0},
+     "Content ends in a steep cutoff near 15.0 kHz in a 48 kHz file, below 15 kHz", None),
+    ("declared_integrated_tolerance_lu", 1.0, {}, {"integrated_lufs": -23.0},
+     {"declared_integrated_lufs": -24.0}, {"declared_integrated_lufs": -24.01},
+     "Declared integrated loudness is -24.01 LUFS but -23.00 LUFS was measured "
+     "(1.01 LU apart, tolerance 1.00 LU)", None),
+    ("declared_loudness_range_tolerance_lu", 1.0, {}, {"loudness_range_lu": 8.0},
+     {"declared_loudness_range_lu": 9.0}, {"declared_loudness_range_lu": 9.01},
+     "Declared loudness range is 9.01 LU but 8.00 LU was measured", None),
+    ("declared_true_peak_tolerance_db", 0.5, {}, {"true_peak_dbtp": -1.5},
+     {"declared_true_peak_dbtp": -1.0}, {"declared_true_peak_dbtp": -0.99},
+     "Declared true peak is -0.99 dBTP but -1.50 dBTP was measured (0.51 dB apart, "
+     "tolerance 0.50 dB)", None),
+    ("declared_momentary_tolerance_lu", 1.0, {}, {"max_momentary_lufs": -15.0},
+     {"declared_max_momentary_lufs": -16.0}, {"declared_max_momentary_lufs": -16.01},
+     "Declared maximum momentary loudness is -16.01 LUFS but -15.00 LUFS was measured", None),
+    ("declared_short_term_tolerance_lu", 1.0, {}, {"max_short_term_lufs": -18.0},
+     {"declared_max_short_term_lufs": -17.0}, {"declared_max_short_term_lufs": -16.99},
+     "Declared maximum short-term loudness is -16.99 LUFS but -18.00 LUFS was measured", None),
+    ("declared_loudness_required", True, {}, {k: -20.0 for k in DECLARED_KEYS}, {},
+     {"declared_loudness_range_lu": None},
+     "Bext loudness fields missing: declared_loudness_range_lu", None),
+    ("formats_must_match", True, {}, SET_BASE, {"set_formats_match": True},
+     {"set_formats_match": False}, "Stem formats match: no: re-export every stem", None),
+    ("length_mismatch_max_frames", 0, {}, SET_BASE, {"set_length_mismatch_frames": 0},
+     {"set_length_mismatch_frames": 1}, "Stem length mismatch is 1 frames, above the limit of "
+     "0 frames", None),
+    ("start_offset_max_s", 0.0, {}, SET_BASE, {"set_start_offset_max_s": 0.0},
+     {"set_start_offset_max_s": 0.01}, "Stem start offset is 0.01 s, above the limit of 0.00 s",
+     None),
+    ("sum_true_peak_max_dbtp", 0.0, {}, {**SET_BASE, "sum_true_peak_time_s": 30.0},
+     {"sum_true_peak_dbtp": 0.0}, {"sum_true_peak_dbtp": 0.01},
+     "True peak of the stem sum is 0.01 dBTP at 30.00 s, above the limit of 0.00 dBTP", 30.0),
+    ("sum_sample_peak_max_dbfs", 0.0, {}, {**SET_BASE, "sum_sample_peak_time_s": 2.0},
+     {"sum_sample_peak_dbfs": 0.0}, {"sum_sample_peak_dbfs": 0.01},
+     "Sample peak of the stem sum is 0.01 dBFS at 2.00 s, above the limit of 0.00 dBFS", 2.0),
+    ("null_residual_max_db", -60.0, {}, SET_BASE, {"null_residual_db": -60.0},
+     {"null_residual_db": -59.99}, "Null-test residual (mix minus stem sum, relative to the mix) "
+     "is -59.99 dB, above the limit of -60.00 dB", None),
+]  # fmt: skip
+
+
+def test_every_catalogue_limit_has_a_table_case():
+    assert sorted(c[0] for c in CASES) == sorted(d.key for d in CATALOGUE)
+
+
+@pytest.mark.parametrize("case", CASES, ids=[c[0] for c in CASES])
+@pytest.mark.parametrize("severity", [FAIL, WARN])
+def test_rule_at_limit_passes_just_past_fails(tmp_path, case, severity):
+    key, value, extra, base, at_limit, past, message, position = case
+    profile = one_limit_profile(tmp_path, key, value, severity, **extra)
+
+    ok = evaluate(m({**base, **at_limit}), profile)
+    assert ok.status == PASS, ok.flags
+    assert ok.flags == ()
+
+    bad = evaluate(m({**base, **at_limit, **past}), profile)
+    assert bad.status == severity
+    assert len(bad.flags) == 1
+    flag = bad.flags[0]
+    assert flag.rule == key
+    assert flag.severity == severity
+    assert flag.source == "test value"
+    assert message in flag.message
+    if position is None:
+        assert flag.position_s is None
+    else:
+        assert_allclose(flag.position_s, position, rtol=0, atol=1e-12)  # the position given
+
+
+MEASURED_CASES = [c for c in CASES if next(d for d in CATALOGUE if d.key == c[0]).kind != REQUIRED]
+
+
+@pytest.mark.parametrize("case", MEASURED_CASES, ids=[c[0] for c in MEASURED_CASES])
+def test_unmeasured_value_is_flagged_never_passed(tmp_path, case):
+    key, value, extra, base, at_limit, past, message, position = case
+    profile = one_limit_profile(tmp_path, key, value, "warn", **extra)
+    d = next(d for d in CATALOGUE if d.key == key)
+    if d.kind == "declared":  # a declared value with nothing measured to compare it to
+        values = {**base, **at_limit}
+        values[d.measure[1]] = None
+    elif d.none_means_ok:  # None means "no steep cutoff found"; a missing key is unmeasured
+        values = dict(base)
+    else:
+        values = {**base, **{k: None for k in at_limit}}
+    verdict = evaluate(m(values), profile)
+    assert verdict.status == WARN  # the limit's own severity
+    (flag,) = verdict.flags
+    assert flag.measured is None
+    assert "could not be measured" in flag.message
+
+
+def test_no_steep_cutoff_found_passes(tmp_path):
+    profile = one_limit_profile(tmp_path, "steep_cutoff_min_hz", 15000.0)
+    assert evaluate(m({"steep_cutoff_hz": None}), profile).status == PASS
+
+
+def test_silent_file_loudness_says_why(tmp_path):
+    profile = load_profile("ebu-r128")
+    values = {
+        "channels": 2,
+        "is_silent": True,
+        "integrated_lufs": None,
+        "integrated_note": "every block is below the -70 LUFS absolute gate",
+        "true_peak_dbtp": -math.inf,
+    }
+    verdict = evaluate(m(values), profile)
+    assert verdict.status == FAIL
+    flag = next(f for f in verdict.flags if f.rule == "integrated_target_lufs")
+    assert flag.message == (
+        "Integrated loudness could not be measured (every block is below the -70 LUFS absolute "
+        "gate); the limit (-23.0 LUFS +- 0.5 LU) was not checked."
+    )
+    assert flag.severity == FAIL
+    # -inf (digital silence) is below any maximum: the true-peak limit itself is met
+    assert not any(f.rule == "true_peak_max_dbtp" for f in verdict.flags)
+    assert verdict.gain.gain_to_target_db is None
+    assert "could not be measured" in verdict.gain.advice
+
+
+@pytest.mark.parametrize(
+    "dc, status, limit",
+    [(-60.0, PASS, None), (-59.99, WARN, -60.0), (-40.0, WARN, -60.0), (-39.99, FAIL, -40.0)],
+)
+def test_warn_value_gives_a_warning_band(tmp_path, dc, status, limit):
+    # common practice (standards notes): warn above 0.1 % FS (-60 dBFS), fail above 1 % (-40)
+    profile = one_limit_profile(tmp_path, "dc_offset_max_dbfs", -40.0, warn_value=-60.0)
+    verdict = evaluate(m({"dc_offset_dbfs": dc}), profile)
+    assert verdict.status == status
+    assert [f.limit for f in verdict.flags] == ([] if limit is None else [limit])
+
+
+def test_status_is_the_worst_flag_and_every_violation_is_flagged():
+    profile = load_profile("ebu-r128")
+    values = {
+        "channels": 2,
+        "sample_rate_hz": 44100,  # warn in ebu-r128
+        "integrated_lufs": -23.0,
+        "true_peak_dbtp": -0.5,  # fail
+        "clipped_runs": 0,
+        "nonfinite_samples": 0,
+        "dc_offset_dbfs": -80.0,
+        "silent_channels": [],
+    }
+    verdict = evaluate(m(values), profile)
+    assert verdict.status == FAIL
+    assert sorted(f.rule for f in verdict.flags) == ["sample_rates_hz", "true_peak_max_dbtp"]
+    assert evaluate(None, profile).status == ERROR
+
+
+def test_channel_rules_skip_mono_files(tmp_path):
+    profile = one_limit_profile(tmp_path, "correlation_min", 0.0)
+    assert evaluate(m({"channels": 1, "min_correlation": None}), profile).status == PASS
+
+
+def test_set_limits_and_file_limits_do_not_mix():
+    profile = load_profile("mastering-stems")
+    stem = {
+        "channels": 2,
+        "subtype": "PCM_24",
+        "sample_peak_dbfs": -6.0,
+        "clipped_runs": 0,
+        "over_full_scale_samples": 0,
+        "nonfinite_samples": 0,
+        "dc_offset_dbfs": -90.0,
+    }
+    assert evaluate(m(stem), profile).status == PASS  # no set_* limit reported unmeasured
+    the_set = {
+        "set_formats_match": True,
+        "set_length_mismatch_frames": 0,
+        "set_start_offset_max_s": 0.0,
+        "sum_sample_peak_dbfs": 0.5,
+        "sum_sample_peak_time_s": 12.0,
+        "sum_true_peak_dbtp": -0.2,
+        "null_residual_db": -130.0,
+    }
+    verdict = evaluate(the_set, profile)  # a plain mapping works too
+    assert verdict.status == FAIL
+    assert [(f.rule, f.position_s) for f in verdict.flags] == [("sum_sample_peak_max_dbfs", 12.0)]
+    assert verdict.gain is None
+
+
+# ---------------------------------------------------------------- gain advice
+
+
+def test_gain_advice_3_lu_above_target_plain_gain_enough():
+    # the issue's case: 3 LU above target, true peak -0.5 dBTP on a -1 dBTP spec
+    # (EBU R 128: -23 LUFS, -1 dBTP) -> -3 dB, predicted -3.5 dBTP, plain gain enough
+    gain = evaluate(
+        m({"channels": 2, "integrated_lufs": -20.0, "true_peak_dbtp": -0.5}),
+        load_profile("ebu-r128"),
+    ).gain
+    assert_allclose(gain.gain_to_target_db, -3.0, rtol=0, atol=1e-12)
+    assert_allclose(gain.predicted_true_peak_dbtp, -3.5, rtol=0, atol=1e-12)
+    assert gain.plain_gain_enough is True
+    assert gain.advice == (
+        "Apply -3.00 dB to reach -23.0 LUFS. Plain gain is enough (true peak becomes -3.50 dBTP)."
+    )
+
+
+def test_gain_advice_6_lu_below_target_needs_limiting():
+    # the issue's case: 6 LU below target, true peak -3 dBTP -> +6 dB, predicted +3 dBTP
+    gain = evaluate(
+        m({"channels": 2, "integrated_lufs": -29.0, "true_peak_dbtp": -3.0}),
+        load_profile("ebu-r128"),
+    ).gain
+    assert_allclose(gain.gain_to_target_db, 6.0, rtol=0, atol=1e-12)
+    assert_allclose(gain.predicted_true_peak_dbtp, 3.0, rtol=0, atol=1e-12)
+    assert gain.plain_gain_enough is False
+    assert "needs about 4.0 dB of true-peak limiting" in gain.advice  # +3 dBTP vs -1 dBTP
+    assert "Caution" not in gain.advice
+
+
+def test_gain_advice_reports_noise_floor_pushed_over_its_limit(tmp_path):
+    path = write_profile(
+        tmp_path,
+        'extends = "podcast-stereo"\n[levels]\n'
+        'noise_floor_max_dbfs = { value = -60.0, severity = "fail", source = "test value" }',
+    )
+    values = {
+        "channels": 2,
+        "integrated_lufs": -22.0,  # 6 LU below -16
+        "true_peak_dbtp": -10.0,
+        "noise_floor_dbfs": -64.0,  # the file itself meets -60 dBFS
+    }
+    verdict = evaluate(m(values), load_profile(str(path)))
+    assert not any(f.rule == "noise_floor_max_dbfs" for f in verdict.flags)
+    gain = verdict.gain
+    assert_allclose(gain.predicted_noise_floor_dbfs, -58.0, rtol=0, atol=1e-12)  # -64 + 6
+    assert gain.plain_gain_enough is False
+    assert "noise floor would rise to -58.0 dBFS, above the limit of -60.0 dBFS" in gain.advice
+
+
+def test_large_positive_gain_carries_a_listening_level_caution():
+    values = {"channels": 2, "integrated_lufs": -30.0, "true_peak_dbtp": -20.0}
+    gain = evaluate(m(values), load_profile("podcast-stereo")).gain
+    assert_allclose(gain.gain_to_target_db, 14.0, rtol=0, atol=1e-12)  # -16 - (-30)
+    assert gain.plain_gain_enough is True
+    assert "Caution: this raises the level by 14.0 dB; turn the monitoring down" in gain.advice
+
+
+def test_gain_advice_within_tolerance_and_without_target():
+    values = {"channels": 2, "integrated_lufs": -23.3, "true_peak_dbtp": -6.0}
+    gain = evaluate(m(values), load_profile("ebu-r128")).gain
+    assert gain.advice.startswith("Loudness is within tolerance; +0.30 dB would reach")
+    assert evaluate(m(values), load_profile("measure-only")).gain is None
+
+
+# ---------------------------------------------------------------- mono convention
+
+
+# BS.1770 weights one channel 1.0, so the same audio on two identical channels
+# reads 10 log10(2) = 3.01 LU higher (standards notes, "Mono", checked).
+MONO_19 = {"channels": 1, "integrated_lufs": -19.0, "integrated_dual_mono_lufs": -15.99}
+
+
+def test_mono_file_passes_dual_mono_profile_and_fails_single_channel_one(tmp_path):
+    dual = load_profile("podcast-stereo")  # -16 LUFS +- 1, mono judged as dual mono
+    assert dual.mono_loudness == "dual_mono"
+    single = load_profile(
+        str(
+            write_profile(
+                tmp_path, 'extends = "podcast-stereo"\n[loudness]\nmono_loudness = "single_channel"'
+            )
+        )
+    )
+    flags = lambda v: [f for f in v.flags if f.rule == "integrated_target_lufs"]  # noqa: E731
+    assert flags(evaluate(m(MONO_19), dual)) == []
+    (flag,) = flags(evaluate(m(MONO_19), single))
+    assert flag.measured == -19.0
+    assert "3.00 LU below the target of -16.00 LUFS" in flag.message
+    assert "(mono file, one channel)" in flag.message
+    # and the shipped mono profile (-19 LUFS, one channel) accepts the same file
+    assert flags(evaluate(m(MONO_19), load_profile("podcast-mono"))) == []
+
+
+def test_dual_mono_falls_back_to_plus_3_01_lu_when_not_measured():
+    values = {"channels": 1, "integrated_lufs": -20.0, "true_peak_dbtp": -6.0}
+    gain = evaluate(m(values), load_profile("podcast-stereo")).gain
+    # -16 - (-20 + 10 log10 2): BS.1770 power sum of two identical channels
+    assert_allclose(gain.gain_to_target_db, 4.0 - 10 * math.log10(2), rtol=0, atol=1e-12)
+
+
+def test_limit_key_names_say_their_direction_and_unit():
+    # house style: a max limit's key says _max, a min limit's _min, and units sit in the name
+    for d in CATALOGUE:
+        if d.kind in (MAX, MIN):
+            assert ("_max" in d.key) == (d.kind == MAX), d.key
+            assert ("_min" in d.key) == (d.kind == MIN), d.key
+        if d.unit in ("LUFS", "LU", "dBTP", "dBFS", "dB", "s", "Hz", "frames"):
+            assert d.key.endswith("_" + d.unit.lower()), d.key
