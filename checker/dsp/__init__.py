@@ -1,0 +1,1 @@
+"""Pure filter design: K-weighting biquads (kweighting.py)."""
