@@ -17,6 +17,8 @@ Kinds:
   no_cutoff_below  a steep cutoff, if found, must not lie below value
 
 Scope: "file" limits judge one file; "set" limits judge a stem set's values.
+``applies_if`` names a measured key that must be present for the limit to apply
+(the null test only when a reference mix was given).
 """
 
 from __future__ import annotations
@@ -83,6 +85,8 @@ class LimitDef:
     min_channels: int = 1  # the limit applies only to files with at least this many channels
     none_means_ok: bool = False  # None is a result ("no cutoff found"), not "unmeasured"
     item: str = "number"  # value type: number | int | str | bool (lists for one_of)
+    applies_if: str | None = None  # judged only when this measured key is present (not None)
+    detail: tuple[str, str] | None = None  # (measured key, label) listed in the message
 
 
 def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
@@ -202,8 +206,16 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("length_mismatch_max_frames", MAX, "set_length_mismatch_frames", "frames",
        "stem length mismatch", "stems", item="int", scope=SET,
        hint="re-export every stem over the same range"),
-    _d("start_offset_max_s", MAX, "set_start_offset_max_s", "s", "stem start offset",
-       "stems", scope=SET, hint="a stem slipped: re-export it from the session start"),
+    _d("start_offset_max_s", MAX, "set_start_offset_max_s", "s",
+       "spread of the stems' content starts", "stems", scope=SET,
+       hint="the stems start at different points (a late entry can be arrangement)"),
+    _d("slip_max_s", MAX, "set_slip_max_s", "s", "largest stem slip", "stems", scope=SET,
+       detail=("set_slipped_stems", "slipped"),
+       hint="a stem slipped against the others: re-export it from the session start"),
+    _d("sum_clipped_samples_max", MAX, "sum_clipped_samples", "",
+       "number of summed samples at or above full scale", "stems", item="int", scope=SET,
+       position="sum_first_clip_s",
+       hint="the stems clip when summed: lower every stem by the same amount"),
     _d("sum_true_peak_max_dbtp", MAX, "sum_true_peak_dbtp", "dBTP", "true peak of the stem sum",
        "stems", scope=SET, position="sum_true_peak_time_s",
        hint="the stems clip when summed: lower every stem by the same amount"),
@@ -212,6 +224,7 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="the stems clip when summed: lower every stem by the same amount"),
     _d("null_residual_max_db", MAX, "null_residual_db", "dB",
        "null-test residual (mix minus stem sum, relative to the mix)", "stems", scope=SET,
+       applies_if="set_mix_length_frames",
        hint="the stems do not rebuild the reference mix: check for missing or changed stems"),
 )
 # fmt: on

@@ -63,6 +63,8 @@ def evaluate(measurement: Any, profile: Profile, *, scope: str | None = None) ->
         channels = values.get("channels")
         if d.min_channels > 1 and isinstance(channels, int) and channels < d.min_channels:
             continue
+        if d.applies_if is not None and not _present(values.get(d.applies_if)):
+            continue
         flag = check_limit(lim, values, profile)
         if flag is not None:
             flags.append(flag)
@@ -87,6 +89,8 @@ def fmt(x: Any) -> str:
 
 
 def _with_unit(x: Any, unit: str) -> str:
+    if unit == "s" and isinstance(x, float) and 0.0 < abs(x) < 0.1:
+        return f"{x:.6f} s"  # sub-100 ms offsets: keep sample-level detail
     return f"{fmt(x)} {unit}" if unit else fmt(x)
 
 
@@ -177,9 +181,14 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
         limit, severity, level = lim.warn_value, "warn", "warning level"
     else:
         return None
+    detail = ""
+    if d.detail is not None and values.get(d.detail[0]):
+        items = values[d.detail[0]]
+        items = items if isinstance(items, list) else [items]
+        detail = f" ({d.detail[1]}: {', '.join(str(i) for i in items)})"
     msg = (
         f"{_cap(d.what)} is {_with_unit(m, d.unit)}{_at(pos, first)}, {word} the {level} of "
-        f"{_with_unit(limit, d.unit)}: {d.hint}."
+        f"{_with_unit(limit, d.unit)}{detail}: {d.hint}."
     )
     return _flag(lim, m, limit, msg, pos, severity)
 

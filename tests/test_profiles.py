@@ -149,7 +149,8 @@ def test_mastering_stems_format_and_set_limits():
     assert {"PCM_24", "FLOAT"} <= set(p.value("subtypes")) and "PCM_16" not in p.value("subtypes")
     assert p.integrated_target_lufs is None  # mastering sets the loudness
     for key in ("formats_must_match", "length_mismatch_max_frames", "sum_true_peak_max_dbtp",
-                "sum_sample_peak_max_dbfs", "null_residual_max_db", "start_offset_max_s"):  # fmt: skip
+                "sum_sample_peak_max_dbfs", "null_residual_max_db", "slip_max_s",
+                "sum_clipped_samples_max"):  # fmt: skip
         assert p.limit(key) is not None and p.limit(key).definition.scope == "set"
 
 

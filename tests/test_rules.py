@@ -166,15 +166,22 @@ CASES = [
      {"set_length_mismatch_frames": 1}, "Stem length mismatch is 1 frames, above the limit of "
      "0 frames", None),
     ("start_offset_max_s", 0.0, {}, SET_BASE, {"set_start_offset_max_s": 0.0},
-     {"set_start_offset_max_s": 0.01}, "Stem start offset is 0.01 s, above the limit of 0.00 s",
-     None),
+     {"set_start_offset_max_s": 12.0}, "Spread of the stems' content starts is 12.00 s, above "
+     "the limit of 0.00 s", None),
+    ("slip_max_s", 0.0, {}, {**SET_BASE, "set_slipped_stems": ["bass.wav"]},
+     {"set_slip_max_s": 0.0}, {"set_slip_max_s": 10 / 48000},
+     "Largest stem slip is 0.000208 s, above the limit of 0.00 s (slipped: bass.wav)", None),
+    ("sum_clipped_samples_max", 0, {}, {**SET_BASE, "sum_first_clip_s": 1.5},
+     {"sum_clipped_samples": 0}, {"sum_clipped_samples": 3}, "Number of summed samples at or "
+     "above full scale is 3 at 1.50 s, above the limit of 0", 1.5),
     ("sum_true_peak_max_dbtp", 0.0, {}, {**SET_BASE, "sum_true_peak_time_s": 30.0},
      {"sum_true_peak_dbtp": 0.0}, {"sum_true_peak_dbtp": 0.01},
      "True peak of the stem sum is 0.01 dBTP at 30.00 s, above the limit of 0.00 dBTP", 30.0),
     ("sum_sample_peak_max_dbfs", 0.0, {}, {**SET_BASE, "sum_sample_peak_time_s": 2.0},
      {"sum_sample_peak_dbfs": 0.0}, {"sum_sample_peak_dbfs": 0.01},
      "Sample peak of the stem sum is 0.01 dBFS at 2.00 s, above the limit of 0.00 dBFS", 2.0),
-    ("null_residual_max_db", -60.0, {}, SET_BASE, {"null_residual_db": -60.0},
+    ("null_residual_max_db", -60.0, {}, {**SET_BASE, "set_mix_length_frames": 480000},
+     {"null_residual_db": -60.0},
      {"null_residual_db": -59.99}, "Null-test residual (mix minus stem sum, relative to the mix) "
      "is -59.99 dB, above the limit of -60.00 dB", None),
 ]  # fmt: skip
@@ -308,16 +315,29 @@ def test_set_limits_and_file_limits_do_not_mix():
     the_set = {
         "set_formats_match": True,
         "set_length_mismatch_frames": 0,
-        "set_start_offset_max_s": 0.0,
+        "set_start_offset_max_s": 20.0,  # arrangement: not limited by mastering-stems
+        "set_slip_max_s": 0.0,
+        "sum_clipped_samples": 4,
+        "sum_first_clip_s": 7.25,
         "sum_sample_peak_dbfs": 0.5,
         "sum_sample_peak_time_s": 12.0,
         "sum_true_peak_dbtp": -0.2,
-        "null_residual_db": -130.0,
+        "set_mix_length_frames": None,  # no reference mix given: no null test
+        "null_residual_db": None,
+        "null_note": "no reference mix given",
     }
     verdict = evaluate(the_set, profile)  # a plain mapping works too
     assert verdict.status == FAIL
-    assert [(f.rule, f.position_s) for f in verdict.flags] == [("sum_sample_peak_max_dbfs", 12.0)]
+    assert [(f.rule, f.severity, f.position_s) for f in verdict.flags] == [
+        ("sum_clipped_samples_max", FAIL, 7.25),
+        ("sum_sample_peak_max_dbfs", FAIL, 12.0),
+    ]
     assert verdict.gain is None
+    # with a mix given, a null test that could not run is flagged, not passed
+    with_mix = {**the_set, "set_mix_length_frames": 480000, "null_note": "the mix and the stems "
+                "differ in sample rate: no null test"}  # fmt: skip
+    flag = next(f for f in evaluate(with_mix, profile).flags if f.rule == "null_residual_max_db")
+    assert flag.measured is None and "differ in sample rate" in flag.message
 
 
 # ---------------------------------------------------------------- gain advice
