@@ -143,3 +143,63 @@ def parse_layout(text: str, channels: int) -> Layout:
             f"(expected {channels})"
         )
     return Layout(labels, "given")
+
+
+#: WAVE_FORMAT_EXTENSIBLE speaker bits (standards notes, WAV details), in bit order.
+#: "Back" and "side" pairs: when both are present (7.1, 0x63F) the back pair is the
+#: rear pair at about 150 deg (weight 1.0) and the side pair sits at 90 deg (1.41).
+#: When only one pair is present (5.1 as 0x3F or 0x60F, quad 0x33) that pair is the
+#: 5.1 surround pair Ls/Rs at 110 deg (1.41), as in the default 5.1 map above.
+MASK_BITS: tuple[str, ...] = (
+    "FL", "FR", "FC", "LFE", "BL", "BR", "FLC", "FRC", "BC", "SL", "SR",
+    "TC", "TFL", "TFC", "TFR", "TBL", "TBC", "TBR",
+)  # fmt: skip
+_MASK_LABELS = {
+    "FL": "L", "FR": "R", "FC": "C", "LFE": "LFE", "FLC": "Lc", "FRC": "Rc", "BC": "Cs",
+    "TC": "Tc", "TFL": "Tfl", "TFC": "Tfc", "TFR": "Tfr", "TBL": "Tbl", "TBC": "Tbc",
+    "TBR": "Tbr",
+}  # fmt: skip
+_KNOWN_MASK = (1 << len(MASK_BITS)) - 1
+
+
+def mask_problem(mask: int, channels: int) -> str | None:
+    """Why ``mask`` cannot give the layout of a ``channels``-channel file (None if it can).
+
+    A zero mask (no positions given) is not a problem, just no information.
+    """
+    if mask == 0:
+        return None
+    if mask & ~_KNOWN_MASK:
+        return (
+            f"channel mask 0x{mask:X} has bits outside the known speaker positions "
+            f"(expected within 0x{_KNOWN_MASK:X}): layout assumed from the channel count"
+        )
+    bits = mask.bit_count()
+    if bits != channels:
+        return (
+            f"channel mask 0x{mask:X} names {bits} speaker positions for {channels} channels: "
+            "layout assumed from the channel count"
+        )
+    return None
+
+
+def layout_from_mask(mask: int, channels: int) -> Layout | None:
+    """The layout a WAVE_FORMAT_EXTENSIBLE channel mask gives, or None.
+
+    Channels are interleaved in ascending bit order. None when the mask is 0,
+    has unknown bits, or names a different number of positions than there are
+    channels (see :func:`mask_problem` for the finding text).
+    """
+    if mask <= 0 or channels < 1 or mask_problem(mask, channels) is not None:
+        return None
+    names = [name for bit, name in enumerate(MASK_BITS) if mask >> bit & 1]
+    has_back = "BL" in names or "BR" in names
+    has_side = "SL" in names or "SR" in names
+    pair = {
+        "BL": "Lrs" if has_side else "Ls",
+        "BR": "Rrs" if has_side else "Rs",
+        "SL": "Lss" if has_back else "Ls",
+        "SR": "Rss" if has_back else "Rs",
+    }
+    labels = tuple(_MASK_LABELS.get(name) or pair[name] for name in names)
+    return Layout(labels, "mask")

@@ -8,11 +8,13 @@ from typing import Any
 
 from checker import __version__
 from checker.audio import StreamInfo, read_blocks
-from checker.layout import Layout, default_layout, parse_layout
+from checker.errors import AudioReadError
+from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
 from checker.timeline import Timeline, build_timeline
+from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
 ENGINE_VERSION = f"{__version__}+engine1"
@@ -60,9 +62,16 @@ class Measurement:
         return cls(path=path, values=d, timeline=timeline, findings=findings, engine_version=engine)
 
 
-def resolve_layout(info: StreamInfo, options: MeasureOptions) -> Layout:
+def resolve_layout(
+    info: StreamInfo, options: MeasureOptions, header: WavHeader | None = None
+) -> Layout:
+    """Given layout, else the WAV channel mask (when usable), else the default map."""
     if options.layout:
         return parse_layout(options.layout, info.channels)
+    if header is not None and header.channel_mask:
+        layout = layout_from_mask(header.channel_mask, info.channels)
+        if layout is not None:
+            return layout
     return default_layout(info.channels)
 
 
@@ -97,8 +106,12 @@ def stream_findings(info: StreamInfo, frames: int) -> list[str]:
 def measure(path: str, options: MeasureOptions | None = None) -> Measurement:
     """Measure one file in a single streaming pass. Raises AudioReadError."""
     options = options or MeasureOptions()
-    info, blocks = read_blocks(str(path), options.block_frames)
-    layout = resolve_layout(info, options)
+    try:
+        info, blocks = read_blocks(str(path), options.block_frames)
+    except AudioReadError as exc:  # say what the WAV header reader saw, if anything
+        raise type(exc)(with_header_findings(str(path), str(exc))) from None
+    header = read_wav_header(str(path))  # header only (seeks past the audio); None if not WAV
+    layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
     frames = 0
     for block in blocks:
@@ -106,7 +119,9 @@ def measure(path: str, options: MeasureOptions | None = None) -> Measurement:
         for meter in meters:
             meter.feed(block)
     values = stream_values(info, frames, layout)
+    values.update(header.values() if header else empty_values())
     findings = stream_findings(info, frames)
+    findings.extend(header.findings if header else ())
     series: dict[str, Any] = {}
     for meter in meters:
         result = meter.result()
