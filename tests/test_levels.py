@@ -95,16 +95,21 @@ def clipped_sine(seconds: float, rate: int = 48_000) -> np.ndarray:
 
 def test_effective_bits_of_16_bit_audio_in_pcm24_and_float(tmp_path):
     rng = np.random.default_rng(1)
-    x16 = np.round(rng.uniform(-0.5, 0.5, (24_000, 2)) * 32768) / 32768
+    k = rng.integers(-32768, 32768, (24_000, 2))  # full-range 16-bit codes
+    k[0] = [-32768, 32767]
     for subtype in ("PCM_24", "FLOAT", "PCM_16"):
-        path = write(tmp_path / f"a_{subtype}.wav", x16, subtype=subtype)
+        if subtype == "FLOAT":
+            data = k / 32768  # exact in float32
+        else:  # int32 codes k << 16: libsndfile keeps the top 16 or 24 bits exactly
+            data = (k << 16).astype(np.int32)
+        path = write(tmp_path / f"a_{subtype}.wav", data, subtype=subtype)
         info, blocks = read_blocks(str(path), 5_000)
         meter = LevelsMeter(info, default_layout(2), MeasureOptions())
         for block in blocks:
             meter.feed(block)
         r = meter.result()
-        # By construction: every sample is k / 32768 with |k| <= 2**14, a 16-bit code;
-        # in PCM_24 it is stored as k << 8, leaving the low 8 bits zero (issue 3 example).
+        # By construction every sample is a 16-bit code k; in PCM_24 it is stored as
+        # k << 8, leaving the low 8 bits zero (the issue's example), in FLOAT as k / 32768.
         assert r.effective_bits == 16, subtype
         assert r.effective_bits_channel == [16, 16], subtype
 

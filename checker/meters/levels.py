@@ -115,14 +115,20 @@ def trailing_zero_bits(code: int) -> int:
     return (v & -v).bit_length() - 1
 
 
-def float_grid_bits(x: np.ndarray) -> np.ndarray:
-    """Per column: smallest N with every sample on the grid k / 2**(N-1); 0 for all-zero."""
-    mant, exp = np.frexp(x)
+def channels_first(x: np.ndarray) -> np.ndarray:
+    """A contiguous (channels, frames) copy: numpy reduces along the last axis far
+    faster than across a short first axis (about 10x for stereo)."""
+    return np.ascontiguousarray(x.T)
+
+
+def float_grid_bits(xt: np.ndarray) -> np.ndarray:
+    """Per row (channel): smallest N with every sample on the grid k / 2**(N-1); 0 if all zero."""
+    mant, exp = np.frexp(xt)
     m = (mant * 2.0**53).astype(np.int64)  # exact: |mant| in [0.5, 1)
     low = m & -m  # lowest set bit (a power of two), 0 for zero samples
     tz = np.frexp(low.astype(np.float64))[1] - 1
     bits = np.where(m != 0, np.maximum(54 - exp - tz, 1), 0)
-    return bits.max(axis=0, initial=0)
+    return bits.max(axis=1, initial=0)
 
 
 @dataclass(frozen=True)
@@ -195,36 +201,38 @@ class LevelsMeter:
         n = block.frames
         if n == 0:
             return
-        x = block.x
         raw = block.raw
+        x = block.x
         if raw is None and self.info.is_float:
             x = self._count_nonfinite(x, block.start)
         elif raw is None:
             x = finite_x(block)
-        ax = np.abs(x)
-        m = ax.max(axis=0)
+        xt = channels_first(x)
+        ax = np.abs(xt)
+        m = ax.max(axis=1)
         better = m > self.peak
         if better.any():
-            idx = ax.argmax(axis=0)
+            idx = ax.argmax(axis=1)
             self.peak = np.where(better, m, self.peak)
             self.peak_frame = np.where(better, idx + block.start, self.peak_frame)
         if raw is not None:
-            sums = raw.sum(axis=0, dtype=np.int64)
+            rt = channels_first(raw)
+            sums = rt.sum(axis=1, dtype=np.int64)
             self.dc_int = [a + int(b) for a, b in zip(self.dc_int, sums, strict=True)]
-            self.code_or |= np.bitwise_or.reduce(raw, axis=0)
-            self._clip(raw == self.clip_hi, raw == self.clip_lo, block.start)
+            self.code_or |= np.bitwise_or.reduce(rt, axis=1)
+            self._clip(rt == self.clip_hi, rt == self.clip_lo, block.start)
         else:
-            self.dc_float += x.sum(axis=0)
+            self.dc_float += xt.sum(axis=1)
             if self.info.is_float:
-                self._clip(x >= 1.0, x <= -1.0, block.start)
+                self._clip(xt >= 1.0, xt <= -1.0, block.start)
                 self.overs += int(np.count_nonzero(ax > 1.0))
                 active = self.grid_bits <= MAX_GRID_BITS
                 if active.any():
-                    bits = float_grid_bits(x[:, active])
+                    bits = float_grid_bits(xt[active])
                     self.grid_bits[active] = np.maximum(self.grid_bits[active], bits)
-        x2 = x * x
-        self.sumsq += x2.sum(axis=0)
-        self._segments(x2, ~np.any(x != 0.0, axis=1))
+        x2 = xt * xt
+        self.sumsq += x2.sum(axis=1)
+        self._segments(x2, ~np.any(xt != 0.0, axis=0))
         self.frames += n
 
     def _count_nonfinite(self, x: np.ndarray, start: int) -> np.ndarray:
@@ -243,15 +251,16 @@ class LevelsMeter:
         return np.where(finite, x, 0.0)
 
     def _clip(self, hi: np.ndarray, lo: np.ndarray, start: int) -> None:
+        """hi, lo: (channels, frames) masks of samples at positive / negative full scale."""
         minimum = self.options.clip_run_min_samples
-        any_hi = hi.any(axis=0)
-        any_lo = lo.any(axis=0)
+        any_hi = hi.any(axis=1)
+        any_lo = lo.any(axis=1)
         found = []
         for c, state in enumerate(self.clip_open):
             for s, (mask, any_) in enumerate(((hi, any_hi), (lo, any_lo))):
                 if not any_[c] and state[s] is None:
                     continue
-                starts, ends, state[s] = find_runs(mask[:, c], start, state[s])
+                starts, ends, state[s] = find_runs(mask[c], start, state[s])
                 long = starts[(ends - starts) >= minimum]
                 if long.size:
                     self.clip_counts[c] += long.size
@@ -262,10 +271,11 @@ class LevelsMeter:
             )
 
     def _segments(self, x2: np.ndarray, zero: np.ndarray) -> None:
+        """x2: (channels, frames) squares; zero: (frames,) all-channel digital zero."""
         seg = self.seg_len
-        n = x2.shape[0]
+        ch, n = x2.shape
         first = min(n, seg - self.part_frames)
-        self.part_sum = self.part_sum + x2[:first].sum(axis=0)
+        self.part_sum = self.part_sum + x2[:, :first].sum(axis=1)
         self.part_zeros += int(np.count_nonzero(zero[:first]))
         self.part_frames += first
         if self.part_frames == seg:
@@ -274,16 +284,14 @@ class LevelsMeter:
             self.part_sum = np.zeros_like(self.part_sum)
             self.part_zeros = 0
             self.part_frames = 0
-        rest = n - first
-        full = rest // seg
+        full = (n - first) // seg
         if full:
             body = slice(first, first + full * seg)
-            ch = x2.shape[1]
-            self.seg_sums.append(x2[body].reshape(full, seg, ch).sum(axis=1))
+            self.seg_sums.append(x2[:, body].reshape(ch, full, seg).sum(axis=2).T)
             self.seg_zeros.append(zero[body].reshape(full, seg).sum(axis=1))
         tail = slice(first + full * seg, n)
         if tail.stop > tail.start:
-            self.part_sum = self.part_sum + x2[tail].sum(axis=0)
+            self.part_sum = self.part_sum + x2[:, tail].sum(axis=1)
             self.part_zeros += int(np.count_nonzero(zero[tail]))
             self.part_frames += tail.stop - tail.start
 

@@ -29,7 +29,7 @@ import numpy as np
 from checker.audio import Block, StreamInfo
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
-from checker.meters.levels import find_runs, finite_x, keep_first
+from checker.meters.levels import channels_first, find_runs, finite_x, keep_first
 from checker.units import db_to_amplitude
 
 
@@ -69,8 +69,7 @@ class SilenceMeter:
         n = block.frames
         if n == 0:
             return
-        x = finite_x(block)
-        level = np.abs(x).max(axis=1)
+        level = np.abs(channels_first(finite_x(block))).max(axis=0)
         start = block.start
         loud = np.flatnonzero(level >= self.threshold)
         if loud.size:
