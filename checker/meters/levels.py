@@ -184,10 +184,7 @@ class LevelsMeter:
         self.code_or = np.zeros(ch, dtype=np.int32)
         self.grid_bits = np.zeros(ch, dtype=np.int64)
         # Non-finite samples.
-        self.nan_count = 0
-        self.inf_count = 0
-        self.nan_first: int | None = None
-        self.inf_first: int | None = None
+        self.nonfinite: dict[str, list[int]] = {}  # "NaN"/"Inf" -> [count, first frame]
         # 100 ms segments for the noise floor.
         self.seg_len = max(1, round(self.rate * SEGMENT_S))
         self.seg_sums: list[np.ndarray] = []
@@ -240,14 +237,11 @@ class LevelsMeter:
         if finite.all():
             return x
         nan = np.isnan(x)
-        inf = ~finite & ~nan
-        for mask, kind in ((nan, "nan"), (inf, "inf")):
+        for kind, mask in (("NaN", nan), ("Inf", ~finite & ~nan)):
             count = int(np.count_nonzero(mask))
-            if count == 0:
-                continue
-            setattr(self, f"{kind}_count", getattr(self, f"{kind}_count") + count)
-            if getattr(self, f"{kind}_first") is None:
-                setattr(self, f"{kind}_first", start + int(np.flatnonzero(mask.any(axis=1))[0]))
+            if count:
+                first = start + int(np.flatnonzero(mask.any(axis=1))[0])
+                self.nonfinite.setdefault(kind, [0, first])[0] += count
         return np.where(finite, x, 0.0)
 
     def _clip(self, hi: np.ndarray, lo: np.ndarray, start: int) -> None:
@@ -354,7 +348,7 @@ class LevelsMeter:
             noise_floor_note=floor_note,
             footroom_db=footroom,
             footroom_note=footroom_note,
-            nonfinite_samples=self.nan_count + self.inf_count,
+            nonfinite_samples=sum(c for c, _ in self.nonfinite.values()),
             findings=self._findings(),
         )
 
@@ -399,14 +393,8 @@ class LevelsMeter:
         return power_to_db(p), None
 
     def _findings(self) -> tuple[str, ...]:
-        out = []
-        for name, count, first in (
-            ("NaN", self.nan_count, self.nan_first),
-            ("Inf", self.inf_count, self.inf_first),
-        ):
-            if count:
-                out.append(
-                    f"{name} samples: {count}, first at {first / self.rate:.3f} s "
-                    "(treated as 0 by the sample-domain meters)"
-                )
-        return tuple(out)
+        return tuple(
+            f"{kind} samples: {count}, first at {first / self.rate:.3f} s "
+            "(treated as 0 by the sample-domain meters)"
+            for kind, (count, first) in sorted(self.nonfinite.items(), reverse=True)
+        )
