@@ -24,10 +24,6 @@ field; changing a value requires a new ``source``.
 
 from __future__ import annotations
 
-import difflib
-import math
-import re
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -39,24 +35,20 @@ from checker.limitdefs import (
     DECLARED,
     MAX,
     MIN,
-    MUST_BE_TRUE,
     NO_CUTOFF_BELOW,
     ONE_OF,
-    REQUIRED,
-    SECTIONS,
     TARGET,
-    UNIT_SUFFIXES,
     LimitDef,
+)
+from checker.profile_syntax import (  # noqa: F401  (re-exported for callers)
+    MONO_CONVENTIONS,
+    OFF,
+    SEVERITIES,
+    err,
+    parse_layer,
 )
 
 BUILTIN_DIR = Path(__file__).parent / "profiles"
-META_KEYS = ("name", "title", "version", "description", "extends")
-SEVERITIES = ("fail", "warn")
-MONO_CONVENTIONS = ("single_channel", "dual_mono")
-#: Settings that are not limits: (section, key) -> allowed values.
-SETTINGS = {("loudness", "mono_loudness"): MONO_CONVENTIONS}
-OFF = "off"
-_FIELDS = ("value", "severity", "source", "tolerance_lu", "warn_value")
 
 
 @dataclass(frozen=True)
@@ -148,169 +140,8 @@ class Profile:
         ]
 
 
-# ---------------------------------------------------------------- helpers
-
-
 def _num(x: Any) -> str:
     return f"{float(x):.1f}" if isinstance(x, float) else str(x)
-
-
-def _show(v: Any) -> str:
-    if isinstance(v, str):
-        return f'"{v}"'
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, dict):
-        return "{" + ", ".join(f"{k} = {_show(x)}" for k, x in v.items()) + "}"
-    if isinstance(v, list):
-        return "[" + ", ".join(_show(x) for x in v) + "]"
-    return str(v)
-
-
-def _err(where: str, key: str, got: Any, expected: str) -> ProfileError:
-    return ProfileError(f"{where}: {key} = {_show(got)} (expected {expected})")
-
-
-def _is_number(v: Any) -> bool:
-    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
-
-
-def _unit_word(d: LimitDef) -> str:
-    return f"a number in {d.unit}" if d.unit else "a number"
-
-
-# ---------------------------------------------------------------- reading one file
-
-
-def _read_toml(path: Path) -> dict[str, Any]:
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise ProfileError(f"{path}: cannot read profile ({exc.strerror or exc})") from None
-    except UnicodeDecodeError:
-        raise ProfileError(f"{path}: not UTF-8 text (expected a TOML profile)") from None
-    try:
-        return tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        m = re.search(r"line (\d+)", str(exc))
-        line = f", line {m.group(1)}" if m else ""
-        raise ProfileError(f"{path}{line}: TOML syntax error: {exc}") from None
-
-
-def _unknown_key(where: str, section: str, key: str, got: Any) -> ProfileError:
-    dotted = f"{section}.{key}"
-    d = BY_KEY.get(key)
-    if d is not None:
-        return _err(where, dotted, got, f"this limit in section [{d.section}]")
-    stem, _, suffix = key.rpartition("_")
-    if suffix in UNIT_SUFFIXES:
-        for other in BY_KEY.values():
-            o_stem, _, o_suffix = other.key.rpartition("_")
-            if o_stem == stem and o_suffix != suffix:
-                return _err(
-                    where, dotted, got, f"{other.key}: this limit is in {other.unit or 'a count'}"
-                )
-    close = difflib.get_close_matches(key, list(BY_KEY), n=1)
-    hint = f"; did you mean {close[0]}?" if close else ""
-    return _err(where, dotted, got, f"a known limit key (see `deliverycheck profiles show`){hint}")
-
-
-def _check_entry(where: str, section: str, key: str, entry: Any) -> dict[str, Any] | str:
-    """Validate the fields present in one limit entry (completeness is checked after merging)."""
-    dotted = f"{section}.{key}"
-    if entry == OFF:
-        return OFF
-    if not isinstance(entry, dict):
-        expected = '{ value = ..., severity = "fail"|"warn", source = "..." } or "off"'
-        raise _err(where, dotted, entry, expected)
-    d = BY_KEY[key]
-    allowed = {"value", "severity", "source"}
-    if d.kind == TARGET:
-        allowed.add("tolerance_lu")
-    if d.kind in (MAX, MIN):
-        allowed.add("warn_value")
-    for f in entry:
-        if f not in allowed:
-            raise _err(where, f"{dotted}.{f}", entry[f], "one of " + ", ".join(sorted(allowed)))
-    if "value" in entry:
-        _check_value(where, f"{dotted}.value", d, entry["value"])
-    if "severity" in entry and entry["severity"] not in SEVERITIES:
-        raise _err(where, f"{dotted}.severity", entry["severity"], '"fail" or "warn"')
-    if "source" in entry and (not isinstance(entry["source"], str) or not entry["source"].strip()):
-        raise _err(
-            where,
-            f"{dotted}.source",
-            entry["source"],
-            'the standard and clause, or "common practice"',
-        )
-    for f in ("tolerance_lu", "warn_value"):
-        if f in entry and not _is_number(entry[f]):
-            raise _err(where, f"{dotted}.{f}", entry[f], _unit_word(d))
-    if "tolerance_lu" in entry and entry["tolerance_lu"] < 0:
-        raise _err(where, f"{dotted}.tolerance_lu", entry["tolerance_lu"], "a number >= 0 in LU")
-    return dict(entry)
-
-
-def _check_value(where: str, dotted: str, d: LimitDef, v: Any) -> None:
-    if d.kind in (ALLOWED, REQUIRED, MUST_BE_TRUE):
-        if not isinstance(v, bool):
-            raise _err(where, dotted, v, "true or false")
-    elif d.kind == ONE_OF:
-        want = int if d.item == "int" else str
-        ok = (
-            isinstance(v, list)
-            and v
-            and all(isinstance(x, want) and not isinstance(x, bool) for x in v)
-        )
-        if not ok:
-            words = "integers" if want is int else "strings"
-            raise _err(
-                where,
-                dotted,
-                v,
-                f"a non-empty list of {words}" + (f" in {d.unit}" if d.unit else ""),
-            )
-    else:
-        if not _is_number(v):
-            raise _err(where, dotted, v, _unit_word(d))
-        if d.item == "int" and (not isinstance(v, int) or v < 0):
-            raise _err(where, dotted, v, "a whole number >= 0")
-        if d.kind == DECLARED and v < 0:
-            raise _err(where, dotted, v, f"a tolerance >= 0 in {d.unit}")
-
-
-def _parse_layer(path: Path) -> dict[str, Any]:
-    """One file -> {"meta": {...}, "settings": {...}, "limits": {key: entry | OFF}}."""
-    raw = _read_toml(path)
-    where = str(path)
-    meta: dict[str, Any] = {}
-    settings: dict[str, Any] = {}
-    limits: dict[str, Any] = {}
-    for top, v in raw.items():
-        if top in META_KEYS:
-            if not isinstance(v, str) or not v.strip():
-                raise _err(where, top, v, "a non-empty string")
-            meta[top] = v
-        elif top in SECTIONS:
-            if not isinstance(v, dict):
-                raise _err(where, top, v, f"a table [{top}]")
-            for key, entry in v.items():
-                if (top, key) in SETTINGS:
-                    if entry not in SETTINGS[(top, key)]:
-                        choices = " or ".join(f'"{c}"' for c in SETTINGS[(top, key)])
-                        raise _err(where, f"{top}.{key}", entry, choices)
-                    settings[key] = entry
-                elif key in BY_KEY and BY_KEY[key].section == top:
-                    limits[key] = _check_entry(where, top, key, entry)
-                else:
-                    raise _unknown_key(where, top, key, entry)
-        else:
-            close = difflib.get_close_matches(top, list(META_KEYS) + list(SECTIONS), n=1)
-            hint = f"; did you mean {close[0]}?" if close else ""
-            raise _err(where, top, v, "one of " + ", ".join(META_KEYS + SECTIONS) + hint)
-    if "name" not in meta:
-        raise ProfileError(f'{where}: name is missing (expected name = "...")')
-    return {"meta": meta, "settings": settings, "limits": limits}
 
 
 # ---------------------------------------------------------------- resolving
@@ -340,7 +171,7 @@ def _resolve(path: Path, seen: tuple[Path, ...]) -> tuple[dict, dict, dict, tupl
         raise ProfileError(
             f"{path}: extends forms a cycle: {chain} (expected a chain ending in a profile without extends)"
         )
-    layer = _parse_layer(path)
+    layer = parse_layer(path)
     meta, settings, limits = {}, {}, {}
     lineage: tuple[str, ...] = ()
     parent = layer["meta"].get("extends")
@@ -369,15 +200,15 @@ def _resolve(path: Path, seen: tuple[Path, ...]) -> tuple[dict, dict, dict, tupl
         merged = {**(inherited or {}), **entry}
         for f in ("value", "severity", "source"):
             if f not in merged:
-                raise _err(str(path), f"{section}.{key}", entry, f"a {f} field")
+                raise err(str(path), f"{section}.{key}", entry, f"a {f} field")
         d = BY_KEY[key]
         if d.kind == TARGET and "tolerance_lu" not in merged:
-            raise _err(str(path), f"{section}.{key}", entry, "a tolerance_lu field")
+            raise err(str(path), f"{section}.{key}", entry, "a tolerance_lu field")
         w = merged.get("warn_value")
         if w is not None:
             stricter = w < merged["value"] if d.kind == MAX else w > merged["value"]
             if not stricter or merged["severity"] != "fail":
-                raise _err(
+                raise err(
                     str(path),
                     f"{section}.{key}.warn_value",
                     w,
@@ -412,16 +243,12 @@ def _load_path(path: Path) -> Profile:
         title=meta.get("title", meta["name"]),
         version=meta.get("version", "1"),
         description=meta.get("description", ""),
-        extends=_own_extends(path),
+        extends=meta.get("extends"),
         path=str(path),
         limits=ordered,
         mono_loudness=settings.get("mono_loudness", "single_channel"),
         lineage=lineage,
     )
-
-
-def _own_extends(path: Path) -> str | None:
-    return _parse_layer(path)["meta"].get("extends")
 
 
 def _float_or_none(x: Any) -> float | None:

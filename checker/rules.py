@@ -89,6 +89,8 @@ def fmt(x: Any) -> str:
 
 
 def _with_unit(x: Any, unit: str) -> str:
+    if isinstance(x, float) and x == -math.inf:
+        return f"-inf {unit} (digital silence)".replace("  ", " ")
     if unit == "s" and isinstance(x, float) and 0.0 < abs(x) < 0.1:
         return f"{x:.6f} s"  # sub-100 ms offsets: keep sample-level detail
     return f"{fmt(x)} {unit}" if unit else fmt(x)
@@ -226,13 +228,12 @@ def _check_one_of(lim: Limit, values, profile) -> Flag | None:
 
 
 def _channel_words(items: list) -> str:
-    parts = []
-    for it in items:
-        if isinstance(it, list):
-            parts.append(" and ".join(str(int(i) + 1) for i in it[:2]))
-        else:
-            parts.append(str(int(it) + 1))
-    return "; ".join(parts)
+    """[1] -> "channel 2"; [0, 1] -> "channels 1, 2"; [[0, 1]] -> "channels 1 and 2" (from 1)."""
+    if all(isinstance(it, list) for it in items):
+        pairs = "; ".join(" and ".join(str(int(i) + 1) for i in it[:2]) for it in items)
+        return f"channels {pairs}"
+    flat = [str(int(it) + 1) for it in items if not isinstance(it, list)]
+    return ("channel " if len(flat) == 1 else "channels ") + ", ".join(flat)
 
 
 def _check_allowed(lim: Limit, values, profile) -> Flag | None:
@@ -242,7 +243,7 @@ def _check_allowed(lim: Limit, values, profile) -> Flag | None:
         return unmeasured(lim, values, d.measure)
     if lim.value or not m:
         return None
-    msg = f"{_cap(d.what)} found (channels {_channel_words(list(m))}, counting from 1): {d.hint}."
+    msg = f"{_cap(d.what)} found ({_channel_words(list(m))}, counting from 1): {d.hint}."
     return _flag(lim, m, "none", msg)
 
 

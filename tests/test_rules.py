@@ -127,7 +127,7 @@ CASES = [
     ("correlation_min", 0.0, {}, STEREO, {"min_correlation": 0.0}, {"min_correlation": -0.01},
      "Lowest inter-channel correlation is -0.01, below the limit of 0.00", None),
     ("silent_channels_allowed", False, {}, STEREO, {"silent_channels": []},
-     {"silent_channels": [1]}, "Silent channels found (channels 2, counting from 1)", None),
+     {"silent_channels": [1]}, "Silent channels found (channel 2, counting from 1)", None),
     ("identical_channels_allowed", False, {}, STEREO, {"identical_channels": []},
      {"identical_channels": [[0, 1]]}, "Identical channels found (channels 1 and 2, counting "
      "from 1)", None),
@@ -235,6 +235,15 @@ def test_unmeasured_value_is_flagged_never_passed(tmp_path, case):
     (flag,) = verdict.flags
     assert flag.measured is None
     assert "could not be measured" in flag.message
+
+
+def test_channel_lists_and_silence_read_plainly(tmp_path):
+    profile = one_limit_profile(tmp_path, "silent_channels_allowed", False)
+    (flag,) = evaluate(m({"channels": 3, "silent_channels": [0, 2]}), profile).flags
+    assert "(channels 1, 3, counting from 1)" in flag.message
+    profile = one_limit_profile(tmp_path, "rms_min_dbfs", -23.0)
+    (flag,) = evaluate(m({"rms_dbfs": -math.inf}), profile).flags
+    assert flag.message.startswith("RMS level is -inf dBFS (digital silence), below the limit")
 
 
 def test_no_steep_cutoff_found_passes(tmp_path):

@@ -1,0 +1,200 @@
+"""Reading and validating one profile file (syntax, keys, types, units).
+
+Every error names the file, the key, the value found and what was expected:
+``<file>: <section>.<key> = <value> (expected <constraint>)``; TOML syntax
+errors give the line. Merging parents and children lives in checker.profiles.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+import tomllib
+from pathlib import Path
+from typing import Any
+
+from checker.errors import ProfileError
+from checker.limitdefs import (
+    ALLOWED,
+    BY_KEY,
+    DECLARED,
+    MAX,
+    MIN,
+    MUST_BE_TRUE,
+    ONE_OF,
+    REQUIRED,
+    SECTIONS,
+    TARGET,
+    UNIT_SUFFIXES,
+    LimitDef,
+)
+
+META_KEYS = ("name", "title", "version", "description", "extends")
+SEVERITIES = ("fail", "warn")
+MONO_CONVENTIONS = ("single_channel", "dual_mono")
+#: Settings that are not limits: (section, key) -> allowed values.
+SETTINGS = {("loudness", "mono_loudness"): MONO_CONVENTIONS}
+#: An entry that drops a limit inherited from the parent.
+OFF = "off"
+
+
+# ---------------------------------------------------------------- helpers
+
+
+def show_value(v: Any) -> str:
+    if isinstance(v, str):
+        return f'"{v}"'
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, dict):
+        return "{" + ", ".join(f"{k} = {show_value(x)}" for k, x in v.items()) + "}"
+    if isinstance(v, list):
+        return "[" + ", ".join(show_value(x) for x in v) + "]"
+    return str(v)
+
+
+def err(where: str, key: str, got: Any, expected: str) -> ProfileError:
+    return ProfileError(f"{where}: {key} = {show_value(got)} (expected {expected})")
+
+
+def is_number(v: Any) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _unit_word(d: LimitDef) -> str:
+    return f"a number in {d.unit}" if d.unit else "a number"
+
+
+# ---------------------------------------------------------------- reading one file
+
+
+def _read_toml(path: Path) -> dict[str, Any]:
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise ProfileError(f"{path}: cannot read profile ({exc.strerror or exc})") from None
+    except UnicodeDecodeError:
+        raise ProfileError(f"{path}: not UTF-8 text (expected a TOML profile)") from None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        m = re.search(r"line (\d+)", str(exc))
+        line = f", line {m.group(1)}" if m else ""
+        raise ProfileError(f"{path}{line}: TOML syntax error: {exc}") from None
+
+
+def _unknown_key(where: str, section: str, key: str, got: Any) -> ProfileError:
+    dotted = f"{section}.{key}"
+    d = BY_KEY.get(key)
+    if d is not None:
+        return err(where, dotted, got, f"this limit in section [{d.section}]")
+    stem, _, suffix = key.rpartition("_")
+    if suffix in UNIT_SUFFIXES:
+        for other in BY_KEY.values():
+            o_stem, _, o_suffix = other.key.rpartition("_")
+            if o_stem == stem and o_suffix != suffix:
+                return err(
+                    where, dotted, got, f"{other.key}: this limit is in {other.unit or 'a count'}"
+                )
+    close = difflib.get_close_matches(key, list(BY_KEY), n=1)
+    hint = f"; did you mean {close[0]}?" if close else ""
+    return err(where, dotted, got, f"a known limit key (see `deliverycheck profiles show`){hint}")
+
+
+def _check_entry(where: str, section: str, key: str, entry: Any) -> dict[str, Any] | str:
+    """Validate the fields present in one limit entry (completeness is checked after merging)."""
+    dotted = f"{section}.{key}"
+    if entry == OFF:
+        return OFF
+    if not isinstance(entry, dict):
+        expected = '{ value = ..., severity = "fail"|"warn", source = "..." } or "off"'
+        raise err(where, dotted, entry, expected)
+    d = BY_KEY[key]
+    allowed = {"value", "severity", "source"}
+    if d.kind == TARGET:
+        allowed.add("tolerance_lu")
+    if d.kind in (MAX, MIN):
+        allowed.add("warn_value")
+    for f in entry:
+        if f not in allowed:
+            raise err(where, f"{dotted}.{f}", entry[f], "one of " + ", ".join(sorted(allowed)))
+    if "value" in entry:
+        _check_value(where, f"{dotted}.value", d, entry["value"])
+    if "severity" in entry and entry["severity"] not in SEVERITIES:
+        raise err(where, f"{dotted}.severity", entry["severity"], '"fail" or "warn"')
+    if "source" in entry and (not isinstance(entry["source"], str) or not entry["source"].strip()):
+        raise err(
+            where,
+            f"{dotted}.source",
+            entry["source"],
+            'the standard and clause, or "common practice"',
+        )
+    for f in ("tolerance_lu", "warn_value"):
+        if f in entry and not is_number(entry[f]):
+            raise err(where, f"{dotted}.{f}", entry[f], _unit_word(d))
+    if "tolerance_lu" in entry and entry["tolerance_lu"] < 0:
+        raise err(where, f"{dotted}.tolerance_lu", entry["tolerance_lu"], "a number >= 0 in LU")
+    return dict(entry)
+
+
+def _check_value(where: str, dotted: str, d: LimitDef, v: Any) -> None:
+    if d.kind in (ALLOWED, REQUIRED, MUST_BE_TRUE):
+        if not isinstance(v, bool):
+            raise err(where, dotted, v, "true or false")
+    elif d.kind == ONE_OF:
+        want = int if d.item == "int" else str
+        ok = (
+            isinstance(v, list)
+            and v
+            and all(isinstance(x, want) and not isinstance(x, bool) for x in v)
+        )
+        if not ok:
+            words = "integers" if want is int else "strings"
+            raise err(
+                where,
+                dotted,
+                v,
+                f"a non-empty list of {words}" + (f" in {d.unit}" if d.unit else ""),
+            )
+    else:
+        if not is_number(v):
+            raise err(where, dotted, v, _unit_word(d))
+        if d.item == "int" and (not isinstance(v, int) or v < 0):
+            raise err(where, dotted, v, "a whole number >= 0")
+        if d.kind == DECLARED and v < 0:
+            raise err(where, dotted, v, f"a tolerance >= 0 in {d.unit}")
+
+
+def parse_layer(path: Path) -> dict[str, Any]:
+    """One file -> {"meta": {...}, "settings": {...}, "limits": {key: entry | OFF}}."""
+    raw = _read_toml(path)
+    where = str(path)
+    meta: dict[str, Any] = {}
+    settings: dict[str, Any] = {}
+    limits: dict[str, Any] = {}
+    for top, v in raw.items():
+        if top in META_KEYS:
+            if not isinstance(v, str) or not v.strip():
+                raise err(where, top, v, "a non-empty string")
+            meta[top] = v
+        elif top in SECTIONS:
+            if not isinstance(v, dict):
+                raise err(where, top, v, f"a table [{top}]")
+            for key, entry in v.items():
+                if (top, key) in SETTINGS:
+                    if entry not in SETTINGS[(top, key)]:
+                        choices = " or ".join(f'"{c}"' for c in SETTINGS[(top, key)])
+                        raise err(where, f"{top}.{key}", entry, choices)
+                    settings[key] = entry
+                elif key in BY_KEY and BY_KEY[key].section == top:
+                    limits[key] = _check_entry(where, top, key, entry)
+                else:
+                    raise _unknown_key(where, top, key, entry)
+        else:
+            close = difflib.get_close_matches(top, list(META_KEYS) + list(SECTIONS), n=1)
+            hint = f"; did you mean {close[0]}?" if close else ""
+            raise err(where, top, v, "one of " + ", ".join(META_KEYS + SECTIONS) + hint)
+    if "name" not in meta:
+        raise ProfileError(f'{where}: name is missing (expected name = "...")')
+    return {"meta": meta, "settings": settings, "limits": limits}
