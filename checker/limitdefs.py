@@ -18,7 +18,10 @@ Kinds:
 
 Scope: "file" limits judge one file; "set" limits judge a stem set's values.
 ``applies_if`` names a measured key that must be present for the limit to apply
-(the null test only when a reference mix was given).
+(the null test only when a reference mix was given). ``none_means_ok``: None is
+a result, not a failure to measure (no steep cutoff found; too little broadband
+content to judge the bandwidth, which the meter's note says), while a key
+missing from the values is still "could not be measured".
 """
 
 from __future__ import annotations
@@ -87,6 +90,7 @@ class LimitDef:
     item: str = "number"  # value type: number | int | str | bool (lists for one_of)
     applies_if: str | None = None  # judged only when this measured key is present (not None)
     detail: tuple[str, str] | None = None  # (measured key, label) listed in the message
+    lead: str | None = None  # measured key of a plain-words note that opens the message
 
 
 def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
@@ -174,10 +178,11 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="one channel is the inverse of another: fix the polarity"),
     # bandwidth
     _d("bandwidth_fraction_min", MIN, "bandwidth_fraction", "", "effective bandwidth "
-       "(fraction of the Nyquist frequency)", "bandwidth",
-       hint="the content stops well below the Nyquist frequency: probably upsampled"),
+       "(fraction of the Nyquist frequency)", "bandwidth", none_means_ok=True,
+       lead="bandwidth_note",
+       hint="the content stops well below the Nyquist frequency"),
     _d("steep_cutoff_min_hz", NO_CUTOFF_BELOW, "steep_cutoff_hz", "Hz", "steep cutoff",
-       "bandwidth", none_means_ok=True,
+       "bandwidth", none_means_ok=True, lead="bandwidth_note",
        hint="a brick-wall cutoff is typical of a lossy source or a resampler"),
     # metadata (Broadcast WAV bext, EBU Tech 3285 v2)
     _d("declared_integrated_tolerance_lu", DECLARED,

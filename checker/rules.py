@@ -172,6 +172,8 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
     key = d.measure
     m = values.get(key)
     if not _present(m):
+        if d.none_means_ok and key in values:
+            return None
         return unmeasured(lim, values, key)
     sign = 1.0 if d.kind == MAX else -1.0
     word = "above" if d.kind == MAX else "below"
@@ -189,10 +191,16 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
         items = items if isinstance(items, list) else [items]
         detail = f" ({d.detail[1]}: {', '.join(str(i) for i in items)})"
     msg = (
-        f"{_cap(d.what)} is {_with_unit(m, d.unit)}{_at(pos, first)}, {word} the {level} of "
+        f"{_lead(values, d.lead)}{d.what if d.lead else _cap(d.what)} is "
+        f"{_with_unit(m, d.unit)}{_at(pos, first)}, {word} the {level} of "
         f"{_with_unit(limit, d.unit)}{detail}: {d.hint}."
     )
     return _flag(lim, m, limit, msg, pos, severity)
+
+
+def _lead(values: Mapping[str, Any], key: str | None) -> str:
+    note = values.get(key) if key else None
+    return f"{_cap(note)}; " if isinstance(note, str) and note else ("" if not key else "The ")
 
 
 def _check_target(lim: Limit, values, profile) -> Flag | None:
@@ -298,10 +306,8 @@ def _check_cutoff(lim: Limit, values, profile) -> Flag | None:
     m = values.get(d.measure)
     if not _present(m) or m >= lim.value - EPS:
         return None  # None: no steep cutoff found
-    rate = values.get("sample_rate_hz")
-    in_file = f" in a {rate / 1000:g} kHz file" if isinstance(rate, (int, float)) else ""
     msg = (
-        f"Content ends in a steep cutoff near {m / 1000:.1f} kHz{in_file}, below "
+        f"{_lead(values, d.lead)}{d.what} at {m / 1000:.1f} kHz is below the limit of "
         f"{lim.value / 1000:g} kHz: {d.hint}."
     )
     return _flag(lim, m, lim.value, msg)

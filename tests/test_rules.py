@@ -135,11 +135,11 @@ CASES = [
      {"inverted_channels": [[0, 1]]}, "Polarity-inverted channel pairs found (channels 1 and 2",
      None),
     ("bandwidth_fraction_min", 0.8, {}, {}, {"bandwidth_fraction": 0.8},
-     {"bandwidth_fraction": 0.79}, "Effective bandwidth (fraction of the Nyquist frequency) is "
-     "0.79, below the limit of 0.80", None),
-    ("steep_cutoff_min_hz", 15000.0, {}, {"sample_rate_hz": 48000},
-     {"steep_cutoff_hz": 15000.0}, {"steep_cutoff_hz": 14999.0},
-     "Content ends in a steep cutoff near 15.0 kHz in a 48 kHz file, below 15 kHz", None),
+     {"bandwidth_fraction": 0.79}, "The effective bandwidth (fraction of the Nyquist "
+     "frequency) is 0.79, below the limit of 0.80", None),
+    ("steep_cutoff_min_hz", 15000.0, {}, {}, {"steep_cutoff_hz": 15000.0},
+     {"steep_cutoff_hz": 14999.0}, "The steep cutoff at 15.0 kHz is below the limit of 15 kHz",
+     None),
     ("declared_integrated_tolerance_lu", 1.0, {}, {"integrated_lufs": -23.0},
      {"declared_integrated_lufs": -24.0}, {"declared_integrated_lufs": -24.01},
      "Declared integrated loudness is -24.01 LUFS but -23.00 LUFS was measured "
@@ -249,6 +249,21 @@ def test_channel_lists_and_silence_read_plainly(tmp_path):
 def test_no_steep_cutoff_found_passes(tmp_path):
     profile = one_limit_profile(tmp_path, "steep_cutoff_min_hz", 15000.0)
     assert evaluate(m({"steep_cutoff_hz": None}), profile).status == PASS
+
+
+def test_bandwidth_flags_lead_with_the_meters_words_and_cannot_judge_is_not_flagged(tmp_path):
+    note = "content ends near 11.0 kHz in a 48 kHz file: probably upsampled from 22.05 kHz"
+    profile = one_limit_profile(tmp_path, "bandwidth_fraction_min", 0.8)
+    values = {"bandwidth_fraction": 11000 / 24000, "bandwidth_note": note}
+    (flag,) = evaluate(m(values), profile).flags
+    assert flag.message == (
+        "Content ends near 11.0 kHz in a 48 kHz file: probably upsampled from 22.05 kHz; "
+        "effective bandwidth (fraction of the Nyquist frequency) is 0.46, below the limit of "
+        "0.80: the content stops well below the Nyquist frequency."
+    )
+    # issue 10: files without enough broadband content say so (the note) rather than flag
+    tone = {"bandwidth_fraction": None, "bandwidth_note": "cannot judge: tonal content"}
+    assert evaluate(m(tone), profile).status == PASS
 
 
 def test_silent_file_loudness_says_why(tmp_path):
