@@ -255,6 +255,24 @@ def test_an_unreadable_stem_is_an_error_not_a_crash(tmp_path):
     assert row.path == str(folder) and "b.wav" in row.error
 
 
+def test_a_stem_that_fails_mid_decode_is_an_error_and_the_rest_is_checked(tmp_path):
+    folder = tmp_path / "set"
+    folder.mkdir()
+    x = noise(3.0, RATE, 2, seed=6) * 0.1
+    write(folder / "a.wav", x, RATE, subtype="PCM_24")
+    sf.write(str(folder / "b.flac"), x, RATE)
+    data = (folder / "b.flac").read_bytes()
+    half = len(data) // 2  # overwrite the middle: the FLAC decoder loses sync part-way
+    (folder / "b.flac").write_bytes(data[:half] + b"\x00" * 5000 + data[half + 5000 :])
+    paths = [str(folder / "a.wav"), str(folder / "b.flac")]
+    r = check_stem_set(paths, None, MeasureOptions(block_frames=10_000))
+    assert len(r.errors) == 1 and "b.flac" in r.errors[0] and "decoding failed" in r.errors[0]
+    a_frames, b_frames = r.values["set_length_frames"]
+    assert a_frames == 3 * RATE and 0 < b_frames < 3 * RATE  # what was decoded before the failure
+    assert r.values["set_length_mismatch_frames"] == a_frames - b_frames
+    assert r.values["sum_sample_peak_dbfs"] is not None
+
+
 # -------------------------------------------------------------------- the sum
 
 
