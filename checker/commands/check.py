@@ -1,0 +1,180 @@
+"""``deliverycheck check PATH... --profile NAME|FILE``: check a batch against a profile."""
+
+from __future__ import annotations
+
+import argparse
+import shlex
+import sys
+from pathlib import Path
+from typing import TextIO
+
+from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, UsageError
+from checker.progress import Progress
+from checker.verdict import ERROR, FAIL, PASS, STATUS_ORDER, WARN
+from checker.workers import DEFAULT_MEMORY_MB
+
+DEFAULT_OUT = "deliverycheck-report"
+#: How many problem files the summary lists.
+WORST_SHOWN = 10
+EXIT_INTERRUPTED = 130
+
+
+def add_parser(sub) -> argparse.ArgumentParser:
+    p = sub.add_parser(
+        "check",
+        help="check a batch of files against a delivery profile",
+        description=(
+            "Find the audio files under each PATH, measure each once, judge it against the "
+            "profile, and write the reports and the results store to --out. Files already "
+            "measured (same path, size and modification time) are not read again, so running "
+            "the same command after an interruption resumes the batch."
+        ),
+    )
+    p.add_argument("paths", nargs="+", metavar="PATH", help="audio files or folders")
+    p.add_argument("--profile", required=True, metavar="NAME|FILE", help="delivery profile")
+    p.add_argument(
+        "--out", default=DEFAULT_OUT, metavar="DIR", help=f"output folder (default: {DEFAULT_OUT})"
+    )
+    p.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: one per core)")
+    p.add_argument("--fresh", action="store_true", help="measure every file again (ignore store)")
+    p.add_argument("--quiet", action="store_true", help="no progress line")
+    p.add_argument(
+        "--cluster",
+        metavar="ADDRESS",
+        help="measure on a Dask scheduler (tcp://host:8786) or local:N for N local workers",
+    )
+    p.add_argument(
+        "--timeout-s",
+        type=float,
+        metavar="S",
+        help="per-file time limit in seconds (default: 120 s plus the file's duration)",
+    )
+    p.add_argument(
+        "--worker-memory-mb",
+        type=int,
+        default=DEFAULT_MEMORY_MB,
+        metavar="MB",
+        help=f"memory ceiling per worker process (default: {DEFAULT_MEMORY_MB}; 0 = none)",
+    )
+    return p
+
+
+def exit_code(results) -> int:
+    statuses = {r.status for r in results}
+    if ERROR in statuses:
+        return EXIT_UNCHECKED
+    if FAIL in statuses:
+        return EXIT_FAILED
+    return EXIT_OK
+
+
+def _write_reports(out_dir: Path, run, results) -> dict[str, Path]:
+    try:  # TEMPORARY stopgap until checker.report lands
+        from checker.report import write_reports
+    except ImportError:
+        return _stopgap_csv(out_dir, results)
+    return write_reports(out_dir, run, results)
+
+
+def _stopgap_csv(out_dir: Path, results) -> dict[str, Path]:  # TEMPORARY
+    import os
+
+    import pandas as pd
+
+    from checker.serial import json_safe
+
+    rows = []
+    for r in results:
+        row = {"path": r.path, "status": r.status, "error": r.error}
+        if r.measurement:
+            row.update(json_safe(r.measurement.values))
+        if r.verdict and r.verdict.flags:
+            row["flags"] = "; ".join(f.message for f in r.verdict.flags)
+        rows.append(row)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    path = out_dir / "report.csv"
+    tmp = out_dir / ".report.csv.tmp"
+    pd.DataFrame(rows).to_csv(tmp, index=False, lineterminator="\n")
+    os.replace(tmp, path)
+    return {"csv": path}
+
+
+def _first_problem(result) -> str:
+    if result.error:
+        prefix = f"{result.path}: "
+        return result.error[len(prefix) :] if result.error.startswith(prefix) else result.error
+    if result.verdict and result.verdict.flags:
+        flags = sorted(result.verdict.flags, key=lambda f: STATUS_ORDER.get(f.severity, 9))
+        return flags[0].message
+    return ""
+
+
+def _one_line(text: str, width: int = 110) -> str:
+    text = " ".join(str(text).split())
+    return text if len(text) <= width else text[: width - 3] + "..."
+
+
+def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> list[str]:
+    counts = {s: 0 for s in (PASS, WARN, FAIL, ERROR)}
+    for r in results:
+        counts[r.status] = counts.get(r.status, 0) + 1
+    lines = [
+        f"profile {run.profile_name}: {len(results)} files: "
+        + ", ".join(f"{counts[s]} {s}" for s in (PASS, WARN, FAIL, ERROR))
+    ]
+    worst = [r for r in results if r.status in (ERROR, FAIL, WARN)]
+    worst.sort(key=lambda r: (STATUS_ORDER.get(r.status, 9), r.path))
+    if worst:
+        lines.append("worst:")
+        for r in worst[:WORST_SHOWN]:
+            lines.append(_one_line(f"  {r.status:<5} {r.path}: {_first_problem(r)}"))
+        if len(worst) > WORST_SHOWN:
+            lines.append(f"  ... and {len(worst) - WORST_SHOWN} more (see the report)")
+    for note in notes:
+        lines.append(_one_line(f"note: {note}"))
+    for name, path in paths.items():
+        lines.append(f"{name}: {path}")
+    return lines
+
+
+def run(args, out: TextIO, err: TextIO) -> int:
+    from checker.batch import Interrupted, run_batch
+    from checker.profiles import load_profile
+
+    if args.jobs is not None and args.jobs < 1:
+        raise UsageError(f"--jobs: jobs = {args.jobs} (expected >= 1)")
+    if args.worker_memory_mb is not None and args.worker_memory_mb < 0:
+        raise UsageError(f"--worker-memory-mb: {args.worker_memory_mb} (expected >= 0)")
+    profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    out_dir = Path(args.out)
+    notes: list[str] = []
+    progress = Progress(err, quiet=args.quiet)
+    try:
+        run_info, results = run_batch(
+            args.paths,
+            profile,
+            out_dir,
+            jobs=args.jobs,
+            fresh=args.fresh,
+            cluster=args.cluster,
+            timeout_s=args.timeout_s,
+            progress=progress,
+            memory_mb=args.worker_memory_mb or None,
+            on_note=notes.append,
+        )
+    except Interrupted as exc:
+        again = " ".join(shlex.quote(a) for a in ["deliverycheck", *sys.argv[1:]])
+        if not sys.argv[1:] or sys.argv[1] != "check":
+            again = "the same deliverycheck check command"
+        print(
+            f"deliverycheck: interrupted: {exc.done} of {exc.total} files finished and kept in "
+            f"{out_dir / 'results.sqlite'}; no report written.",
+            file=err,
+        )
+        print(f"to resume, run again: {again}", file=err)
+        return EXIT_INTERRUPTED
+    written = _write_reports(out_dir, run_info, results)
+    written = {"store": out_dir / "results.sqlite", **written}
+    for line in summary_lines(run_info, results, written, notes):
+        print(line, file=out)
+    return exit_code(results)

@@ -1,0 +1,341 @@
+"""The results store: one SQLite file (standard library, WAL mode) per output folder.
+
+It keeps each file's measurement keyed by the file's identity (resolved path,
+size, modification time in ns) plus the engine version and the measurement
+options that change values, so a later run (resumed after a crash, or against
+another profile) reads no audio for files already measured. It also keeps
+per-file errors, each run and each verdict.
+
+Only the parent process writes. Every finished file is committed at once, so
+a killed run loses at most the files in flight; UNIQUE keys and upserts mean
+nothing is ever stored twice. ``attempts`` counts how often a file was
+measured (tests use it to show that a resumed run re-read nothing).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+from dataclasses import dataclass, replace
+from datetime import UTC, datetime
+from pathlib import Path
+
+from checker.errors import StoreError
+from checker.measure import Measurement
+from checker.results import FileResult, RunInfo
+from checker.serial import dumps, from_json_safe
+from checker.timeline import Timeline
+from checker.verdict import Verdict
+
+SCHEMA_VERSION = 1
+STORE_NAME = "results.sqlite"
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (
+    key TEXT PRIMARY KEY,
+    value TEXT NOT NULL
+);
+CREATE TABLE IF NOT EXISTS measurements (
+    id INTEGER PRIMARY KEY,
+    path TEXT NOT NULL,
+    size_bytes INTEGER NOT NULL,
+    mtime_ns INTEGER NOT NULL,
+    engine_version TEXT NOT NULL,
+    options_key TEXT NOT NULL,
+    measurement_json TEXT NOT NULL,
+    timeline_json TEXT,
+    measured_at TEXT NOT NULL,
+    attempts INTEGER NOT NULL DEFAULT 1,
+    UNIQUE (path, size_bytes, mtime_ns, engine_version, options_key)
+);
+CREATE TABLE IF NOT EXISTS errors (
+    id INTEGER PRIMARY KEY,
+    path TEXT NOT NULL,
+    size_bytes INTEGER NOT NULL,
+    mtime_ns INTEGER NOT NULL,
+    engine_version TEXT NOT NULL,
+    options_key TEXT NOT NULL,
+    message TEXT NOT NULL,
+    retry INTEGER NOT NULL,
+    failed_at TEXT NOT NULL,
+    attempts INTEGER NOT NULL DEFAULT 1,
+    UNIQUE (path, size_bytes, mtime_ns, engine_version, options_key)
+);
+CREATE TABLE IF NOT EXISTS runs (
+    run_id TEXT PRIMARY KEY,
+    started_at TEXT NOT NULL,
+    finished_at TEXT,
+    profile_name TEXT NOT NULL,
+    run_json TEXT NOT NULL
+);
+CREATE TABLE IF NOT EXISTS verdicts (
+    run_id TEXT NOT NULL REFERENCES runs(run_id),
+    path TEXT NOT NULL,
+    status TEXT NOT NULL,
+    verdict_json TEXT,
+    error TEXT,
+    PRIMARY KEY (run_id, path)
+);
+"""
+
+
+@dataclass(frozen=True)
+class FileIdentity:
+    """Who a file is, for caching: its resolved path, size and modification time."""
+
+    path: str
+    size_bytes: int
+    mtime_ns: int
+
+    @classmethod
+    def of(cls, path: str) -> FileIdentity:
+        """Raises OSError when the file cannot be stat'ed (vanished, no permission)."""
+        real = os.path.realpath(path)
+        st = os.stat(real)
+        return cls(real, st.st_size, st.st_mtime_ns)
+
+
+def _now() -> str:
+    return datetime.now(UTC).isoformat(timespec="seconds")
+
+
+class Store:
+    """SQLite results store. Use as a context manager or call close()."""
+
+    def __init__(self, path: str | Path):
+        self.path = Path(path)
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            self.db = sqlite3.connect(str(self.path), timeout=30.0, isolation_level=None)
+        except (OSError, sqlite3.Error) as exc:
+            raise StoreError(f"{self.path}: cannot open the results store ({exc})") from None
+        try:
+            self.db.execute("PRAGMA journal_mode=WAL")
+            # In WAL mode NORMAL is safe against a killed process; only a power
+            # cut may lose the last commits (never corrupt the file).
+            self.db.execute("PRAGMA synchronous=NORMAL")
+            self.db.execute("PRAGMA foreign_keys=ON")
+            self._init_schema()
+        except sqlite3.DatabaseError as exc:
+            self.db.close()
+            raise StoreError(
+                f"{self.path}: not a usable results store ({exc}) "
+                "(expected a deliverycheck SQLite file; move it away or use another --out)"
+            ) from None
+
+    def _init_schema(self) -> None:
+        found = self.schema_version()
+        if found is not None and found > SCHEMA_VERSION:
+            raise StoreError(
+                f"{self.path}: schema_version = {found} "
+                f"(expected <= {SCHEMA_VERSION}; written by a newer deliverycheck)"
+            )
+        with self._tx():
+            for statement in _SCHEMA.split(";"):
+                if statement.strip():
+                    self.db.execute(statement)
+            self.db.execute(
+                "INSERT INTO meta(key, value) VALUES ('schema_version', ?) "
+                "ON CONFLICT(key) DO NOTHING",
+                (str(SCHEMA_VERSION),),
+            )
+
+    def schema_version(self) -> int | None:
+        row = self.db.execute(
+            "SELECT name FROM sqlite_master WHERE type='table' AND name='meta'"
+        ).fetchone()
+        if row is None:
+            return None
+        row = self.db.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+        if row is None:
+            return None
+        try:
+            return int(row[0])
+        except ValueError:
+            raise StoreError(
+                f"{self.path}: schema_version = {row[0]!r} (expected an integer)"
+            ) from None
+
+    def _tx(self):
+        db = self.db
+
+        class _Tx:
+            def __enter__(self):
+                db.execute("BEGIN IMMEDIATE")
+
+            def __exit__(self, exc_type, exc, tb):
+                db.execute("COMMIT" if exc_type is None else "ROLLBACK")
+                return False
+
+        return _Tx()
+
+    def close(self) -> None:
+        self.db.close()
+
+    def __enter__(self) -> Store:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # -- measurements and errors -------------------------------------------------
+
+    def get_measurement(
+        self, ident: FileIdentity, engine_version: str, options_key: str
+    ) -> Measurement | None:
+        row = self.db.execute(
+            "SELECT measurement_json, timeline_json FROM measurements WHERE path=? AND "
+            "size_bytes=? AND mtime_ns=? AND engine_version=? AND options_key=?",
+            (ident.path, ident.size_bytes, ident.mtime_ns, engine_version, options_key),
+        ).fetchone()
+        if row is None:
+            return None
+        m = Measurement.from_dict(from_json_safe(json.loads(row[0])))
+        timeline = Timeline.from_dict(from_json_safe(json.loads(row[1]))) if row[1] else None
+        return replace(m, timeline=timeline)
+
+    def put_measurement(
+        self, ident: FileIdentity, options_key: str, measurement: Measurement
+    ) -> None:
+        """Store (or replace, counting the attempt) one measurement; committed at once."""
+        timeline = measurement.timeline.to_dict() if measurement.timeline else None
+        with self._tx():
+            self.db.execute(
+                "INSERT INTO measurements(path, size_bytes, mtime_ns, engine_version, "
+                "options_key, measurement_json, timeline_json, measured_at) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
+                "ON CONFLICT(path, size_bytes, mtime_ns, engine_version, options_key) DO UPDATE "
+                "SET measurement_json=excluded.measurement_json, "
+                "timeline_json=excluded.timeline_json, measured_at=excluded.measured_at, "
+                "attempts=attempts + 1",
+                (
+                    ident.path,
+                    ident.size_bytes,
+                    ident.mtime_ns,
+                    measurement.engine_version,
+                    options_key,
+                    dumps(measurement.to_dict(timeline=False)),
+                    dumps(timeline) if timeline is not None else None,
+                    _now(),
+                ),
+            )
+            self._delete_error(ident, measurement.engine_version, options_key)
+
+    def get_error(self, ident: FileIdentity, engine_version: str, options_key: str) -> str | None:
+        """A stored error that is not worth retrying (the same bytes fail the same way)."""
+        row = self.db.execute(
+            "SELECT message FROM errors WHERE path=? AND size_bytes=? AND mtime_ns=? AND "
+            "engine_version=? AND options_key=? AND retry=0",
+            (ident.path, ident.size_bytes, ident.mtime_ns, engine_version, options_key),
+        ).fetchone()
+        return row[0] if row else None
+
+    def put_error(
+        self,
+        ident: FileIdentity,
+        engine_version: str,
+        options_key: str,
+        message: str,
+        retry: bool,
+    ) -> None:
+        """Store a per-file error. ``retry``: a timeout or crash, tried again next run."""
+        with self._tx():
+            self.db.execute(
+                "INSERT INTO errors(path, size_bytes, mtime_ns, engine_version, options_key, "
+                "message, retry, failed_at) VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
+                "ON CONFLICT(path, size_bytes, mtime_ns, engine_version, options_key) DO UPDATE "
+                "SET message=excluded.message, retry=excluded.retry, "
+                "failed_at=excluded.failed_at, attempts=attempts + 1",
+                (
+                    ident.path,
+                    ident.size_bytes,
+                    ident.mtime_ns,
+                    engine_version,
+                    options_key,
+                    message,
+                    int(retry),
+                    _now(),
+                ),
+            )
+
+    def _delete_error(self, ident: FileIdentity, engine_version: str, options_key: str) -> None:
+        self.db.execute(
+            "DELETE FROM errors WHERE path=? AND size_bytes=? AND mtime_ns=? AND "
+            "engine_version=? AND options_key=?",
+            (ident.path, ident.size_bytes, ident.mtime_ns, engine_version, options_key),
+        )
+
+    # -- runs and verdicts -------------------------------------------------------
+
+    def start_run(self, run: RunInfo) -> None:
+        with self._tx():
+            self.db.execute(
+                "INSERT INTO runs(run_id, started_at, finished_at, profile_name, run_json) "
+                "VALUES (?, ?, ?, ?, ?)",
+                (run.run_id, run.started_at, run.finished_at, run.profile_name, _run_json(run)),
+            )
+
+    def finish_run(self, run: RunInfo) -> None:
+        with self._tx():
+            self.db.execute(
+                "UPDATE runs SET finished_at=?, run_json=? WHERE run_id=?",
+                (run.finished_at, _run_json(run), run.run_id),
+            )
+
+    def put_result(self, run_id: str, result: FileResult) -> None:
+        with self._tx():
+            self.db.execute(
+                "INSERT INTO verdicts(run_id, path, status, verdict_json, error) "
+                "VALUES (?, ?, ?, ?, ?) ON CONFLICT(run_id, path) DO UPDATE SET "
+                "status=excluded.status, verdict_json=excluded.verdict_json, "
+                "error=excluded.error",
+                (
+                    run_id,
+                    result.path,
+                    result.status,
+                    dumps(result.verdict.to_dict()) if result.verdict else None,
+                    result.error,
+                ),
+            )
+
+    def run_results(self, run_id: str) -> list[tuple[str, str, Verdict | None, str | None]]:
+        rows = self.db.execute(
+            "SELECT path, status, verdict_json, error FROM verdicts WHERE run_id=? ORDER BY path",
+            (run_id,),
+        ).fetchall()
+        return [
+            (p, s, Verdict.from_dict(from_json_safe(json.loads(v))) if v else None, e)
+            for p, s, v, e in rows
+        ]
+
+    def runs(self) -> list[RunInfo]:
+        rows = self.db.execute("SELECT run_json FROM runs ORDER BY started_at, run_id").fetchall()
+        out = []
+        for (text,) in rows:
+            d = from_json_safe(json.loads(text))
+            d["inputs"] = tuple(d.get("inputs", ()))
+            d["profile_limits"] = tuple(d.get("profile_limits", ()))
+            out.append(RunInfo(**d))
+        return out
+
+    def measurement_attempts(self) -> dict[str, int]:
+        """Resolved path -> how many times it was measured (all identities summed)."""
+        rows = self.db.execute(
+            "SELECT path, SUM(attempts) FROM measurements GROUP BY path"
+        ).fetchall()
+        return {p: int(n) for p, n in rows}
+
+    def counts(self) -> dict[str, int]:
+        return {
+            table: self.db.execute(f"SELECT COUNT(*) FROM {table}").fetchone()[0]
+            for table in ("measurements", "errors", "runs", "verdicts")
+        }
+
+
+def _run_json(run: RunInfo) -> str:
+    return dumps(run.to_dict())
+
+
+def open_store(out_dir: str | Path) -> Store:
+    return Store(Path(out_dir) / STORE_NAME)

@@ -1,0 +1,259 @@
+"""Batch runner: discovery, the worker pool's fault isolation, the cache, and Dask.
+
+Files are tiny generated WAVs (1-2 s). The measuring function can be swapped
+(``measure_fn``) for one that hangs, crashes its process or allocates too much
+on chosen files, to show that each of those becomes one error row and the rest
+of the batch is measured. These doubles must live at module level so worker
+processes can import them.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import time
+
+import numpy as np
+import pytest
+from signals import sine, write
+
+from checker.batch import Interrupted, run_batch
+from checker.discover import discover
+from checker.measure import measure
+from checker.store import open_store
+from checker.verdict import ERROR, FAIL, PASS, Verdict
+
+# -- helpers -----------------------------------------------------------------------------
+
+
+class StubProfile:
+    """Just what run_batch reads from a profile (the real one: checker.profiles)."""
+
+    name = "stub"
+    title = "stub profile for batch plumbing tests"
+    true_peak_ceiling_dbtp = None
+
+    def limits_table(self):
+        return []
+
+
+def duration_rule(m, profile) -> Verdict:
+    """A test double for rules.evaluate: files of 2 s or more fail, others pass."""
+    return Verdict(status=FAIL if m.get("duration_s") >= 2.0 else PASS)
+
+
+def _hang_on_name(path, options):
+    if "hang" in os.path.basename(path):
+        time.sleep(120)
+    return measure(path, options)
+
+
+def _crash_on_name(path, options):
+    if "crash" in os.path.basename(path):
+        os.kill(os.getpid(), signal.SIGKILL)
+    return measure(path, options)
+
+
+def _greedy_on_name(path, options):
+    if "greedy" in os.path.basename(path):
+        big = np.ones(2 * 1024**3 // 8)  # 2 GiB, above the 768 MiB ceiling used below
+        return big.sum()
+    return measure(path, options)
+
+
+def make_batch(folder, names_seconds):
+    folder.mkdir(parents=True, exist_ok=True)
+    for name, seconds in names_seconds:
+        write(folder / name, sine(1000.0, -20.0, seconds, channels=2))
+    return folder
+
+
+# -- discovery ---------------------------------------------------------------------------
+
+
+def test_discover_walks_sorted_and_reports_problems(tmp_path):
+    root = tmp_path / "in"
+    make_batch(root / "b", [("two.wav", 1.0)])
+    make_batch(root / "a", [("one.flac", 1.0)])
+    write(root / "a" / "one.flac", sine(1000.0, -20.0, 1.0), subtype="PCM_16")
+    (root / "notes.txt").write_text("not audio")
+    (root / "folder.wav").mkdir()  # a directory named like a file is walked, not measured
+    write(root / "folder.wav" / "inside.WAV", sine(1000.0, -20.0, 1.0))
+    os.symlink(root, root / "b" / "loop")  # a symlink loop back to the top
+    os.symlink(root / "missing.wav", root / "dangling.wav")
+    explicit = tmp_path / "take.bin"  # a named file is taken whatever its extension
+    explicit.write_bytes(b"x")
+
+    found = discover([str(root), str(explicit), str(tmp_path / "nope")])
+
+    assert list(found.files) == [
+        str(root / "a" / "one.flac"),
+        str(root / "b" / "two.wav"),
+        str(root / "folder.wav" / "inside.WAV"),
+        str(explicit),
+    ]
+    by_path = {p.path: p for p in found.problems}
+    assert "symlink target does not exist" in by_path[str(root / "dangling.wav")].message
+    assert by_path[str(root / "dangling.wav")].missed
+    assert "does not exist" in by_path[str(tmp_path / "nope")].message
+    assert by_path[str(root / "b" / "loop")].missed is False  # a note, nothing was missed
+    assert "loop" in by_path[str(root / "b" / "loop")].message
+    # The same call again gives the same answer (stable order).
+    assert discover([str(root), str(explicit), str(tmp_path / "nope")]) == found
+
+
+def test_discover_same_file_twice_is_one_file(tmp_path):
+    make_batch(tmp_path, [("x.wav", 1.0)])
+    os.symlink(tmp_path / "x.wav", tmp_path / "y.wav")
+    found = discover([str(tmp_path), str(tmp_path / "x.wav")])
+    assert list(found.files) == [str(tmp_path / "x.wav")]
+
+
+# -- batch: statuses, errors, cache -----------------------------------------------------
+
+
+def test_batch_statuses_errors_and_cache(tmp_path):
+    src = make_batch(tmp_path / "in", [("short.wav", 1.0), ("long.wav", 2.0)])
+    (src / "text.wav").write_text("this is not audio\n")
+    (src / "empty.wav").write_bytes(b"")
+    out = tmp_path / "out"
+
+    run, results = run_batch([src], StubProfile(), out, jobs=2, evaluate=duration_rule)
+
+    status = {os.path.basename(r.path): r.status for r in results}
+    assert status == {"empty.wav": ERROR, "long.wav": FAIL, "short.wav": PASS, "text.wav": ERROR}
+    errors = {os.path.basename(r.path): r.error for r in results if r.status == ERROR}
+    assert "cannot open as audio" in errors["text.wav"]
+    assert errors["text.wav"].startswith(str(src / "text.wav"))
+    assert [r.path for r in results] == sorted(r.path for r in results)
+    assert run.finished_at is not None
+    # 1 kHz sine written for exactly 1.0 s at 48 kHz: 48000 frames (by construction).
+    short = next(r for r in results if r.path.endswith("short.wav"))
+    assert short.measurement.frames == 48_000
+
+    # Second run: nothing is read again (measurements and read errors come from the store).
+    run2, results2 = run_batch([src], StubProfile(), out, jobs=2, evaluate=duration_rule)
+    assert [(r.path, r.status, r.error) for r in results2] == [
+        (r.path, r.status, r.error) for r in results
+    ]
+    with open_store(out) as store:
+        assert set(store.measurement_attempts().values()) == {1}
+        assert store.counts()["runs"] == 2
+        assert store.counts()["errors"] == 2
+    # --fresh measures everything again: the attempt counter shows it.
+    run_batch([src], StubProfile(), out, jobs=1, fresh=True, evaluate=duration_rule)
+    with open_store(out) as store:
+        assert set(store.measurement_attempts().values()) == {2}
+
+
+def test_changed_file_is_measured_again(tmp_path):
+    src = make_batch(tmp_path / "in", [("a.wav", 1.0)])
+    out = tmp_path / "out"
+    _, first = run_batch([src], StubProfile(), out, jobs=1, evaluate=duration_rule)
+    write(src / "a.wav", sine(1000.0, -20.0, 2.0, channels=2))  # new size and mtime
+    _, second = run_batch([src], StubProfile(), out, jobs=1, evaluate=duration_rule)
+    assert first[0].status == PASS and second[0].status == FAIL
+    assert second[0].measurement.frames == 96_000  # 2.0 s x 48 kHz
+
+
+def test_hung_worker_becomes_error_row_and_pool_goes_on(tmp_path):
+    src = make_batch(
+        tmp_path / "in", [("a.wav", 1.0), ("b-hang.wav", 1.0), ("c.wav", 1.0), ("d.wav", 1.0)]
+    )
+    _, results = run_batch(
+        [src],
+        StubProfile(),
+        tmp_path / "out",
+        jobs=2,
+        timeout_s=1.5,
+        evaluate=duration_rule,
+        measure_fn=_hang_on_name,
+    )
+    status = {os.path.basename(r.path): r.status for r in results}
+    assert status == {"a.wav": PASS, "b-hang.wav": ERROR, "c.wav": PASS, "d.wav": PASS}
+    hung = next(r for r in results if r.status == ERROR)
+    assert "time limit" in hung.error and hung.error.startswith(str(src / "b-hang.wav"))
+    # A timeout is worth retrying: the store does not cache it as a final answer.
+    with open_store(tmp_path / "out") as store:
+        assert store.db.execute("SELECT retry FROM errors").fetchall() == [(1,)]
+
+
+def test_crashed_worker_becomes_error_row_and_pool_goes_on(tmp_path):
+    src = make_batch(
+        tmp_path / "in", [("a.wav", 1.0), ("b-crash.wav", 1.0), ("c.wav", 1.0), ("d.wav", 2.0)]
+    )
+    _, results = run_batch(
+        [src],
+        StubProfile(),
+        tmp_path / "out",
+        jobs=2,
+        evaluate=duration_rule,
+        measure_fn=_crash_on_name,
+    )
+    status = {os.path.basename(r.path): r.status for r in results}
+    assert status == {"a.wav": PASS, "b-crash.wav": ERROR, "c.wav": PASS, "d.wav": FAIL}
+    crashed = next(r for r in results if r.status == ERROR)
+    assert "worker process died" in crashed.error and "SIGKILL" in crashed.error
+
+
+def test_memory_ceiling_becomes_error_row(tmp_path):
+    src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b-greedy.wav", 1.0), ("c.wav", 1.0)])
+    _, results = run_batch(
+        [src],
+        StubProfile(),
+        tmp_path / "out",
+        jobs=1,
+        memory_mb=768,
+        evaluate=duration_rule,
+        measure_fn=_greedy_on_name,
+    )
+    status = {os.path.basename(r.path): r.status for r in results}
+    assert status == {"a.wav": PASS, "b-greedy.wav": ERROR, "c.wav": PASS}
+    assert "out of memory" in next(r for r in results if r.status == ERROR).error
+
+
+def test_vanished_and_unlistable_inputs_are_error_rows(tmp_path):
+    src = make_batch(tmp_path / "in", [("a.wav", 1.0)])
+    os.symlink(src / "gone.wav", src / "link.wav")
+    _, results = run_batch(
+        [src, tmp_path / "missing"], StubProfile(), tmp_path / "out", jobs=1, evaluate=duration_rule
+    )
+    rows = {os.path.basename(r.path): (r.status, r.error) for r in results}
+    assert rows["a.wav"][0] == PASS
+    assert rows["link.wav"][0] == ERROR and "does not exist" in rows["link.wav"][1]
+    assert rows["missing"][0] == ERROR and "does not exist" in rows["missing"][1]
+
+
+def test_interrupt_keeps_finished_files(tmp_path):
+    src = make_batch(tmp_path / "in", [(f"f{i}.wav", 1.0) for i in range(4)])
+    calls = []
+
+    def evaluate_then_interrupt(m, profile):
+        calls.append(m.path)
+        if len(calls) == 2:
+            raise KeyboardInterrupt
+        return duration_rule(m, profile)
+
+    with pytest.raises(Interrupted) as info:
+        run_batch([src], StubProfile(), tmp_path / "out", jobs=1, evaluate=evaluate_then_interrupt)
+    assert (info.value.done, info.value.total) == (1, 4)
+    with open_store(tmp_path / "out") as store:
+        # Measurements are committed before judging: the interrupted file is kept too.
+        assert len(store.measurement_attempts()) == 2
+        assert store.runs()[0].finished_at is None
+    _, results = run_batch([src], StubProfile(), tmp_path / "out", jobs=1, evaluate=duration_rule)
+    assert [r.status for r in results] == [PASS] * 4
+    with open_store(tmp_path / "out") as store:
+        assert set(store.measurement_attempts().values()) == {1}
+
+
+def test_dask_local_cluster_matches_process_pool(tmp_path):
+    pytest.importorskip("dask.distributed", reason="dask[distributed] not installed")
+    src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b.wav", 2.0), ("c.wav", 1.5)])
+    (src / "bad.wav").write_text("not audio")
+    _, local = run_batch([src], StubProfile(), tmp_path / "pool", jobs=2, evaluate=duration_rule)
+    _, dask = run_batch(
+        [src], StubProfile(), tmp_path / "dask", cluster="local:1", evaluate=duration_rule
+    )
+    assert [r.to_dict(timeline=True) for r in dask] == [r.to_dict(timeline=True) for r in local]
+    assert {r.status for r in dask} == {PASS, FAIL, ERROR}

@@ -1,0 +1,157 @@
+"""The SQLite results store: schema version, round trips, upserts, runs and verdicts."""
+
+from __future__ import annotations
+
+import math
+import sqlite3
+
+import pytest
+from signals import sine, write
+
+from checker.errors import StoreError
+from checker.measure import Measurement, measure
+from checker.results import FileResult, RunInfo
+from checker.store import SCHEMA_VERSION, FileIdentity, Store, open_store
+from checker.timeline import Timeline
+from checker.verdict import FAIL, Flag, GainAdvice, Verdict
+
+OPTS = '{"true_peak_ceiling_dbtp": -1.0}'
+
+
+def _measurement(path: str) -> Measurement:
+    return Measurement(
+        path=path,
+        values={
+            "integrated_lufs": None,
+            "integrated_note": "every block below the absolute gate",
+            "sample_peak_dbfs": -math.inf,  # digital silence
+            "true_peak_channel_dbtp": [-math.inf, -3.5],
+            "frames": 48_000,
+            "loudness_range_stable": False,
+        },
+        timeline=Timeline(hop_s=0.1, times_s=[0.1, 0.2], series={"momentary_lufs": [None, -23.0]}),
+        findings=("header declares 2.000 s, 1.000 s decoded: truncated",),
+    )
+
+
+def _ident(tmp_path) -> FileIdentity:
+    f = tmp_path / "a.wav"
+    f.write_bytes(b"0123456789")
+    return FileIdentity.of(str(f))
+
+
+def test_schema_version_and_wal(tmp_path):
+    with open_store(tmp_path) as store:
+        assert store.schema_version() == SCHEMA_VERSION
+        assert store.db.execute("PRAGMA journal_mode").fetchone() == ("wal",)
+    # Reopening an existing store keeps it.
+    with open_store(tmp_path) as store:
+        assert store.counts() == {"measurements": 0, "errors": 0, "runs": 0, "verdicts": 0}
+
+
+def test_newer_schema_is_refused(tmp_path):
+    with open_store(tmp_path) as store:
+        store.db.execute(
+            "UPDATE meta SET value=? WHERE key='schema_version'", (SCHEMA_VERSION + 1,)
+        )
+    with pytest.raises(StoreError, match="schema_version = 2 .*expected <= 1"):
+        open_store(tmp_path)
+
+
+def test_not_a_database_is_a_store_error(tmp_path):
+    (tmp_path / "results.sqlite").write_bytes(b"this is not SQLite" * 100)
+    with pytest.raises(StoreError, match="not a usable results store"):
+        open_store(tmp_path)
+
+
+def test_measurement_round_trip_keeps_inf_none_and_timeline(tmp_path):
+    ident = _ident(tmp_path)
+    m = _measurement(ident.path)
+    with open_store(tmp_path) as store:
+        store.put_measurement(ident, OPTS, m)
+        back = store.get_measurement(ident, m.engine_version, OPTS)
+    assert back == m
+    assert back.sample_peak_dbfs == -math.inf and back.integrated_lufs is None
+
+
+def test_real_measurement_round_trip(tmp_path):
+    path = write(tmp_path / "tone.wav", sine(1000.0, -20.0, 1.0, channels=2))
+    m = measure(str(path))
+    ident = FileIdentity.of(str(path))
+    with open_store(tmp_path) as store:
+        store.put_measurement(ident, OPTS, m)
+        assert store.get_measurement(ident, m.engine_version, OPTS) == m
+
+
+def test_cache_key_is_identity_engine_and_options(tmp_path):
+    ident = _ident(tmp_path)
+    m = _measurement(ident.path)
+    with open_store(tmp_path) as store:
+        store.put_measurement(ident, OPTS, m)
+        assert store.get_measurement(ident, "other-engine", OPTS) is None
+        assert store.get_measurement(ident, m.engine_version, '{"x": 1}') is None
+        (tmp_path / "a.wav").write_bytes(b"01234567890")  # the file changed: new size
+        assert store.get_measurement(FileIdentity.of(ident.path), m.engine_version, OPTS) is None
+
+
+def test_upsert_never_duplicates_and_counts_attempts(tmp_path):
+    ident = _ident(tmp_path)
+    m = _measurement(ident.path)
+    with open_store(tmp_path) as store:
+        for _ in range(3):
+            store.put_measurement(ident, OPTS, m)
+        assert store.counts()["measurements"] == 1
+        assert store.measurement_attempts() == {ident.path: 3}
+        with pytest.raises(sqlite3.IntegrityError):  # the UNIQUE key holds
+            store.db.execute(
+                "INSERT INTO measurements(path, size_bytes, mtime_ns, engine_version, "
+                "options_key, measurement_json, measured_at) VALUES (?, ?, ?, ?, ?, '{}', 'x')",
+                (ident.path, ident.size_bytes, ident.mtime_ns, m.engine_version, OPTS),
+            )
+
+
+def test_errors_retry_flag_and_cleared_by_success(tmp_path):
+    ident = _ident(tmp_path)
+    with open_store(tmp_path) as store:
+        store.put_error(ident, "e1", OPTS, "a.wav: cannot open as audio (x)", retry=False)
+        assert store.get_error(ident, "e1", OPTS) == "a.wav: cannot open as audio (x)"
+        store.put_error(ident, "e1", OPTS, "a.wav: took longer than the time limit", retry=True)
+        assert store.get_error(ident, "e1", OPTS) is None  # timeouts are tried again
+        assert store.counts()["errors"] == 1
+        m = Measurement(path=ident.path, values={}, engine_version="e1")
+        store.put_measurement(ident, OPTS, m)
+        assert store.counts()["errors"] == 0
+
+
+def test_runs_and_verdicts(tmp_path):
+    run = RunInfo(
+        run_id="r1",
+        started_at="2026-01-01T00:00:00+00:00",
+        inputs=("in",),
+        profile_name="p",
+        profile_title="P",
+        profile_limits=({"key": "sample_peak_max_dbfs", "value": -1.0},),
+        engine_version="e1",
+    )
+    flag = Flag("sample_peak_max_dbfs", FAIL, -0.5, -1.0, "dBFS", "too hot", 0.0, "test input")
+    verdict = Verdict(FAIL, (flag,), GainAdvice(None, None, None, None, "lower the level"))
+    with open_store(tmp_path) as store:
+        store.start_run(run)
+        store.put_result("r1", FileResult("in/a.wav", FAIL, verdict=verdict))
+        store.put_result("r1", FileResult("in/a.wav", FAIL, verdict=verdict))  # no duplicate
+        store.put_result("r1", FileResult.failed("in/b.wav", "in/b.wav: cannot open"))
+        assert store.runs()[0].finished_at is None
+        store.finish_run(RunInfo(**{**run.to_dict(), "finished_at": "2026-01-01T00:01:00+00:00"}))
+        assert store.runs()[0].finished_at == "2026-01-01T00:01:00+00:00"
+        assert store.runs()[0].profile_limits == run.profile_limits
+        rows = store.run_results("r1")
+    assert rows == [
+        ("in/a.wav", FAIL, verdict, None),
+        ("in/b.wav", "error", None, "in/b.wav: cannot open"),
+    ]
+
+
+def test_store_in_a_folder_that_cannot_be_created(tmp_path):
+    (tmp_path / "file").write_text("x")
+    with pytest.raises(StoreError, match="cannot open the results store"):
+        Store(tmp_path / "file" / "sub" / "results.sqlite")
