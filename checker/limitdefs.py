@@ -26,7 +26,9 @@ missing from the values is still "could not be measured".
 
 from __future__ import annotations
 
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
+from typing import Any
 
 MAX = "max"
 MIN = "min"
@@ -116,6 +118,9 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="check the export range: the file is too short"),
     _d("duration_max_s", MAX, "duration_s", "s", "duration", "format",
        hint="check the export range: the file is too long"),
+    _d("truncation_max_frames", MAX, "missing_frames", "",
+       "number of frames the header promises but the file lacks", "format", item="int",
+       none_means_ok=True, hint="the file was cut off (an interrupted copy or upload): send it again"),
     # loudness
     _d("integrated_target_lufs", TARGET, "integrated_lufs", "LUFS", "integrated loudness",
        "loudness", hint="apply the gain in the advice"),
@@ -148,6 +153,10 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="remove the DC offset (high-pass filter)"),
     _d("effective_bits_min", MIN, "effective_bits", "bits", "effective bit depth", "levels",
        hint="the audio was made at a lower resolution than the file claims"),
+    _d("unused_low_bits_max", MAX, "unused_low_bits", "bits",
+       "number of unused low bits (file bit depth minus effective bits)", "levels", item="int",
+       none_means_ok=True,
+       hint="the audio was made at a lower bit depth and padded: re-export from the source"),
     _d("rms_min_dbfs", MIN, "rms_dbfs", "dBFS", "RMS level", "levels", hint="raise the level"),
     _d("rms_max_dbfs", MAX, "rms_dbfs", "dBFS", "RMS level", "levels", hint="lower the level"),
     _d("noise_floor_max_dbfs", MAX, "noise_floor_dbfs", "dBFS", "noise floor", "levels",
@@ -235,6 +244,39 @@ CATALOGUE: tuple[LimitDef, ...] = (
 # fmt: on
 
 BY_KEY: dict[str, LimitDef] = {d.key: d for d in CATALOGUE}
+
+
+def _unused_low_bits(v: Mapping[str, Any]) -> int | None:
+    """Integer PCM only: stored bits minus bits in use (float and lossy: None)."""
+    fb, eb, st = v.get("format_bits"), v.get("effective_bits"), v.get("subtype")
+    if isinstance(st, str) and st.startswith("PCM_") and isinstance(fb, int):
+        return fb - eb if isinstance(eb, int) else None
+    return None
+
+
+def _missing_frames(v: Mapping[str, Any]) -> int | None:
+    """Frames the header declares beyond those decoded (None: the header gives no length)."""
+    declared, decoded = v.get("frames_declared"), v.get("frames")
+    if isinstance(declared, int) and isinstance(decoded, int):
+        return max(declared - decoded, 0)
+    return None
+
+
+#: Values computed from other measured values, for limits: key -> (inputs, function).
+#: Added only when absent and when every input key is present in the values.
+DERIVED: dict[str, tuple[tuple[str, ...], Callable[[Mapping[str, Any]], Any]]] = {
+    "unused_low_bits": (("subtype", "format_bits", "effective_bits"), _unused_low_bits),
+    "missing_frames": (("frames_declared", "frames"), _missing_frames),
+}
+
+
+def with_derived(values: Mapping[str, Any]) -> Mapping[str, Any]:
+    extra = {
+        k: f(values)
+        for k, (inputs, f) in DERIVED.items()
+        if k not in values and all(i in values for i in inputs)
+    }
+    return {**values, **extra} if extra else values
 
 
 def measured_keys(d: LimitDef) -> tuple[str, ...]:

@@ -31,6 +31,7 @@ from checker.limitdefs import (
     TARGET,
     UNIT_SUFFIXES,
     measured_keys,
+    with_derived,
 )
 from checker.profiles import Limit, Profile
 from checker.verdict import ERROR, PASS, Flag, Verdict, worst_status
@@ -55,6 +56,8 @@ def evaluate(measurement: Any, profile: Profile, *, scope: str | None = None) ->
         return Verdict(status=ERROR)
     values = values_of(measurement)
     scope = scope or scope_of(values)
+    if scope == FILE:
+        values = with_derived(values)
     flags: list[Flag] = []
     for lim in profile.limits:
         d = lim.definition

@@ -72,6 +72,12 @@ CASES = [
      {"integrated_lufs": -22.5}, {"integrated_lufs": -22.49},
      "Integrated loudness is -22.49 LUFS, 0.51 LU above the target of -23.00 LUFS "
      "(tolerance +- 0.50 LU): apply -0.51 dB of gain", None),
+    ("truncation_max_frames", 0, {}, {"frames_declared": 480000}, {"frames": 480000},
+     {"frames": 47999}, "Number of frames the header promises but the file lacks is 432001, "
+     "above the limit of 0: the file was cut off", None),
+    ("unused_low_bits_max", 0, {}, {"subtype": "PCM_24", "format_bits": 24},
+     {"effective_bits": 24}, {"effective_bits": 16}, "Number of unused low bits (file bit depth "
+     "minus effective bits) is 8 bits, above the limit of 0 bits", None),
     ("loudness_range_min_lu", 4.0, {}, {}, {"loudness_range_lu": 4.0},
      {"loudness_range_lu": 3.99}, "Loudness range is 3.99 LU, below the limit of 4.00 LU", None),
     ("loudness_range_max_lu", 20.0, {}, {}, {"loudness_range_lu": 20.0},
@@ -246,6 +252,16 @@ def test_channel_lists_and_silence_read_plainly(tmp_path):
     assert flag.message.startswith("RMS level is -inf dBFS (digital silence), below the limit")
 
 
+def test_derived_limits_do_not_apply_where_they_mean_nothing(tmp_path):
+    bits = one_limit_profile(tmp_path, "unused_low_bits_max", 0)
+    # a float file on a 24-bit grid is normal (levels meter: float effective bits <= 24)
+    floaty = {"subtype": "FLOAT", "format_bits": 32, "effective_bits": 24}
+    assert evaluate(m(floaty), bits).status == PASS
+    cut = one_limit_profile(tmp_path, "truncation_max_frames", 0)
+    # no length in the header (e.g. a streamed FLAC): nothing to compare
+    assert evaluate(m({"frames_declared": None, "frames": 1000}), cut).status == PASS
+
+
 def test_no_steep_cutoff_found_passes(tmp_path):
     profile = one_limit_profile(tmp_path, "steep_cutoff_min_hz", 15000.0)
     assert evaluate(m({"steep_cutoff_hz": None}), profile).status == PASS
@@ -306,6 +322,8 @@ def test_status_is_the_worst_flag_and_every_violation_is_flagged():
     values = {
         "channels": 2,
         "sample_rate_hz": 44100,  # warn in ebu-r128
+        "frames": 441000,
+        "frames_declared": 441000,
         "integrated_lufs": -23.0,
         "true_peak_dbtp": -0.5,  # fail
         "clipped_runs": 0,
@@ -329,6 +347,10 @@ def test_set_limits_and_file_limits_do_not_mix():
     stem = {
         "channels": 2,
         "subtype": "PCM_24",
+        "format_bits": 24,
+        "effective_bits": 24,
+        "frames": 480000,
+        "frames_declared": 480000,
         "sample_peak_dbfs": -6.0,
         "clipped_runs": 0,
         "over_full_scale_samples": 0,
