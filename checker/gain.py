@@ -1,4 +1,7 @@
-"""Gain advice: the plain gain that reaches the profile's loudness target, and what it breaks.
+"""Gain advice: the plain gain that reaches the profile's level target, and what it breaks.
+
+The target is the integrated loudness target, or, for profiles without one, the
+middle of the RMS window (audiobook chapters).
 
 Plain (linear) gain moves every level by the same number of dB, so the true
 peak, sample peak and noise floor after the gain are the measured ones plus
@@ -50,27 +53,38 @@ def _after(x: Any, gain: float) -> Any:
     return x + gain if _finite(x) else x
 
 
-def advise(values: Mapping[str, Any], profile: Profile) -> GainAdvice | None:
-    """Gain advice for one file, or None when the profile has no loudness target."""
-    target = profile.integrated_target_lufs
-    if target is None:
-        return None
-    loudness, _, how = judged_loudness(values, profile)
-    if not _finite(loudness):
-        note = values.get("integrated_note")
-        why = f" ({note})" if isinstance(note, str) and note else ""
-        return GainAdvice(
-            None,
-            None,
-            None,
-            None,
-            f"No gain advice: integrated loudness could not be measured{why}.",
-        )
-    gain = target - loudness
-    tp = _after(values.get("true_peak_dbtp"), gain)
-    sp = _after(values.get("sample_peak_dbfs"), gain)
-    nf = _after(values.get("noise_floor_dbfs"), gain)
+def _aim(values: Mapping[str, Any], profile: Profile) -> tuple[float, str, str] | str | None:
+    """(gain, what it reaches, "" or words saying the level is already acceptable), a reason
+    it cannot be computed,
+    or None when the profile sets no level to aim at.
 
+    Integrated loudness when the profile has a target; otherwise the middle of an RMS
+    window (rms_min_dbfs .. rms_max_dbfs, e.g. audiobook chapters).
+    """
+    target = profile.integrated_target_lufs
+    if target is not None:
+        loudness, _, how = judged_loudness(values, profile)
+        if not _finite(loudness):
+            note = values.get("integrated_note")
+            why = f" ({note})" if isinstance(note, str) and note else ""
+            return f"No gain advice: integrated loudness could not be measured{why}."
+        tol = profile.limit("integrated_target_lufs").tolerance_lu
+        gain = target - loudness
+        within = "Loudness is within tolerance" if abs(gain) <= tol + EPS else ""
+        return gain, f"{target:.1f} LUFS{how}", within
+    lo, hi = profile.value("rms_min_dbfs"), profile.value("rms_max_dbfs")
+    if lo is None or hi is None:
+        return None
+    rms = values.get("rms_dbfs")
+    if not _finite(rms):
+        return "No gain advice: the RMS level could not be measured (or the file is silent)."
+    middle = (lo + hi) / 2.0
+    within = "The RMS level is within its window" if lo - EPS <= rms <= hi + EPS else ""
+    return middle - rms, f"an RMS level of {middle:.1f} dBFS (the middle of {lo} to {hi})", within
+
+
+def _problems(values, profile: Profile, gain: float, tp, sp, nf) -> tuple[list[str], list[str]]:
+    """What plain gain would break (as plain words), and what cannot be judged."""
     problems: list[str] = []
     unknown: list[str] = []
     tp_max = profile.value("true_peak_max_dbtp")
@@ -105,14 +119,25 @@ def advise(values: Mapping[str, Any], profile: Profile) -> GainAdvice | None:
             f"gain does not change the loudness range ({lra:.1f} LU > {lra_max:.1f} LU): "
             "needs compression or a remix"
         )
+    return problems, unknown
 
-    tol = profile.limit("integrated_target_lufs").tolerance_lu
-    if abs(gain) <= tol + EPS:
-        text = [
-            f"Loudness{how} is within tolerance; {gain:+.2f} dB would reach {target:.1f} LUFS exactly."
-        ]
+
+def advise(values: Mapping[str, Any], profile: Profile) -> GainAdvice | None:
+    """Gain advice for one file, or None when the profile sets no level to aim at."""
+    aim = _aim(values, profile)
+    if aim is None:
+        return None
+    if isinstance(aim, str):
+        return GainAdvice(None, None, None, None, aim)
+    gain, reaches, within = aim
+    tp = _after(values.get("true_peak_dbtp"), gain)
+    sp = _after(values.get("sample_peak_dbfs"), gain)
+    nf = _after(values.get("noise_floor_dbfs"), gain)
+    problems, unknown = _problems(values, profile, gain, tp, sp, nf)
+    if within:
+        text = [f"{within}; {gain:+.2f} dB would reach {reaches} exactly."]
     else:
-        text = [f"Apply {gain:+.2f} dB to reach {target:.1f} LUFS{how}."]
+        text = [f"Apply {gain:+.2f} dB to reach {reaches}."]
     if problems:
         enough: bool | None = False
         text.append("Plain gain is not enough: " + "; ".join(problems) + ".")

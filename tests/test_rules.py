@@ -445,6 +445,22 @@ def test_large_positive_gain_carries_a_listening_level_caution():
     assert "Caution: this raises the level by 14.0 dB; turn the monitoring down" in gain.advice
 
 
+def test_gain_advice_aims_at_the_middle_of_an_rms_window():
+    # audiobook-chapter (common practice, from memory): RMS -23 to -18 dBFS -> aim at -20.5;
+    # sample peak <= -3 dBFS; noise floor <= -60 dBFS
+    profile = load_profile("audiobook-chapter")
+    values = {"channels": 1, "rms_dbfs": -26.0, "sample_peak_dbfs": -9.0, "noise_floor_dbfs": -64.0}
+    gain = evaluate(m(values), profile).gain
+    assert_allclose(gain.gain_to_target_db, 5.5, rtol=0, atol=1e-12)  # -20.5 - (-26)
+    assert_allclose(gain.predicted_noise_floor_dbfs, -58.5, rtol=0, atol=1e-12)
+    assert gain.plain_gain_enough is False
+    assert gain.advice.startswith("Apply +5.50 dB to reach an RMS level of -20.5 dBFS")
+    assert "noise floor would rise to -58.5 dBFS" in gain.advice
+    assert "sample peak" not in gain.advice  # -9 + 5.5 = -3.5 dBFS stays under -3
+    silent = evaluate(m({"channels": 1, "rms_dbfs": -math.inf}), profile).gain
+    assert silent.gain_to_target_db is None and "could not be measured" in silent.advice
+
+
 def test_gain_advice_within_tolerance_and_without_target():
     values = {"channels": 2, "integrated_lufs": -23.3, "true_peak_dbtp": -6.0}
     gain = evaluate(m(values), load_profile("ebu-r128")).gain
