@@ -18,7 +18,7 @@ import pytest
 from signals import sine, write
 
 from checker.batch import Interrupted, run_batch
-from checker.discover import discover
+from checker.discover import Discovery, discover
 from checker.measure import measure
 from checker.store import open_store
 from checker.verdict import ERROR, FAIL, PASS, Verdict
@@ -109,7 +109,38 @@ def test_discover_same_file_twice_is_one_file(tmp_path):
     assert list(found.files) == [str(tmp_path / "x.wav")]
 
 
+def test_discover_unlistable_folder_is_a_problem(tmp_path, monkeypatch):
+    # Tests run as root, where chmod 000 does not stop listing: make scandir refuse instead.
+    make_batch(tmp_path / "ok", [("a.wav", 1.0)])
+    (tmp_path / "locked").mkdir()
+    real_scandir = os.scandir
+
+    def scandir(path):
+        if os.path.basename(path) == "locked":
+            raise PermissionError(13, "Permission denied")
+        return real_scandir(path)
+
+    monkeypatch.setattr(os, "scandir", scandir)
+    found = discover([str(tmp_path)])
+    assert list(found.files) == [str(tmp_path / "ok" / "a.wav")]
+    [problem] = found.problems
+    assert problem.path == str(tmp_path / "locked") and problem.missed
+    assert problem.message == f"{tmp_path / 'locked'}: folder cannot be listed (Permission denied)"
+
+
 # -- batch: statuses, errors, cache -----------------------------------------------------
+
+
+def test_file_vanished_after_discovery_is_an_error_row(tmp_path, monkeypatch):
+    src = make_batch(tmp_path / "in", [("a.wav", 1.0)])
+    gone = str(src / "gone.wav")
+    monkeypatch.setattr(
+        "checker.batch.discover",
+        lambda paths: Discovery(files=(str(src / "a.wav"), gone)),
+    )
+    _, results = run_batch([src], StubProfile(), tmp_path / "out", jobs=1, evaluate=duration_rule)
+    assert [(r.path, r.status) for r in results] == [(str(src / "a.wav"), PASS), (gone, ERROR)]
+    assert results[1].error.startswith(f"{gone}: file vanished or cannot be read")
 
 
 def test_batch_statuses_errors_and_cache(tmp_path):
@@ -165,7 +196,7 @@ def test_hung_worker_becomes_error_row_and_pool_goes_on(tmp_path):
         StubProfile(),
         tmp_path / "out",
         jobs=2,
-        timeout_s=1.5,
+        timeout_s=3.0,
         evaluate=duration_rule,
         measure_fn=_hang_on_name,
     )
@@ -247,6 +278,7 @@ def test_interrupt_keeps_finished_files(tmp_path):
         assert set(store.measurement_attempts().values()) == {1}
 
 
+@pytest.mark.slow
 def test_dask_local_cluster_matches_process_pool(tmp_path):
     pytest.importorskip("dask.distributed", reason="dask[distributed] not installed")
     src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b.wav", 2.0), ("c.wav", 1.5)])

@@ -186,6 +186,7 @@ def test_recheck_with_other_profile_opens_no_audio(corpus, tmp_path, monkeypatch
 # -- SIGKILL halfway, resume ---------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_sigkill_halfway_then_resume_measures_nothing_twice(corpus, tmp_path):
     out = tmp_path / "out"
     argv = command(corpus["src"], corpus["loose"], out, "--jobs", "1", "--quiet")
@@ -206,6 +207,7 @@ def test_sigkill_halfway_then_resume_measures_nothing_twice(corpus, tmp_path):
     assert (out / "report.csv").read_text() == ref
 
 
+@pytest.mark.slow
 def test_sigkill_at_random_points_loses_and_duplicates_nothing(corpus, tmp_path):
     out = tmp_path / "out"
     argv = command(corpus["src"], corpus["loose"], out, "--jobs", "2", "--quiet")
@@ -240,6 +242,7 @@ def test_sigkill_at_random_points_loses_and_duplicates_nothing(corpus, tmp_path)
         assert len(attempts) == 12 and set(attempts.values()) == {1}
 
 
+@pytest.mark.slow
 def test_ctrl_c_stops_cleanly_and_says_how_to_resume(corpus, tmp_path):
     out = tmp_path / "out"
     argv = command(corpus["src"], corpus["loose"], out, "--jobs", "1", "--quiet")
@@ -271,6 +274,7 @@ def read_all(master: int) -> str:
     return b"".join(chunks).decode(errors="replace")
 
 
+@pytest.mark.slow
 def test_progress_on_a_terminal_and_not_in_a_pipe(corpus, tmp_path):
     argv = command(corpus["src"], corpus["loose"], tmp_path / "a", "--jobs", "2")
     master, slave = pty.openpty()
