@@ -1,0 +1,267 @@
+"""Polyphase interpolation (oversampling) for true peak, designed here.
+
+Filter
+------
+A Kaiser-windowed sinc with its cutoff exactly at the input Nyquist frequency,
+``h(i) = sinc(i / L) * kaiser(i)`` for ``|i| < L * T / 2`` (L = oversampling
+factor, T = taps per phase). Because the cutoff is at Nyquist, every L-th tap
+of the sinc is zero: phase 0 reproduces the input samples exactly, so the
+oversampled signal always contains the sample peak, and only phases 1..L-1 need
+arithmetic. Phase ``p`` (0 <= p < L) estimates the signal at ``m + p / L``
+(input-sample units) from ``x[m - T/2 + 1] ... x[m + T/2]``.
+
+Each phase (and each fractional offset, :func:`fractional_taps`) is scaled to
+unit gain at DC. Default T = 32, beta = 5.0, chosen by sweeping sines
+0.01-0.45 fs at random phases (numbers measured here, 4x and 2x alike, because
+the filter spans T input samples at either factor): largest complex gain error
+of any phase up to 0.45 fs about 0.0044 (0.04 dB); sum of |taps| per phase at
+4x = 1, 2.109, 2.541, 2.109. Longer filters are flatter but cost more per
+sample and ring further at abrupt file edges (T = 40, beta = 6: error 0.0014).
+
+Refinement between grid points
+------------------------------
+The grid alone under-reads by up to ``20 log10(cos(pi f / (L fs)))`` (0.55 dB
+at 0.45 fs and 4x; 2.2 dB at 2x). :func:`refine_peaks` fits a sinusoid
+``A cos(w (k - d))`` through the three grid values around a local maximum of
+``|y|`` (``cos w = (y[-1] + y[+1]) / (2 y[0])``) and returns A. For a pure tone
+this is exact up to the filter's error (measured alone on the 4x and 2x grids:
+-0.008 / +0.033 dB). The frequency is clamped to ``w <= omega_max`` and the
+result never exceeds ``|y0| / cos(omega_max / 2)`` (:func:`refine_gain_bound`).
+The meter uses it to rank candidates and, at 32 points per sample, as a last
+step (gain at most 1.0012 there).
+
+Streaming
+---------
+:class:`ChunkStream` re-blocks any sequence of input blocks into fixed chunks
+aligned to absolute frame positions (carrying the FIR history and look-ahead
+across blocks), so the arithmetic done for every output sample is the same
+whatever block split the caller uses: results are bit-identical across splits.
+:class:`ChunkInterpolator` computes one chunk as a single matrix product: the
+chunk is viewed as overlapping rows of ``R`` outputs (row stride R input
+samples), each row multiplied by one small block-Toeplitz matrix holding all
+phases. This is several times faster than ``scipy.signal.upfirdn`` or a
+``sliding_window_view`` of width T (measured here, float32: about 2x the time of decoding
+the same audio with soundfile, against 6x for the window view and 20x for upfirdn,
+for 4x at 48 kHz).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+
+import numpy as np
+from numpy.lib.stride_tricks import as_strided
+
+DEFAULT_TAPS_PER_PHASE = 32
+DEFAULT_KAISER_BETA = 5.0
+#: Outputs (input-sample positions) per row of the block-Toeplitz product.
+ROW_POSITIONS = 8
+#: Fixed chunk length in input frames (a multiple of ROW_POSITIONS).
+CHUNK_FRAMES = 4096
+
+
+def oversampling_for_rate(sample_rate_hz: int) -> int:
+    """Smallest of 4, 2, 1 that reaches at least 192 kHz (1 from 192 kHz up)."""
+    if sample_rate_hz < 96_000:
+        return 4
+    if sample_rate_hz < 192_000:
+        return 2
+    return 1
+
+
+def fractional_taps(
+    offsets: np.ndarray,
+    taps_per_phase: int = DEFAULT_TAPS_PER_PHASE,
+    kaiser_beta: float = DEFAULT_KAISER_BETA,
+) -> np.ndarray:
+    """Taps (len(offsets), taps_per_phase) estimating the signal at ``m + offset``.
+
+    ``y(m + f) = sum_q taps[i, q] * x[m + q - (taps_per_phase // 2 - 1)]`` for
+    ``f = offsets[i]`` in [0, 1). Kaiser-windowed sinc, cutoff at the input
+    Nyquist, each row scaled to unit DC gain; offset 0 is exactly the sample.
+    """
+    if taps_per_phase < 2 or taps_per_phase % 2:
+        raise ValueError(
+            f"fractional_taps: taps_per_phase = {taps_per_phase} (expected an even number >= 2)"
+        )
+    offsets = np.asarray(offsets, dtype=np.float64)
+    back = taps_per_phase // 2 - 1
+    u = offsets[:, None] - (np.arange(taps_per_phase) - back)[None, :]  # distance to tap
+    ratio = np.clip(u / (taps_per_phase / 2.0), -1.0, 1.0)
+    window = np.i0(kaiser_beta * np.sqrt(1.0 - ratio * ratio)) / np.i0(kaiser_beta)
+    taps = np.sinc(u) * window
+    taps /= taps.sum(axis=1, keepdims=True)
+    exact = offsets == 0.0
+    taps[exact] = 0.0
+    taps[exact, back] = 1.0
+    return taps
+
+
+def design_phases(
+    factor: int,
+    taps_per_phase: int = DEFAULT_TAPS_PER_PHASE,
+    kaiser_beta: float = DEFAULT_KAISER_BETA,
+) -> np.ndarray:
+    """Polyphase matrix G (taps_per_phase, factor): column p holds phase p.
+
+    ``y(m + p / factor) = sum_q G[q, p] * x[m + q - (taps_per_phase // 2 - 1)]``.
+    Column 0 is the unit vector (phase 0 = the input sample).
+    """
+    if factor < 1:
+        raise ValueError(f"design_phases: factor = {factor} (expected >= 1)")
+    return fractional_taps(np.arange(factor) / factor, taps_per_phase, kaiser_beta).T.copy()
+
+
+def phase_abs_sums(phases: np.ndarray) -> np.ndarray:
+    """Sum of |taps| of each phase: |y_p| <= this * max |x| over the window."""
+    return np.abs(phases).sum(axis=0)
+
+
+def refine_gain_bound(omega_max: float) -> float:
+    """Largest ratio refine_peaks() can return over |y0|: 1 / cos(omega_max / 2)."""
+    return 1.0 / math.cos(omega_max / 2.0)
+
+
+def default_omega_max(factor: int) -> float:
+    """Largest grid-rate frequency (rad/sample) the refinement assumes.
+
+    Content up to the input Nyquist at 2x and 4x (pi / factor); at 1x
+    (192 kHz and up, no interpolation) content up to fs / 4 (pi / 2).
+    """
+    return math.pi / factor if factor > 1 else math.pi / 2
+
+
+def refine_peaks(
+    y_prev: np.ndarray, y0: np.ndarray, y_next: np.ndarray, omega_max: float
+) -> np.ndarray:
+    """Peak magnitude of a sinusoid through three consecutive grid values.
+
+    ``y0`` should be a local maximum of |y|. Returns |y0| * sqrt(1 + t^2) with
+    ``tan(w d) = t``, ``w`` clamped to ``<= omega_max`` and ``|w d| <= w / 2``;
+    so ``|y0| <= result <= |y0| * refine_gain_bound(omega_max)``. Float64.
+    """
+    y_prev = np.asarray(y_prev, dtype=np.float64)
+    y0 = np.asarray(y0, dtype=np.float64)
+    y_next = np.asarray(y_next, dtype=np.float64)
+    u0 = np.abs(y0)
+    s = np.where(y0 < 0, -1.0, 1.0)
+    um = s * y_prev
+    up = s * y_next
+    safe_u0 = np.where(u0 > 0, u0, 1.0)
+    c = np.clip((um + up) / (2.0 * safe_u0), math.cos(omega_max), 1.0)
+    sin_w = np.sqrt(1.0 - c * c)
+    limit = u0 * (1.0 - c)  # |w d| <= w / 2  <=>  |(up - um) / 2| <= u0 (1 - c)
+    half_diff = np.clip((up - um) / 2.0, -limit, limit)
+    ok = (limit > 0) & (sin_w > 0) & (u0 > 0)
+    t = np.zeros_like(u0)
+    np.divide(half_diff, safe_u0 * np.where(sin_w > 0, sin_w, 1.0), out=t, where=ok)
+    return u0 * np.sqrt(1.0 + t * t)
+
+
+class ChunkInterpolator:
+    """Oversampled grid of one fixed-size chunk as one matrix product (float32).
+
+    ``grid(window)`` takes the input window for ``positions`` output positions
+    starting at P (the window starts at ``P - history``, length
+    ``window_frames``) and returns ``positions * factor`` grid values in time
+    order: ``y(P), y(P + 1/L), ..., y(P + positions - 1/L)``.
+    """
+
+    def __init__(self, phases: np.ndarray, positions: int, rows: int = ROW_POSITIONS) -> None:
+        taps, factor = phases.shape
+        if positions % rows:
+            raise ValueError(
+                f"ChunkInterpolator: positions = {positions} (expected a multiple of {rows})"
+            )
+        self.factor = factor
+        self.positions = positions
+        self.rows = rows
+        back, fwd = taps // 2 - 1, taps // 2
+        span = rows + taps - 1
+        self.row_width = -(-span // rows) * rows  # rounded up to whole rows
+        pad = self.row_width - span
+        self.history = back + pad  # window starts this many frames before P
+        self.window_frames = (positions // rows - 1) * rows + self.row_width
+        self.lookahead = self.window_frames - self.history - positions  # >= fwd
+        assert self.lookahead >= fwd
+        big = np.zeros((self.row_width, rows * factor))
+        for i in range(rows):  # output position P + i, window index of x[P + i + o]
+            for q in range(taps):
+                big[pad + i + q, i * factor : (i + 1) * factor] = phases[q]
+        self.matrix = big.astype(np.float32)
+
+    def grid(self, window: np.ndarray) -> np.ndarray:
+        """window: 1-D C-contiguous float32 of length window_frames."""
+        if self.factor == 1:
+            return window[self.history : self.history + self.positions].copy()
+        n_rows = self.positions // self.rows
+        step = window.itemsize
+        view = as_strided(window, shape=(n_rows, self.row_width), strides=(self.rows * step, step))
+        return np.dot(view, self.matrix).reshape(-1)
+
+
+class ChunkStream:
+    """Re-blocks (frames, channels) input into fixed, position-aligned chunks.
+
+    Chunk j covers output positions ``[j * step - before, (j + 1) * step + after)``
+    and needs input ``[start, start + window)`` with
+    ``start = j * step - before - history``. Input before frame 0 and after the
+    last frame is zero. Keeps only the not-yet-used tail (history + look-ahead),
+    channel-major float32 so each channel's window is contiguous.
+    """
+
+    def __init__(self, channels: int, step: int, before: int, history: int, window: int) -> None:
+        self.channels = channels
+        self.step = step
+        self.lead = before + history  # zeros needed before frame 0 for chunk 0
+        self.window = window
+        self.frames_in = 0
+        self.next_chunk = 0
+        # buf holds input frames [buf_start, buf_start + buf.shape[1])
+        self.buf_start = -self.lead
+        self.buf = np.zeros((channels, self.lead), dtype=np.float32)
+
+    def _chunk_start(self, j: int) -> int:
+        return j * self.step - self.lead
+
+    def push(self, x: np.ndarray) -> Iterator[tuple[int, np.ndarray]]:
+        """Append a block; yield (chunk index, window (channels, window) float32) when ready."""
+        if x.shape[0]:
+            self.buf = np.concatenate([self.buf, x.T.astype(np.float32)], axis=1)
+            self.frames_in += x.shape[0]
+        end = self.buf_start + self.buf.shape[1]
+        while self._chunk_start(self.next_chunk) + self.window <= end:
+            j = self.next_chunk
+            lo = self._chunk_start(j) - self.buf_start
+            yield j, self.buf[:, lo : lo + self.window]
+            self.next_chunk += 1
+        keep_from = self._chunk_start(self.next_chunk) - self.buf_start
+        if keep_from > 0:
+            self.buf = np.ascontiguousarray(self.buf[:, keep_from:])
+            self.buf_start += keep_from
+
+    def remaining(self) -> Iterator[tuple[int, np.ndarray]]:
+        """Zero-padded chunks still holding frames < frames_in (no state change)."""
+        j = self.next_chunk
+        while j * self.step < self.frames_in:
+            lo = self._chunk_start(j) - self.buf_start
+            window = np.zeros((self.channels, self.window), dtype=np.float32)
+            have = self.buf[:, lo : lo + self.window]
+            window[:, : have.shape[1]] = have
+            yield j, window
+            j += 1
+
+
+def oversample(x: np.ndarray, phases: np.ndarray) -> np.ndarray:
+    """Whole-signal reference: grid values of a 1-D signal at m + p/L, m = 0..N-1.
+
+    Zero before the first and after the last sample. Float64 direct sum (slow,
+    for tests and inspection).
+    """
+    taps, factor = phases.shape
+    back = taps // 2 - 1
+    n = x.shape[0]
+    xp = np.concatenate([np.zeros(back), np.asarray(x, dtype=np.float64), np.zeros(taps)])
+    windows = np.lib.stride_tricks.sliding_window_view(xp, taps)[:n]
+    return (windows @ phases).reshape(-1)
