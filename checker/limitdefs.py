@@ -120,7 +120,8 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="check the export range: the file is too long"),
     _d("truncation_max_frames", MAX, "missing_frames", "",
        "number of frames the header promises but the file lacks", "format", item="int",
-       none_means_ok=True, hint="the file was cut off (an interrupted copy or upload): send it again"),
+       none_means_ok=True,
+       hint="the file was cut off (an interrupted copy or upload): send it again"),
     # loudness
     _d("integrated_target_lufs", TARGET, "integrated_lufs", "LUFS", "integrated loudness",
        "loudness", hint="apply the gain in the advice"),
@@ -152,7 +153,7 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("dc_offset_max_dbfs", MAX, "dc_offset_dbfs", "dBFS", "DC offset", "levels",
        hint="remove the DC offset (high-pass filter)"),
     _d("effective_bits_min", MIN, "effective_bits", "bits", "effective bit depth", "levels",
-       hint="the audio was made at a lower resolution than the file claims"),
+       item="int", hint="the audio was made at a lower resolution than the file claims"),
     _d("unused_low_bits_max", MAX, "unused_low_bits", "bits",
        "number of unused low bits (file bit depth minus effective bits)", "levels", item="int",
        none_means_ok=True,

@@ -229,7 +229,7 @@ def _load_path(path: Path) -> Profile:
     ordered = tuple(
         Limit(
             key=d.key,
-            value=limits[d.key]["value"],
+            value=_typed(d, limits[d.key]["value"]),
             severity=limits[d.key]["severity"],
             source=limits[d.key]["source"],
             tolerance_lu=_float_or_none(limits[d.key].get("tolerance_lu")),
@@ -249,6 +249,13 @@ def _load_path(path: Path) -> Profile:
         mono_loudness=settings.get("mono_loudness", "single_channel"),
         lineage=lineage,
     )
+
+
+def _typed(d: LimitDef, v: Any) -> Any:
+    """Numbers of number-valued limits as float (TOML `-1` and `-1.0` mean the same)."""
+    if d.item == "number" and not isinstance(v, (bool, list)):
+        return float(v)
+    return v
 
 
 def _float_or_none(x: Any) -> float | None:

@@ -202,6 +202,13 @@ def test_extends_inherits_then_overrides_field_by_field(tmp_path):
     assert p.true_peak_ceiling_dbtp == -2.0
 
 
+def test_whole_numbers_are_accepted_for_levels(tmp_path):
+    path = write(tmp_path, "i.toml", 'name = "i"\n[peaks]\n'
+                 'true_peak_max_dbtp = { value = -2, severity = "fail", source = "x" }\n')  # fmt: skip
+    lim = load_profile(str(path)).limit("true_peak_max_dbtp")
+    assert isinstance(lim.value, float) and lim.value == -2.0 and lim.text() == "<= -2.0 dBTP"
+
+
 def test_extends_a_relative_path(tmp_path):
     write(tmp_path, "base.toml", 'name = "base"\n[format]\n'
           'channel_counts = { value = [2], severity = "fail", source = "test value" }\n')  # fmt: skip
