@@ -93,6 +93,9 @@ class LimitDef:
     applies_if: str | None = None  # judged only when this measured key is present (not None)
     detail: tuple[str, str] | None = None  # (measured key, label) listed in the message
     lead: str | None = None  # measured key of a plain-words note that opens the message
+    #: (bool key, words): when the measured flag is False the value is unreliable, so a
+    #: violation is at most a warning and the words say why
+    caveat: tuple[str, str] | None = None
 
 
 def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
@@ -126,8 +129,10 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("integrated_target_lufs", TARGET, "integrated_lufs", "LUFS", "integrated loudness",
        "loudness", hint="apply the gain in the advice"),
     _d("loudness_range_min_lu", MIN, "loudness_range_lu", "LU", "loudness range", "loudness",
+       caveat=("loudness_range_stable", "loudness range is not stable under 60 s (EBU Tech 3342)"),
        hint="the programme is more compressed than allowed"),
     _d("loudness_range_max_lu", MAX, "loudness_range_lu", "LU", "loudness range", "loudness",
+       caveat=("loudness_range_stable", "loudness range is not stable under 60 s (EBU Tech 3342)"),
        hint="reduce the dynamics (compression or mix rides); gain alone cannot fix this"),
     _d("momentary_max_lufs", MAX, "max_momentary_lufs", "LUFS", "maximum momentary loudness",
        "loudness", position="max_momentary_time_s", hint="tame the loudest moment"),

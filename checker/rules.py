@@ -193,6 +193,9 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
         items = values[d.detail[0]]
         items = items if isinstance(items, list) else [items]
         detail = f" ({d.detail[1]}: {', '.join(str(i) for i in items)})"
+    if d.caveat is not None and values.get(d.caveat[0]) is False:
+        severity = "warn"
+        detail += f" ({d.caveat[1]}: at most a warning)"
     msg = (
         f"{_lead(values, d.lead)}{d.what if d.lead else _cap(d.what)} is "
         f"{_with_unit(m, d.unit)}{_at(pos, first)}, {word} the {level} of "

@@ -337,6 +337,18 @@ def test_status_is_the_worst_flag_and_every_violation_is_flagged():
     assert evaluate(None, profile).status == ERROR
 
 
+def test_loudness_range_of_a_short_file_is_at_most_a_warning(tmp_path):
+    # EBU Tech 3342: the loudness range is not stable for programmes under 60 s
+    profile = one_limit_profile(tmp_path, "loudness_range_max_lu", 12.0)
+    short = {"loudness_range_lu": 15.0, "loudness_range_stable": False}
+    (flag,) = evaluate(m(short), profile).flags
+    assert flag.severity == WARN
+    assert "(loudness range is not stable under 60 s (EBU Tech 3342): at most a warning)" in (
+        flag.message
+    )
+    assert evaluate(m({**short, "loudness_range_stable": True}), profile).status == FAIL
+
+
 def test_channel_rules_skip_mono_files(tmp_path):
     profile = one_limit_profile(tmp_path, "correlation_min", 0.0)
     assert evaluate(m({"channels": 1, "min_correlation": None}), profile).status == PASS
