@@ -151,11 +151,16 @@ class _Worker:
         self.deadline = math.inf
         self.started = 0.0
 
-    def assign(self, task: Task, options: MeasureOptions, provisional_limit_s: float) -> None:
+    def assign(self, task: Task, options: MeasureOptions, provisional_limit_s: float) -> bool:
+        """Hand over one file; False when the worker is gone (its pipe is closed)."""
+        try:
+            self.conn.send((task.index, task.path, options))
+        except OSError:
+            return False
         self.task = task
         self.started = time.monotonic()
         self.deadline = self.started + STARTUP_GRACE_S + provisional_limit_s
-        self.conn.send((task.index, task.path, options))
+        return True
 
     def kill(self) -> None:
         try:
@@ -227,19 +232,34 @@ class LocalPool:
             return
         ctx = _context()
         workers: list[_Worker] = []
+        broken = 0  # workers found dead before they got a file
         try:
             while pending or any(w.task for w in workers):
-                for w in workers:
+                for w in [w for w in workers if w.task is None and not w.process.is_alive()]:
+                    w.kill()  # an idle worker that exited after its last file: replace it
+                    workers.remove(w)
+                while pending and len(workers) < self.jobs:
+                    workers.append(_Worker(ctx, self.memory_mb, self.measure_fn))
+                    self.workers_started += 1
+                for w in list(workers):
                     if w.task is None and pending:
                         task = pending.popleft()
-                        w.assign(task, options, time_limit_s(task, None, self.timeout_s))
-                while pending and len(workers) < self.jobs:
-                    w = _Worker(ctx, self.memory_mb, self.measure_fn)
-                    self.workers_started += 1
-                    workers.append(w)
-                    task = pending.popleft()
-                    w.assign(task, options, time_limit_s(task, None, self.timeout_s))
+                        if w.assign(task, options, time_limit_s(task, None, self.timeout_s)):
+                            continue
+                        w.kill()  # its pipe broke: try a new worker, but not forever
+                        workers.remove(w)
+                        broken += 1
+                        if broken <= 3 * self.jobs:
+                            pending.appendleft(task)
+                        else:
+                            code = _exit_text(w.process.exitcode)
+                            yield (
+                                task,
+                                ("error", f"{task.path}: no worker would start ({code})", True),
+                            )
                 busy = [w for w in workers if w.task is not None]
+                if not busy:
+                    continue
                 now = time.monotonic()
                 wait_s = max(0.0, min(w.deadline for w in busy) - now)
                 handles = [w.conn for w in busy] + [w.process.sentinel for w in busy]
