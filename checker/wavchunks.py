@@ -187,7 +187,8 @@ def _read(fh: BinaryIO, file_size: int) -> WavHeader | None:
             nxt = _after_odd_chunk(fh, name, size, nxt, file_size, findings)
         pos = nxt
 
-    _check_riff_size(container, riff_size, ds64, file_size, pos, findings)
+    cut = bool(chunks) and chunks[-1].size > chunks[-1].present  # already reported
+    _check_riff_size(container, riff_size, ds64, file_size, pos, cut, findings)
     _check_required(seen, container, findings)
     return WavHeader(
         container=container,
@@ -212,7 +213,8 @@ def _short_chunk(name: str, size: int, present: int, file_size: int) -> str:
     if size >= 2**31 and file_size < size // 1024:
         text += f" (a size of {size / 2**30:.1f} GiB in a {file_size}-byte file)"
     if name == "data":
-        text += ": the file is truncated"
+        huge = size >= 2**31 and file_size < size // 1024
+        text += ": a wrong size field or a truncated file" if huge else ": the file is truncated"
     return text
 
 
@@ -338,6 +340,7 @@ def _check_riff_size(
     ds64: dict[str, int] | None,
     file_size: int,
     end: int,
+    cut: bool,
     findings: list[str],
 ) -> None:
     if container != "RIFF" and riff_size == 0xFFFFFFFF:
@@ -346,6 +349,8 @@ def _check_riff_size(
             return
         riff_size = ds64["riff_size"]
     claimed = riff_size + 8
+    if claimed > file_size and cut:
+        return  # the short chunk's finding already says the file ends early
     if claimed > file_size:
         text = f"{container} header claims {claimed} bytes, the file has {file_size}"
         if riff_size >= 2**31 and file_size < riff_size // 1024:

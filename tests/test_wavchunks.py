@@ -333,6 +333,12 @@ def test_rf64_ds64_sizes(tmp_path):
     data = [c for c in header.chunks if c.chunk_id == "data"][0]
     assert data.size == data.present == x.shape[0] * 4
     assert header.findings == ()
+    # BW64 (ITU-R BS.2088, from memory) uses the same ds64 layout under another magic.
+    bw64 = tmp_path / "b.wav"
+    bw64.write_bytes(b"BW64" + path.read_bytes()[4:])
+    header = read_wav_header(str(bw64))
+    assert header.container == "BW64" and header.ds64["data_size"] == x.shape[0] * 4
+    assert header.findings == ()
 
 
 def test_non_wav_has_empty_keys(tmp_path):
