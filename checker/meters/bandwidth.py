@@ -167,7 +167,7 @@ def analyse(power: np.ndarray, rate_hz: int, frames: int, bits: int | None) -> B
     nyquist = rate_hz / 2.0
     nbins = power.shape[0]
     if frames < MIN_FRAMES:
-        need = MIN_FRAMES * (nbins - 1) / rate_hz  # hop = n/2 = nbins - 1
+        need = (MIN_FRAMES + 1) * (nbins - 1) / rate_hz  # (frames - 1) hops + n, hop = n/2
         return _none(f"cannot judge: too short for a long-term spectrum (needs about {need:.2f} s)")
     band = power[1:]
     mean_power = float(band.mean())
