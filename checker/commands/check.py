@@ -163,9 +163,11 @@ def run(args, out: TextIO, err: TextIO) -> int:
             on_note=notes.append,
         )
     except Interrupted as exc:
-        again = " ".join(shlex.quote(a) for a in ["deliverycheck", *sys.argv[1:]])
-        if not sys.argv[1:] or sys.argv[1] != "check":
-            again = "the same deliverycheck check command"
+        # --fresh would measure everything again: the resume command leaves it out.
+        resume = [a for a in sys.argv[1:] if a != "--fresh"]
+        again = " ".join(shlex.quote(a) for a in ["deliverycheck", *resume])
+        if not resume or resume[0] != "check":
+            again = "the same deliverycheck check command (without --fresh)"
         print(
             f"deliverycheck: interrupted: {exc.done} of {exc.total} files finished and kept in "
             f"{out_dir / 'results.sqlite'}; no report written.",
