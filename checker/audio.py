@@ -9,6 +9,14 @@ frame counts can be far off). ``frames_declared`` keeps what the header said;
 Integer PCM is read as int32 so the sample-domain meters see the exact
 integer codes; the float view handed to every meter is ``int32 / 2**31``.
 Float and lossy files are read as float64.
+
+The loop calls libsndfile's ``sf_readf_*`` through soundfile's cffi handles
+instead of ``SoundFile.read``: that wrapper clamps every read to the header's
+frame count and calls ``sf_seek`` around each read, which fails on a FLAC
+without a length ("Internal psf_fseek() failed") and would stop an MP3 at its
+estimated length. A decoding error part-way raises AudioReadError naming the
+time of the first frame that could not be decoded; blocks already yielded
+stay valid, but measure() reports the file as an error (no partial results).
 """
 
 from __future__ import annotations
@@ -20,6 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import soundfile as sf
+from soundfile import _ffi, _snd  # libsndfile's C functions (see the loop)
 
 from checker.errors import AudioReadError, UnsupportedAudioError
 
@@ -89,11 +98,30 @@ class Block:
 
 def open_info(path: str) -> StreamInfo:
     """Read the header only. Raises AudioReadError with a one-line message."""
+    check_file(path)
     try:
         info = sf.info(path)
     except Exception as exc:  # soundfile raises several types (LibsndfileError, RuntimeError)
         raise AudioReadError(f"{path}: cannot open as audio ({_clean(exc)})") from None
     return _check_info(path, info)
+
+
+def check_file(path: str) -> None:
+    """Fail early, with a plain reason, on what libsndfile reports vaguely ("System error.",
+    "Format not recognised."): a directory, a dangling link, no permission, an empty file."""
+    if os.path.isdir(path):
+        raise AudioReadError(f"{path}: is a directory (expected an audio file)")
+    if os.path.islink(path) and not os.path.exists(path):
+        raise AudioReadError(f"{path}: dangling symbolic link (its target does not exist)")
+    try:
+        with open(path, "rb") as fh:
+            size = os.fstat(fh.fileno()).st_size
+    except OSError as exc:
+        raise AudioReadError(
+            f"{path}: cannot open ({exc.strerror or type(exc).__name__})"
+        ) from None
+    if size == 0:
+        raise AudioReadError(f"{path}: size = 0 bytes (expected an audio file)")
 
 
 def _clean(exc: BaseException) -> str:
@@ -137,12 +165,14 @@ def read_blocks(
     """
     if block_frames < 1:
         raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
-    if os.path.isdir(path):
-        raise AudioReadError(f"{path}: is a directory (expected an audio file)")
+    check_file(path)
     try:
         handle = sf.SoundFile(path)
     except Exception as exc:
-        raise AudioReadError(f"{path}: cannot open as audio ({_clean(exc)})") from None
+        reason = _clean(exc)
+        if "does not exist" in reason:  # libsndfile's words for a codec stream it cannot start
+            reason = "the audio stream cannot be decoded"
+        raise AudioReadError(f"{path}: cannot open as audio ({reason})") from None
     try:
         info = _check_info(path, handle)
     except Exception:
@@ -155,19 +185,20 @@ def _iterate(handle: sf.SoundFile, info: StreamInfo, block_frames: int) -> Itera
     integer = info.is_integer_pcm
     dtype = "int32" if integer else "float64"
     buf = np.empty((block_frames, info.channels), dtype=dtype)
+    readf = _snd.sf_readf_int if integer else _snd.sf_readf_double
+    pointer = _ffi.cast("int *" if integer else "double *", buf.ctypes.data)
     start = 0
     try:
         with handle:
             while True:
-                try:
-                    n = handle.read(out=buf, dtype=dtype, always_2d=True)
-                    n = len(n)
-                except Exception as exc:
+                n = int(readf(handle._file, pointer, block_frames))
+                if _snd.sf_error(handle._file):
+                    reason = _ffi.string(_snd.sf_strerror(handle._file)).decode(errors="replace")
                     raise AudioReadError(
-                        f"{info.path}: decoding failed at {start / info.sample_rate_hz:.2f} s "
-                        f"({_clean(exc)})"
-                    ) from None
-                if n == 0:
+                        f"{info.path}: decoding failed at "
+                        f"{(start + max(n, 0)) / info.sample_rate_hz:.2f} s ({reason.strip()})"
+                    )
+                if n <= 0:
                     break
                 if integer:
                     raw = buf[:n]

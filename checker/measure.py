@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+import os
+from dataclasses import dataclass, field, replace
 from typing import Any
 
+import numpy as np
+
 from checker import __version__
-from checker.audio import StreamInfo, read_blocks
-from checker.errors import AudioReadError
+from checker.audio import Block, StreamInfo, read_blocks
+from checker.errors import AudioReadError, UnsupportedAudioError
 from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
@@ -17,7 +20,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine1"
+ENGINE_VERSION = f"{__version__}+engine2"
 
 
 @dataclass(frozen=True)
@@ -93,34 +96,146 @@ def stream_values(info: StreamInfo, frames: int, layout: Layout) -> dict[str, An
 def stream_findings(info: StreamInfo, frames: int) -> list[str]:
     findings = []
     declared = info.frames_declared
+    rate = info.sample_rate_hz
     if declared is not None and declared != frames:
-        rate = info.sample_rate_hz
         what = "truncated" if frames < declared else "longer than declared"
         findings.append(
             f"header declares {declared / rate:.3f} s ({declared} frames), "
             f"{frames / rate:.3f} s ({frames} frames) decoded: {what}"
         )
+    if declared is None:
+        findings.append(f"header gives no length; {frames / rate:.3f} s ({frames} frames) decoded")
+    if frames == 0:
+        findings.append("no audio: 0 frames decoded")
     return findings
+
+
+#: WAVE format tags of uncompressed audio, whose 'data' size gives the frame count
+#: (0x0001 PCM, 0x0003 IEEE float; Microsoft mmreg.h).
+UNCOMPRESSED_TAGS = (0x0001, 0x0003)
+#: Tags libsndfile 1.2 decodes inside WAV (PCM, float, A-law, mu-law, IMA/MS ADPCM,
+#: GSM 6.10, G.721, MPEG layer III: soundfile.available_subtypes("WAV"); tag values
+#: from mmreg.h, from memory), and WAVE_FORMAT_EXTENSIBLE.
+DECODABLE_TAGS = (1, 3, 0x0006, 0x0007, 0x0011, 0x0002, 0x0031, 0x0040, 0x0055, 0xFFFE)
+
+
+def _wav_tag(header: WavHeader) -> int | None:
+    if header.format_tag == 0xFFFE:
+        return header.subformat_tag
+    return header.format_tag
+
+
+def header_frames(header: WavHeader | None) -> int | None:
+    """Frames the WAV 'data' chunk size declares (uncompressed formats only), else None.
+
+    libsndfile clamps a truncated file's frame count to what is present and only
+    logs it, so this is what "header declares" means for a WAV."""
+    if header is None or _wav_tag(header) not in UNCOMPRESSED_TAGS:
+        return None
+    if not header.channels or not header.bits_per_sample:
+        return None
+    data = next((c for c in header.chunks if c.chunk_id == "data"), None)
+    if data is None or data.size == 0xFFFFFFFF:
+        return None
+    return data.size // (header.channels * ((header.bits_per_sample + 7) // 8))
+
+
+def check_header(path: str, info: StreamInfo, header: WavHeader | None) -> StreamInfo:
+    """``info`` with the WAV header's frame count when it declares more than libsndfile
+    reports (a truncated file); raises AudioReadError for a never-finalised header."""
+    if header is None:
+        return info
+    data = next((c for c in header.chunks if c.chunk_id == "data"), None)
+    if data is not None and data.size == 0:
+        after = header.file_size - (data.offset + 8)
+        if after > 0:
+            raise AudioReadError(
+                f"{path}: 'data' chunk size = 0 with {after} bytes after it (expected the "
+                "size of the audio; the header was never finalised, e.g. a recorder that "
+                "did not close the file)"
+            )
+    declared = header_frames(header)
+    if declared is not None and (info.frames_declared is None or declared > info.frames_declared):
+        return replace(info, frames_declared=declared)
+    return info
+
+
+def open_error(path: str, exc: AudioReadError) -> AudioReadError:
+    """The open failure, naming an undecodable WAV format tag, plus the header's findings."""
+    header = read_wav_header(path)
+    tag = _wav_tag(header) if header is not None else None
+    if tag is not None and tag not in DECODABLE_TAGS and not isinstance(exc, UnsupportedAudioError):
+        return UnsupportedAudioError(
+            f"{path}: wav_format_tag = 0x{tag:04X} (expected a codec this reader decodes, "
+            "e.g. 0x0001 PCM or 0x0003 float)"
+        )
+    return type(exc)(with_header_findings(path, str(exc)))
+
+
+def _stat(path: str) -> tuple[int, int]:
+    """(size, mtime in ns), or (-1, -1) when the file cannot be stat'ed."""
+    try:
+        st = os.stat(path)
+    except OSError:
+        return (-1, -1)
+    return (st.st_size, st.st_mtime_ns)
+
+
+class FiniteBlocks:
+    """Replaces NaN/Inf in float blocks by 0 in place (the buffer is the reader's own), once,
+    so every meter sees finite samples. The levels meter counts them first: it is fed
+    the untouched block (see measure())."""
+
+    def __init__(self) -> None:
+        self.dirty = False
+
+    def check(self, block: Block) -> bool:
+        """True when the block holds non-finite samples (float files only)."""
+        self.dirty = block.raw is None and not np.isfinite(block.x).all()
+        return self.dirty
+
+    @staticmethod
+    def clean(block: Block) -> None:
+        np.copyto(block.x, 0.0, where=~np.isfinite(block.x))
 
 
 def measure(path: str, options: MeasureOptions | None = None) -> Measurement:
     """Measure one file in a single streaming pass. Raises AudioReadError."""
     options = options or MeasureOptions()
+    before = _stat(str(path))
     try:
         info, blocks = read_blocks(str(path), options.block_frames)
     except AudioReadError as exc:  # say what the WAV header reader saw, if anything
-        raise type(exc)(with_header_findings(str(path), str(exc))) from None
+        raise open_error(str(path), exc) from None
     header = read_wav_header(str(path))  # header only (seeks past the audio); None if not WAV
+    info = check_header(str(path), info, header)
     layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
+    # The levels meter counts NaN/Inf; every other meter gets them as 0.
+    counting = [m for m in meters if type(m).__name__ == "LevelsMeter"]
+    others = [m for m in meters if type(m).__name__ != "LevelsMeter"]
+    finite = FiniteBlocks()
     frames = 0
     for block in blocks:
         frames += block.frames
-        for meter in meters:
-            meter.feed(block)
+        if finite.check(block):
+            for meter in counting:
+                meter.feed(block)
+            finite.clean(block)
+            for meter in others:
+                meter.feed(block)
+        else:
+            for meter in meters:
+                meter.feed(block)
     values = stream_values(info, frames, layout)
     values.update(header.values() if header else empty_values())
     findings = stream_findings(info, frames)
+    after = _stat(str(path))
+    if after != before:
+        findings.append(
+            f"file changed while it was read (size {before[0]} -> {after[0]} bytes): "
+            "measure it again once it is complete"
+        )
     findings.extend(header.findings if header else ())
     series: dict[str, Any] = {}
     for meter in meters:

@@ -1,0 +1,299 @@
+"""Generators of a corpus of broken, hostile and odd audio inputs (made by tests, nothing stored).
+
+Every maker takes a directory, writes one small item into it and returns its
+path. ``CORPUS`` maps an item name to its maker; ``NAMED_FILES`` lists hostile
+file names that hold a perfectly good WAV. WAV headers are crafted with
+``struct`` (RIFF/WAVE layout: "RIFF" size "WAVE", then chunks of 4-byte id,
+little-endian uint32 size, body; ``fmt `` body = format tag, channels, sample
+rate, byte rate, block align, bits per sample: Microsoft RIFF/WAVE spec).
+
+Common facts for the crafted files: 48 kHz, 16-bit PCM unless a name says
+otherwise; the sine is 1 kHz at -20 dBFS so any measured level is ordinary.
+"""
+
+from __future__ import annotations
+
+import os
+import struct
+import zlib
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+import soundfile as sf
+
+RATE_HZ = 48_000
+FORMAT_PCM = 0x0001
+FORMAT_FLOAT = 0x0003
+FORMAT_MPEG_LAYER3 = 0x0055  # WAVE_FORMAT_MPEGLAYER3 (mmreg.h)
+FORMAT_UNKNOWN = 0x7A7A  # not a registered WAVE format tag
+
+#: NaN/Inf placement in the float item (frames at 48 kHz): 12 NaN from 1.200 s, 3 Inf from 1.500 s.
+NAN_FIRST_FRAME = 57_600
+NAN_COUNT = 12
+INF_FIRST_FRAME = 72_000
+INF_COUNT = 3
+
+
+def sine_pcm16(duration_s: float, channels: int = 1, rate: int = RATE_HZ) -> bytes:
+    """Interleaved little-endian int16 samples of a 1 kHz sine at -20 dBFS."""
+    n = int(round(duration_s * rate))
+    t = np.arange(n) / rate
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * t)
+    codes = np.round(x * 32767).astype("<i2")
+    return np.repeat(codes[:, None], channels, axis=1).tobytes()
+
+
+def wav_bytes(
+    data: bytes,
+    *,
+    channels: int = 1,
+    rate: int = RATE_HZ,
+    bits: int = 16,
+    format_tag: int = FORMAT_PCM,
+    data_size: int | None = None,
+    riff_size: int | None = None,
+    extra_fmt: bytes = b"",
+) -> bytes:
+    """A RIFF/WAVE file: ``fmt `` then ``data``; sizes default to the truth."""
+    align = channels * bits // 8
+    fmt = struct.pack("<HHIIHH", format_tag, channels, rate, rate * align, align, bits) + extra_fmt
+    body = b"WAVE" + b"fmt " + struct.pack("<I", len(fmt)) + fmt
+    body += b"data" + struct.pack("<I", len(data) if data_size is None else data_size) + data
+    if len(data) % 2:
+        body += b"\0"
+    return b"RIFF" + struct.pack("<I", len(body) if riff_size is None else riff_size) + body
+
+
+def good_wav(path: Path, duration_s: float = 1.0) -> Path:
+    path.write_bytes(wav_bytes(sine_pcm16(duration_s)))
+    return path
+
+
+# --- The items ---------------------------------------------------------------------------
+
+
+def zero_byte(d: Path) -> Path:
+    p = d / "zero-byte.wav"
+    p.write_bytes(b"")
+    return p
+
+
+def header_only(d: Path) -> Path:
+    """A 44-byte header that promises 1 s of audio; the file ends there."""
+    p = d / "header-only.wav"
+    p.write_bytes(wav_bytes(b"", data_size=2 * RATE_HZ, riff_size=36 + 2 * RATE_HZ))
+    return p
+
+
+def data_claims_more(d: Path) -> Path:
+    """Header declares 3.000 s (144000 frames); 2.400 s (115200 frames) present: truncated."""
+    p = d / "truncated.wav"
+    full = wav_bytes(sine_pcm16(3.0))
+    p.write_bytes(full[: 44 + 2 * 115_200])
+    return p
+
+
+def data_claims_less(d: Path) -> Path:
+    """Data chunk claims 1.000 s (48000 frames); 2.000 s of samples follow it."""
+    p = d / "data-claims-less.wav"
+    samples = sine_pcm16(2.0)
+    p.write_bytes(wav_bytes(samples, data_size=2 * RATE_HZ, riff_size=36 + len(samples)))
+    return p
+
+
+def riff_size_zero(d: Path) -> Path:
+    """RIFF size 0 and data size 0, 2.000 s of samples follow: a recorder that never closed it."""
+    p = d / "never-closed.wav"
+    p.write_bytes(wav_bytes(sine_pcm16(2.0), data_size=0, riff_size=0))
+    return p
+
+
+def riff_size_zero_data_ok(d: Path) -> Path:
+    """RIFF size 0 only (data size right): 1.000 s."""
+    p = d / "riff-size-zero.wav"
+    p.write_bytes(wav_bytes(sine_pcm16(1.0), riff_size=0))
+    return p
+
+
+def text_as_wav(d: Path) -> Path:
+    p = d / "notes.wav"
+    p.write_text("Session notes: take 3 is the keeper.\n" * 20)
+    return p
+
+
+def png_bytes() -> bytes:
+    """A valid 1 x 1 grey PNG (PNG spec: signature, IHDR, IDAT, IEND; CRC-32 over type+data)."""
+
+    def chunk(kind: bytes, data: bytes) -> bytes:
+        crc = zlib.crc32(kind + data) & 0xFFFFFFFF
+        return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", crc)
+
+    ihdr = struct.pack(">IIBBBBB", 1, 1, 8, 0, 0, 0, 0)  # 1x1, 8-bit greyscale
+    idat = zlib.compress(b"\x00\x80")  # filter byte 0, one grey pixel
+    return b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", ihdr) + chunk(b"IDAT", idat) + chunk(b"IEND", b"")
+
+
+def image_as_wav(d: Path) -> Path:
+    p = d / "cover.wav"
+    p.write_bytes(png_bytes())
+    return p
+
+
+def channels_0(d: Path) -> Path:
+    p = d / "channels-0.wav"
+    p.write_bytes(wav_bytes(b"\0" * 400, channels=0))
+    return p
+
+
+def channels_1000(d: Path) -> Path:
+    """1000 channels x 48 frames of silence (96 kB)."""
+    p = d / "channels-1000.wav"
+    p.write_bytes(wav_bytes(b"\0" * (2 * 1000 * 48), channels=1000))
+    return p
+
+
+def rate_1_hz(d: Path) -> Path:
+    p = d / "rate-1hz.wav"
+    p.write_bytes(wav_bytes(sine_pcm16(0.01), rate=1))
+    return p
+
+
+def rate_10_mhz(d: Path) -> Path:
+    p = d / "rate-10mhz.wav"
+    p.write_bytes(wav_bytes(sine_pcm16(0.01), rate=10_000_000))
+    return p
+
+
+def float_nan_inf(d: Path) -> Path:
+    """32-bit float WAV, 2.000 s mono sine at -20 dBFS with 12 NaN from 1.200 s and 3 +Inf
+    from 1.500 s (both positions stated at 48 kHz)."""
+    p = d / "nan-inf.wav"
+    n = 2 * RATE_HZ
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * np.arange(n) / RATE_HZ)
+    x = x.astype("<f4")
+    x[NAN_FIRST_FRAME : NAN_FIRST_FRAME + NAN_COUNT] = np.nan
+    x[INF_FIRST_FRAME : INF_FIRST_FRAME + INF_COUNT] = np.inf
+    p.write_bytes(wav_bytes(x.tobytes(), bits=32, format_tag=FORMAT_FLOAT))
+    return p
+
+
+def zero_frames(d: Path) -> Path:
+    p = d / "zero-frames.wav"
+    p.write_bytes(wav_bytes(b""))
+    return p
+
+
+def codec_mp3_in_wav(d: Path) -> Path:
+    """Format tag 0x0055 (MPEG layer 3 in WAV, which libsndfile decodes) with a complete
+    MPEGLAYER3WAVEFORMAT extension (cbSize 12: wID 1, flags 0, block size 384, 1 frame per
+    block, codec delay 1393; mmreg.h layout) but 10 kB of bytes that are not MPEG frames."""
+    p = d / "codec-0055-garbage.wav"
+    ext = struct.pack("<HHIHHH", 12, 1, 0, 384, 1, 1393)
+    raw = bytearray(wav_bytes(bytes(range(256)) * 40, format_tag=FORMAT_MPEG_LAYER3, extra_fmt=ext))
+    struct.pack_into("<IHH", raw, 28, 16_000, 1, 0)  # byte rate 128 kbit/s, block align 1, bits 0
+    p.write_bytes(bytes(raw))
+    return p
+
+
+def codec_unknown(d: Path) -> Path:
+    p = d / "codec-unknown.wav"
+    p.write_bytes(wav_bytes(sine_pcm16(0.5), format_tag=FORMAT_UNKNOWN))
+    return p
+
+
+def flac_no_length(d: Path) -> Path:
+    """A 1.000 s FLAC whose STREAMINFO total-samples field is zeroed ("unknown").
+
+    FLAC format: "fLaC", a 4-byte metadata block header, then STREAMINFO: 10 bytes of
+    block/frame sizes, then 20 bits rate, 3 bits channels-1, 5 bits bps-1 and 36 bits
+    total samples: the low nibble of STREAMINFO byte 13 and bytes 14-17 (file bytes 21-25).
+    """
+    p = d / "no-length.flac"
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * np.arange(RATE_HZ) / RATE_HZ)
+    sf.write(str(p), x, RATE_HZ, subtype="PCM_16", format="FLAC")
+    raw = bytearray(p.read_bytes())
+    assert raw[:4] == b"fLaC" and raw[4] & 0x7F == 0  # first block is STREAMINFO
+    raw[21] &= 0xF0
+    raw[22:26] = b"\0\0\0\0"
+    p.write_bytes(bytes(raw))
+    return p
+
+
+def mp3_available() -> bool:
+    return "MP3" in sf.available_formats()
+
+
+def mp3_garbage_middle(d: Path) -> Path:
+    """A 3.000 s MP3 (libsndfile >= 1.1 writes MPEG layer III) with its middle third
+    overwritten by seeded random bytes."""
+    p = d / "garbage-middle.mp3"
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * np.arange(3 * RATE_HZ) / RATE_HZ)
+    sf.write(str(p), x, RATE_HZ, format="MP3", subtype="MPEG_LAYER_III")
+    raw = bytearray(p.read_bytes())
+    lo, hi = len(raw) // 3, 2 * len(raw) // 3
+    raw[lo:hi] = np.random.default_rng(12).integers(0, 256, hi - lo, dtype=np.uint8).tobytes()
+    p.write_bytes(bytes(raw))
+    return p
+
+
+def unreadable(d: Path) -> Path:
+    """A good WAV with mode 000 (root reads it anyway; see the test)."""
+    p = good_wav(d / "unreadable.wav")
+    os.chmod(p, 0)
+    return p
+
+
+def dangling_symlink(d: Path) -> Path:
+    p = d / "dangling.wav"
+    os.symlink(d / "gone-away.wav", p)
+    return p
+
+
+def directory_named_wav(d: Path) -> Path:
+    p = d / "x.wav"
+    p.mkdir()
+    return p
+
+
+#: name -> maker of every broken item (hostile names are separate: they hold good audio).
+CORPUS: dict[str, Callable[[Path], Path]] = {
+    "zero_byte": zero_byte,
+    "header_only": header_only,
+    "data_claims_more": data_claims_more,
+    "data_claims_less": data_claims_less,
+    "riff_size_zero": riff_size_zero,
+    "riff_size_zero_data_ok": riff_size_zero_data_ok,
+    "text_as_wav": text_as_wav,
+    "image_as_wav": image_as_wav,
+    "channels_0": channels_0,
+    "channels_1000": channels_1000,
+    "rate_1_hz": rate_1_hz,
+    "rate_10_mhz": rate_10_mhz,
+    "float_nan_inf": float_nan_inf,
+    "zero_frames": zero_frames,
+    "codec_mp3_in_wav": codec_mp3_in_wav,
+    "codec_unknown": codec_unknown,
+    "flac_no_length": flac_no_length,
+    "mp3_garbage_middle": mp3_garbage_middle,
+    "unreadable": unreadable,
+    "dangling_symlink": dangling_symlink,
+    "directory_named_wav": directory_named_wav,
+}
+
+#: Hostile but legal file names; each holds a good 1 s WAV.
+NAMED_FILES: dict[str, str] = {
+    "spaces": "take  one final .wav",
+    "unicode": "Grüße 音声 ☃ café.wav",
+    "newline": "line one\nline two.wav",
+    "quotes": 'it\'s "final".wav',
+    "html": "<img src=x onerror=alert(1)>.wav",
+    "formula_equals": "=cmd.wav",
+    "formula_plus": "+1.wav",
+    "formula_minus": "-x.wav",
+    "formula_at": "@a.wav",
+}
+
+
+def named_file(d: Path, key: str) -> Path:
+    return good_wav(d / NAMED_FILES[key])
