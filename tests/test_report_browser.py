@@ -1,0 +1,249 @@
+"""report.html opened from disk in headless Chromium (Debian's package), driven by Playwright.
+
+Skips with a reason where /usr/bin/chromium or Playwright is absent (.ci/run installs
+Chromium). The fixtures are the FileResult batch of test_report_csv (no audio).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+from pathlib import Path
+
+import pytest
+from test_report_csv import HOSTILE, make_results, make_run, timeline, values
+
+from checker.measure import Measurement
+from checker.report import write_reports
+from checker.report.atomic import write_text_atomic
+from checker.report.html import render_html
+from checker.results import FileResult
+from checker.verdict import Flag, GainAdvice, Verdict
+
+CHROMIUM = Path("/usr/bin/chromium")
+ARGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--no-first-run",
+]
+
+pytestmark = pytest.mark.browser
+
+if not CHROMIUM.exists():
+    pytest.skip(
+        f"{CHROMIUM} not found: install Debian's chromium (apt-get install chromium) "
+        "to run the browser tests",
+        allow_module_level=True,
+    )
+sync_api = pytest.importorskip("playwright.sync_api", reason="playwright is not installed")
+
+
+@pytest.fixture(scope="module")
+def browser():
+    with sync_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=str(CHROMIUM), args=ARGS)
+        yield b
+        b.close()
+
+
+class Watch:
+    """Everything the page tries to do that it should not: requests, dialogs, errors."""
+
+    def __init__(self, page, allowed_url: str):
+        self.requests: list[str] = []
+        self.dialogs: list[str] = []
+        self.errors: list[str] = []
+        page.on("dialog", self._dialog)
+        page.on("pageerror", lambda e: self.errors.append(str(e)))
+        page.on("console", lambda m: m.type == "error" and self.errors.append(m.text))
+        page.route("**/*", self._route)
+        self.allowed = allowed_url
+
+    def _dialog(self, dialog):
+        self.dialogs.append(dialog.message)
+        dialog.dismiss()
+
+    def _route(self, route):
+        url = route.request.url
+        self.requests.append(url)
+        if url == self.allowed:
+            route.continue_()
+        else:
+            route.abort()
+
+
+def open_report(browser, html: Path, width: int = 1440):
+    page = browser.new_page(viewport={"width": width, "height": 1000})
+    watch = Watch(page, html.as_uri())
+    page.goto(html.as_uri())
+    return page, watch
+
+
+def column_texts(page, key: str) -> list[str]:
+    """Visible cells of one column, in display order."""
+    return page.evaluate(
+        """(key) => {
+            const th = document.querySelector('#file-table thead th.h-' + key);
+            const n = Array.prototype.indexOf.call(th.parentNode.children, th);
+            return Array.from(document.querySelectorAll('#file-rows tr'))
+                .filter(tr => !tr.hidden).map(tr => tr.children[n].textContent.trim());
+        }""",
+        key,
+    )
+
+
+def wait_shown(page, count: int) -> None:
+    """The text filter is debounced: wait for the live count (no eval: the page's CSP forbids it)."""
+    sync_api.expect(page.locator("#shown")).to_have_text(re.compile(rf"^Showing {count} of "))
+
+
+def as_number(text: str) -> float:
+    return -math.inf if text == "-inf" else float(text)
+
+
+@pytest.fixture(scope="module")
+def report(tmp_path_factory):
+    out = tmp_path_factory.mktemp("html")
+    return write_reports(out, make_run(), make_results())["html"]
+
+
+def test_sort_filter_detail_and_nothing_leaves_the_page(browser, report, tmp_path):
+    page, watch = open_report(browser, report)
+    # Styles and script run under the page's CSP (hashes): the body colour and the live count.
+    assert page.evaluate("getComputedStyle(document.body).backgroundColor") == "rgb(245, 243, 238)"
+    csp = page.get_attribute('meta[http-equiv="Content-Security-Policy"]', "content")
+    assert csp.startswith("default-src 'none'")
+    # Failures first by default (error, then fail, then warn, then pass).
+    statuses = column_texts(page, "status")
+    assert [s[-4:] for s in statuses][:3] == ["rror", "fail", "fail"]
+    assert statuses[-1].endswith("pass")
+
+    # Sort by true peak: ascending puts digital silence (-inf) first and the empty cell last.
+    page.click("th.h-true_peak_dbtp button")
+    assert page.get_attribute("th.h-true_peak_dbtp", "aria-sort") == "ascending"
+    peaks = column_texts(page, "true_peak_dbtp")
+    assert peaks[0] == "-inf" and peaks[-1] == ""
+    numbers = [as_number(t) for t in peaks[:-1]]
+    assert numbers == sorted(numbers)
+    page.click("th.h-true_peak_dbtp button")
+    peaks = column_texts(page, "true_peak_dbtp")
+    assert page.get_attribute("th.h-true_peak_dbtp", "aria-sort") == "descending"
+    assert peaks[0] == "+0.6" and peaks[-2:] == ["-inf", ""]  # empty stays last
+
+    # Filter to failures only, then by text.
+    for status in ("error", "warn", "pass"):
+        page.uncheck(f'input[name=status][value="{status}"]')
+    assert [s[-4:] for s in column_texts(page, "status")] == ["fail", "fail"]
+    assert page.text_content("#shown") == "Showing 2 of 8 files"
+    page.fill("#q", "ep02")
+    wait_shown(page, 1)
+    assert column_texts(page, "path") == ["ep02_final.wavprogramme/"]
+
+    # The detail view: flags with measured vs limit, gain advice and a graph with points.
+    page.click("#file-rows tr:not([hidden]) button.open")
+    assert page.is_visible("dialog#detail")
+    assert page.text_content("#detail-title") == "ep02_final.wav"
+    flag_rows = page.locator("#detail-body table.flags tbody tr")
+    assert flag_rows.count() == 2
+    assert "0.60 dBTP" in flag_rows.nth(1).text_content()
+    assert "-1.00 dBTP" in flag_rows.nth(1).text_content()
+    assert "0:12 (12.30 s)" in flag_rows.nth(1).text_content()
+    assert "Listening level" in page.text_content("#detail-body")
+    points = int(page.get_attribute("#detail-body svg path.short-term", "data-points"))
+    assert points > 100  # 1800 stored windows reduced to <= 480 points
+    d = page.get_attribute("#detail-body svg path.short-term", "d")
+    assert len(re.findall(r"[ML]", d)) == points
+    assert page.locator("#detail-body svg line.ceiling").count() == 1
+    assert page.locator("#detail-body svg rect.band").count() == 1
+    assert page.locator("#detail-body svg g.mark").count() == 3  # 2 overs + the flag position
+    shot = tmp_path / "detail.png"
+    page.screenshot(path=str(shot))
+    assert shot.stat().st_size > 10_000
+    page.click("#detail-close")
+    assert not page.is_visible("dialog#detail")
+
+    # The page may not fetch anything: the CSP refuses it before a request is made.
+    outcome = page.evaluate(
+        "fetch('https://example.invalid/x').then(() => 'loaded', () => 'blocked')"
+    )
+    assert outcome == "blocked"
+    assert watch.requests == [report.as_uri()]
+    assert watch.dialogs == []
+    assert [e for e in watch.errors if "example.invalid" not in e] == []
+    page.close()
+
+
+def test_hostile_file_name_stays_text(browser, report, tmp_path):
+    page, watch = open_report(browser, report)
+    name = HOSTILE.rsplit("/", 1)[1]
+    assert page.get_by_text(name, exact=True).count() == 1  # the table cell shows it as text
+    assert page.locator("img").count() == 0
+    assert page.locator("script:not([type])").count() == 1  # only the report's own script
+    page.fill("#q", "onerror")
+    wait_shown(page, 1)
+    page.click("#file-rows tr:not([hidden]) button.open")
+    assert page.text_content("#detail-title") == name
+    body = page.text_content("#detail-body")
+    assert "</script><script>alert(3)</script> no room tone at the head" in body
+    page.click("#detail-body details.all summary")
+    assert '"><script>alert(2)</script>' in page.text_content("#detail-body table.kv")
+    assert page.locator("img").count() == 0
+    page.screenshot(path=str(tmp_path / "hostile.png"), full_page=True)
+    assert watch.dialogs == [] and watch.errors == []
+    assert watch.requests == [report.as_uri()]
+    page.close()
+
+
+def many_results(n: int):
+    """n files with varied levels; a few shared timelines keep the fixture quick to build."""
+    timelines = [timeline(12.0, -23.0 + k, seed=k) for k in range(8)]
+    out = []
+    for i in range(n):
+        tp = -6.0 + (i * 37 % 70) / 10.0
+        status = "fail" if tp > -1.0 else ("warn" if i % 7 == 0 else "pass")
+        flags = (
+            (Flag("true_peak_max_dbtp", "fail", tp, -1.0, "dBTP", "Over the ceiling.", 1.5),)
+            if status == "fail"
+            else ()
+        )
+        vals = values(true_peak_dbtp=tp if i % 500 else -math.inf, duration_s=12.0,
+                      integrated_lufs=-30.0 + (i % 13))  # fmt: skip
+        gain = GainAdvice(-23.0 - vals["integrated_lufs"], tp, None, tp < -1.0, "Adjust.")
+        path = f"batch/{i // 100:02d}/take_{i:05d}.wav"
+        m = Measurement(path=path, values=vals, timeline=timelines[i % 8])
+        out.append(FileResult(path, status, m, Verdict(status, flags, gain)))
+    return out
+
+
+def test_five_thousand_rows_sort_and_filter(browser, tmp_path):
+    html = write_text_atomic(
+        tmp_path / "report.html", render_html(make_run(), many_results(5000), "now")
+    )
+    assert os.path.getsize(html) < 80_000_000
+    page, watch = open_report(browser, html)
+    assert page.locator("#file-rows tr").count() == 5000
+    # A smoke bound, not a benchmark: a sort that hangs the page would blow far past it.
+    elapsed_ms = page.evaluate(
+        """() => {
+            const t0 = performance.now();
+            document.querySelector('th.h-true_peak_dbtp button').click();
+            return performance.now() - t0;
+        }"""
+    )
+    assert elapsed_ms < 10_000
+    peaks = column_texts(page, "true_peak_dbtp")
+    assert peaks[:10] == ["-inf"] * 10  # every 500th file is silent
+    numbers = [as_number(t) for t in peaks]
+    assert numbers == sorted(numbers)
+    page.fill("#q", "take_04999")
+    wait_shown(page, 1)
+    page.click("#file-rows tr:not([hidden]) button.open")
+    assert int(page.get_attribute("#detail-body svg path.short-term", "data-points")) > 50
+    assert watch.errors == [] and watch.dialogs == []
+    assert watch.requests == [html.as_uri()]
+    page.close()
