@@ -377,6 +377,23 @@ def test_silence_empty_and_all_channels():
     assert r.true_peak_channel_dbtp[1] == -math.inf
 
 
+def test_nonfinite_samples_and_repeated_result():
+    """NaN/Inf samples in a float file are taken as 0 (house rule: NaN never appears);
+    result() does not change state, and feeding may continue after it."""
+    x = 0.25 * np.sin(2 * np.pi * 1000 * np.arange(9600) / 48_000)
+    x[96] = np.nan  # at zero crossings of the 1 kHz sine (every 24 samples), so taking
+    x[4800] = np.inf  # them as 0 restores the clean sine
+    r = measure(x)
+    assert_allclose(r.true_peak_dbtp, db(0.25), rtol=0, atol=0.01)  # the sine's amplitude
+    clean = 0.25 * np.sin(2 * np.pi * 1000 * np.arange(9600) / 48_000)
+    m = meter_for(clean[:, None], 48_000)
+    m.feed(Block(x=clean[:5000, None], raw=None, start=0))
+    first = m.result().to_dict()
+    assert m.result().to_dict() == first
+    m.feed(Block(x=clean[5000:, None], raw=None, start=5000))
+    assert m.result().to_dict() == measure(clean).to_dict()
+
+
 def test_skip_bound_uses_the_taps():
     # The bound sum |taps| is >= 1 for every phase (phase 0 is exactly 1: the sample itself).
     sums = phase_abs_sums(design_phases(4))

@@ -51,7 +51,6 @@ import math
 from collections.abc import Iterator
 
 import numpy as np
-from numpy.lib.stride_tricks import as_strided
 
 DEFAULT_TAPS_PER_PHASE = 32
 DEFAULT_KAISER_BETA = 5.0
@@ -196,8 +195,18 @@ class ChunkInterpolator:
         if self.factor == 1:
             return window[self.history : self.history + self.positions].copy()
         n_rows = self.positions // self.rows
-        step = window.itemsize
-        view = as_strided(window, shape=(n_rows, self.row_width), strides=(self.rows * step, step))
+        if window.dtype != np.float32 or not window.flags.c_contiguous:
+            raise ValueError("ChunkInterpolator.grid: window (expected C-contiguous float32)")
+        if window.shape[0] != self.window_frames:
+            raise ValueError(
+                f"ChunkInterpolator.grid: window frames = {window.shape[0]} "
+                f"(expected {self.window_frames})"
+            )
+        size = window.itemsize
+        # Overlapping rows (stride `rows` samples) over the window's memory: read-only use.
+        view = np.ndarray(
+            (n_rows, self.row_width), np.float32, buffer=window, strides=(self.rows * size, size)
+        )
         return np.dot(view, self.matrix).reshape(-1)
 
 

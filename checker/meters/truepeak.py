@@ -20,7 +20,8 @@ Method
   (1x: the grid is the samples, the fine evaluation still interpolates) the
   same bound is tested for tones up to fs / 4 only.
 - Samples are converted to float32 before interpolation (exact for 8-24 bit
-  PCM; about 1e-6 dB for 32-bit and float data).
+  PCM; about 1e-6 dB for 32-bit and float data). Non-finite samples of float
+  files (NaN, Inf; counted by the levels meter) are taken as 0 here.
 
 Edges (decision)
 ----------------
@@ -177,7 +178,10 @@ class TruePeakMeter:
         self.seen = 0
 
     def feed(self, block: Block) -> None:
-        for j, window in self.stream.push(block.x):
+        x = block.x
+        if block.raw is None and not np.isfinite(x).all():
+            x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
+        for j, window in self.stream.push(x):
             self._chunk(self.state, j, window, None)
 
     def _edge_masks(
@@ -238,13 +242,15 @@ class TruePeakMeter:
                 st.in_run[c] = False
                 continue
             above = centres > self.ceiling_amp
-            prev = np.empty_like(above)
-            prev[0] = st.in_run[c]
-            prev[1:] = above[:-1]
-            starts = np.flatnonzero(above & ~prev)
-            st.overs += int(starts.size)
-            need = max(0, self.max_positions - len(st.over_index))
-            events.extend((base + lo + int(k), c) for k in starts[:need])
+            rising = above[1:] > above[:-1]  # False -> True: a run starts at i + 1
+            first = bool(above[0]) and not st.in_run[c]
+            st.overs += int(np.count_nonzero(rising)) + int(first)
+            need = self.max_positions - len(st.over_index)
+            if need > 0:
+                starts = np.flatnonzero(rising)[:need] + 1
+                if first:
+                    starts = np.concatenate([[0], starts[: need - 1]])
+                events.extend((base + lo + int(k), c) for k in starts)
             st.in_run[c] = bool(above[-1])
         if events and len(st.over_index) < self.max_positions:
             events.sort()
