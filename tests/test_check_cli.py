@@ -38,12 +38,15 @@ description = "batch tests"
 
 [peaks]
 sample_peak_max_dbfs = {{ value = {limit}, severity = "fail", source = "test input" }}
+true_peak_max_dbtp = {{ value = {tp}, severity = "fail", source = "test input" }}
 """
 
 
-def write_profile(folder: Path, name: str, limit: float) -> Path:
+def write_profile(folder: Path, name: str, limit: float, tp: float = 3.0) -> Path:
+    # The two profiles differ in their true-peak ceiling too: measurements must not depend
+    # on it, so re-checking against the other profile still opens no audio.
     path = folder / f"{name}.toml"
-    path.write_text(PROFILE_TEMPLATE.format(name=name, limit=limit))
+    path.write_text(PROFILE_TEMPLATE.format(name=name, limit=limit, tp=tp))
     return path
 
 
@@ -106,8 +109,8 @@ def corpus(tmp_path_factory):
         )
     (src / "notes.wav").write_text("plain text, not audio\n")
     (src / "empty.flac").write_bytes(b"")
-    loose = write_profile(root, "loose", -1.0)
-    strict = write_profile(root, "strict", -10.0)
+    loose = write_profile(root, "loose", -1.0, 3.0)
+    strict = write_profile(root, "strict", -10.0, -12.0)
     ref = root / "reference"
     code, _, err = cli("check", str(src), "--profile", str(loose), "--out", str(ref), "--quiet")
     assert code == EXIT_UNCHECKED, err
