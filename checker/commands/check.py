@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
+import os
 import shlex
 import sys
 from pathlib import Path
@@ -50,6 +52,12 @@ def add_parser(sub) -> argparse.ArgumentParser:
         help="per-file time limit in seconds (default: 120 s plus the file's duration)",
     )
     p.add_argument(
+        "--mix",
+        metavar="FILE",
+        help="reference mix for a stem set: the stems must rebuild it (null test); "
+        "takes one folder PATH",
+    )
+    p.add_argument(
         "--worker-memory-mb",
         type=int,
         default=DEFAULT_MEMORY_MB,
@@ -68,35 +76,43 @@ def exit_code(results) -> int:
     return EXIT_OK
 
 
-def _write_reports(out_dir: Path, run, results) -> dict[str, Path]:
-    try:  # TEMPORARY stopgap until checker.report lands
-        from checker.report import write_reports
-    except ImportError:
-        return _stopgap_csv(out_dir, results)
-    return write_reports(out_dir, run, results)
+def stem_set_folders(args, profile) -> list[str]:
+    """Each folder PATH is one stem set when --mix is given or the profile has set limits."""
+    has_set_limits = any(row.get("scope") == "set" for row in profile.limits_table())
+    folders = [p for p in args.paths if os.path.isdir(p)]
+    if args.mix:
+        if len(folders) != 1 or len(args.paths) != 1:
+            raise UsageError(
+                f"--mix: PATH = {' '.join(args.paths)} (expected exactly one folder of stems)"
+            )
+        if not os.path.isfile(args.mix):
+            raise UsageError(f"--mix: {args.mix} (expected an existing audio file)")
+    return folders if (args.mix or has_set_limits) else []
 
 
-def _stopgap_csv(out_dir: Path, results) -> dict[str, Path]:  # TEMPORARY
-    import os
+def add_stem_sets(folders: list[str], mix: str | None, profile, results: list) -> list:
+    """Set-level rows (one per folder), each followed by its stems' own rows."""
+    from checker.batch import measure_options
+    from checker.stems import check_stem_set, evaluate_set, stem_set_from_folder
 
-    import pandas as pd
-
-    from checker.serial import json_safe
-
-    rows = []
-    for r in results:
-        row = {"path": r.path, "status": r.status, "error": r.error}
-        if r.measurement:
-            row.update(json_safe(r.measurement.values))
-        if r.verdict and r.verdict.flags:
-            row["flags"] = "; ".join(f.message for f in r.verdict.flags)
-        rows.append(row)
-    out_dir.mkdir(parents=True, exist_ok=True)
-    path = out_dir / "report.csv"
-    tmp = out_dir / ".report.csv.tmp"
-    pd.DataFrame(rows).to_csv(tmp, index=False, lineterminator="\n")
-    os.replace(tmp, path)
-    return {"csv": path}
+    by_path = {os.path.abspath(r.path): r for r in results}
+    ordered, used = [], set()
+    for folder in folders:
+        stem_set = stem_set_from_folder(folder, mix)
+        sm = check_stem_set(
+            list(stem_set.stem_paths),
+            stem_set.mix_path,
+            measure_options(profile),
+            name=stem_set.name,
+            folder=stem_set.folder,
+        )
+        ordered.append(evaluate_set(sm, profile))
+        for stem in stem_set.stem_paths:
+            row = by_path.get(os.path.abspath(stem))
+            if row is not None and id(row) not in used:
+                used.add(id(row))
+                ordered.append(dataclasses.replace(row, group=stem_set.name))
+    return ordered + [r for r in results if id(r) not in used]
 
 
 def _first_problem(result) -> str:
@@ -140,12 +156,14 @@ def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> lis
 def run(args, out: TextIO, err: TextIO) -> int:
     from checker.batch import Interrupted, run_batch
     from checker.profiles import load_profile
+    from checker.report import write_reports
 
     if args.jobs is not None and args.jobs < 1:
         raise UsageError(f"--jobs: jobs = {args.jobs} (expected >= 1)")
     if args.worker_memory_mb is not None and args.worker_memory_mb < 0:
         raise UsageError(f"--worker-memory-mb: {args.worker_memory_mb} (expected >= 0)")
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    folders = stem_set_folders(args, profile)
     out_dir = Path(args.out)
     notes: list[str] = []
     progress = Progress(err, quiet=args.quiet)
@@ -175,7 +193,9 @@ def run(args, out: TextIO, err: TextIO) -> int:
         )
         print(f"to resume, run again: {again}", file=err)
         return EXIT_INTERRUPTED
-    written = _write_reports(out_dir, run_info, results)
+    if folders:
+        results = add_stem_sets(folders, args.mix, profile, results)
+    written = write_reports(out_dir, run_info, results)
     written = {"store": out_dir / "results.sqlite", **written}
     for line in summary_lines(run_info, results, written, notes):
         print(line, file=out)
