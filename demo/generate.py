@@ -168,10 +168,10 @@ def stem_handoff(out: Path) -> None:
     stems = {"drums": drums * 0.35, "bass": bass, "keys": keys, "vocal": vox}
     for name, s in stems.items():
         stems[name] = s / np.max(np.abs(s))
-    # Balance the stems, then scale the set so the mix peaks at -3 dBFS.
+    # Balance the stems, then scale the set so the mix peaks at -4 dBFS.
     balance = {"drums": 0.9, "bass": 0.5, "keys": 0.6, "vocal": 0.8}
     mix = sum(balance[k] * v for k, v in stems.items())
-    scale = 10 ** (-3 / 20) / np.max(np.abs(mix))
+    scale = 10 ** (-4 / 20) / np.max(np.abs(mix))
     write(d / "reference-mix.wav", mix * scale, "FLOAT")
     for name, s in stems.items():
         s = s * balance[name] * scale
