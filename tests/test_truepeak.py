@@ -290,6 +290,14 @@ def test_block_size_invariance_fixed(block):
     assert measure(x, block=block).to_dict() == whole  # exact (house rule for peaks, counts)
 
 
+@pytest.mark.parametrize("rate", [96_000, 192_000])
+def test_block_size_invariance_other_factors(rate):
+    x = loud_programme(rate=rate, seconds=0.5, seed=rate)
+    whole = measure(x, rate, block=x.shape[0]).to_dict()
+    assert measure(x, rate, block=777).to_dict() == whole  # exact (house rule)
+    assert whole["true_peak_oversampling"] == (2 if rate == 96_000 else 1)
+
+
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(cuts=st.lists(st.integers(min_value=0, max_value=30_000), max_size=12))
 def test_block_split_invariance_hypothesis(cuts):
@@ -367,6 +375,10 @@ def test_silence_empty_and_all_channels():
     assert d["true_peak_overs"] == 0
     empty = measure(np.zeros((0, 1)))
     assert empty.true_peak_dbtp == -math.inf and empty.true_peak_time_s is None
+    # Shorter than the filter (32 samples): no interpolated point has its window inside the
+    # file, so the reading is the sample peak (edge rule in truepeak.py), computed with numpy.
+    short = np.array([0.1, -0.5, 0.9, 0.3, -0.2, 0.0, 0.4, -0.8, 0.6, 0.1])
+    assert_allclose(measure(short).true_peak_dbtp, db(0.9), rtol=0, atol=1e-6)
     # 5.1: the LFE channel (index 3) is measured like any other and can hold the maximum.
     x = np.zeros((9600, 6))
     x[:, 3] = 0.8 * np.sin(2 * np.pi * 60 * np.arange(9600) / 48_000)
@@ -392,6 +404,22 @@ def test_nonfinite_samples_and_repeated_result():
     assert m.result().to_dict() == first
     m.feed(Block(x=clean[5000:, None], raw=None, start=5000))
     assert m.result().to_dict() == measure(clean).to_dict()
+
+
+def test_pcm24_file_through_the_reader(tmp_path):
+    """Integer PCM arrives as int32 / 2**31 float blocks (checker/audio.py); the reading is
+    the Tech 3341 case 16 value (-6.0 dBTP, document tolerance +0.2/-0.4; aim +-0.05)."""
+    from signals import write
+
+    from checker.audio import read_blocks
+
+    path = write(tmp_path / "case16.wav", tech3341_tone(16), 48_000, "PCM_24")
+    info, blocks = read_blocks(str(path), 4800)
+    m = TruePeakMeter(info, default_layout(info.channels), MeasureOptions())
+    for block in blocks:
+        assert block.raw is not None
+        m.feed(block)
+    assert_allclose(m.result().true_peak_dbtp, -6.0, rtol=0, atol=0.05)
 
 
 def test_skip_bound_uses_the_taps():
