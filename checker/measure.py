@@ -145,10 +145,13 @@ def check_header(path: str, info: StreamInfo, header: WavHeader | None) -> Strea
     reports (a truncated file); raises AudioReadError for a never-finalised header."""
     if header is None:
         return info
-    data = next((c for c in header.chunks if c.chunk_id == "data"), None)
+    chunks = list(header.chunks)
+    data = next((c for c in chunks if c.chunk_id == "data"), None)
     if data is not None and data.size == 0:
         after = header.file_size - (data.offset + 8)
-        if after > 0:
+        # Audio bytes, not chunks, follow it: no chunk parsed after it, or only a bogus one.
+        rest = chunks[chunks.index(data) + 1 :]
+        if after > 0 and all(c.size > c.present for c in rest):
             raise AudioReadError(
                 f"{path}: 'data' chunk size = 0 with {after} bytes after it (expected the "
                 "size of the audio; the header was never finalised, e.g. a recorder that "
@@ -181,22 +184,15 @@ def _stat(path: str) -> tuple[int, int]:
     return (st.st_size, st.st_mtime_ns)
 
 
-class FiniteBlocks:
-    """Replaces NaN/Inf in float blocks by 0 in place (the buffer is the reader's own), once,
-    so every meter sees finite samples. The levels meter counts them first: it is fed
-    the untouched block (see measure())."""
+def has_nonfinite(block: Block) -> bool:
+    """True when a float block holds NaN or Inf (integer PCM never does)."""
+    return block.raw is None and not np.isfinite(block.x).all()
 
-    def __init__(self) -> None:
-        self.dirty = False
 
-    def check(self, block: Block) -> bool:
-        """True when the block holds non-finite samples (float files only)."""
-        self.dirty = block.raw is None and not np.isfinite(block.x).all()
-        return self.dirty
-
-    @staticmethod
-    def clean(block: Block) -> None:
-        np.copyto(block.x, 0.0, where=~np.isfinite(block.x))
+def zero_nonfinite(block: Block) -> None:
+    """Set NaN/Inf samples to 0 in place (the buffer is the reader's own, refilled on the
+    next read), once, so every meter after the levels meter sees finite samples."""
+    np.copyto(block.x, 0.0, where=~np.isfinite(block.x))
 
 
 def measure(path: str, options: MeasureOptions | None = None) -> Measurement:
@@ -211,17 +207,17 @@ def measure(path: str, options: MeasureOptions | None = None) -> Measurement:
     info = check_header(str(path), info, header)
     layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
-    # The levels meter counts NaN/Inf; every other meter gets them as 0.
+    # The levels meter counts NaN/Inf (nonfinite_samples and its findings) on the untouched
+    # block; every other meter then gets them as 0.
     counting = [m for m in meters if type(m).__name__ == "LevelsMeter"]
     others = [m for m in meters if type(m).__name__ != "LevelsMeter"]
-    finite = FiniteBlocks()
     frames = 0
     for block in blocks:
         frames += block.frames
-        if finite.check(block):
+        if has_nonfinite(block):
             for meter in counting:
                 meter.feed(block)
-            finite.clean(block)
+            zero_nonfinite(block)
             for meter in others:
                 meter.feed(block)
         else:

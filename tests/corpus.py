@@ -184,6 +184,16 @@ def zero_frames(d: Path) -> Path:
     return p
 
 
+def zero_frames_then_chunk(d: Path) -> Path:
+    """0 frames, then a LIST chunk: a legitimately empty file, not an unfinished header."""
+    p = d / "zero-frames-list.wav"
+    lst = b"LIST" + struct.pack("<I", 12) + b"INFOISFT" + b"\0" * 4
+    raw = bytearray(wav_bytes(b"") + lst)
+    struct.pack_into("<I", raw, 4, len(raw) - 8)
+    p.write_bytes(bytes(raw))
+    return p
+
+
 def codec_mp3_in_wav(d: Path) -> Path:
     """Format tag 0x0055 (MPEG layer 3 in WAV, which libsndfile decodes) with a complete
     MPEGLAYER3WAVEFORMAT extension (cbSize 12: wID 1, flags 0, block size 384, 1 frame per
@@ -272,6 +282,7 @@ CORPUS: dict[str, Callable[[Path], Path]] = {
     "rate_10_mhz": rate_10_mhz,
     "float_nan_inf": float_nan_inf,
     "zero_frames": zero_frames,
+    "zero_frames_then_chunk": zero_frames_then_chunk,
     "codec_mp3_in_wav": codec_mp3_in_wav,
     "codec_unknown": codec_unknown,
     "flac_no_length": flac_no_length,

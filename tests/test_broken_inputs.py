@@ -15,6 +15,8 @@ import json
 import math
 import os
 import re
+import shutil
+import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -199,6 +201,13 @@ def test_zero_frames_is_measured_as_no_audio(tmp_path):
     assert m.sample_peak_dbfs == -math.inf  # the house convention for no signal
 
 
+def test_empty_data_chunk_followed_by_a_chunk_is_measured_not_refused(tmp_path):
+    # Contrast with riff_size_zero: here a LIST chunk, not audio, follows the empty data chunk.
+    m = checked_measure(make("zero_frames_then_chunk", tmp_path))
+    assert (m.frames, m.duration_s) == (0, 0.0)
+    assert m.findings == ("no audio: 0 frames decoded",)
+
+
 def test_data_chunk_claiming_less_is_measured_as_declared(tmp_path):
     m = checked_measure(make("data_claims_less", tmp_path))
     # The data chunk says 96000 bytes = 48000 frames; what follows is not audio by the header.
@@ -248,40 +257,55 @@ def test_nan_and_inf_are_counted_and_measured_as_zero(tmp_path, block_frames):
 # --- Permissions --------------------------------------------------------------------------
 
 
-def test_unreadable_file_is_refused(tmp_path):
-    path = CORPUS["unreadable"](tmp_path)
-    expected = f"{path}: cannot open (Permission denied)"
-    if os.geteuid() != 0:
-        with pytest.raises(AudioReadError) as info:
-            measure(str(path))
-        assert str(info.value) == expected
-        return
-    # Root reads mode-000 files anyway, so drop to an unprivileged uid in a forked child
-    # (modules are imported before the fork: the child may not read the interpreter's tree).
-    checked_measure(good_wav(tmp_path / "warm-up.wav"))
-    os.chmod(tmp_path, 0o755)
+def _as_nobody(paths: list[Path]) -> list[str]:
+    """measure() each path in a forked child running as uid/gid 65534; one answer per path
+    ("measured" or the error message), or a single "SETUP ..." if privileges cannot drop."""
     read_end, write_end = os.pipe()
     pid = os.fork()
     if pid == 0:  # child: never return into pytest
+        answers = []
         try:
             os.setgid(65534)
             os.setuid(65534)
-            try:
-                measure(str(path))
-                answer = "measured"
-            except AudioReadError as exc:
-                answer = str(exc)
+            for p in paths:
+                try:
+                    measure(str(p))
+                    answers.append("measured")
+                except AudioReadError as exc:
+                    answers.append(str(exc))
         except BaseException as exc:  # noqa: BLE001 - reported to the parent
-            answer = f"SETUP {type(exc).__name__}: {exc}"
-        os.write(write_end, answer.encode())
+            answers = [f"SETUP {type(exc).__name__}: {exc}"]
+        os.write(write_end, "\0".join(answers).encode())
         os._exit(0)
     os.close(write_end)
     with os.fdopen(read_end, "rb") as fh:
-        answer = fh.read().decode()
+        answers = fh.read().decode().split("\0")
     os.waitpid(pid, 0)
-    if answer.startswith("SETUP"):
-        pytest.skip(f"running as root and cannot drop privileges to test it ({answer})")
-    assert answer == expected
+    return answers
+
+
+def test_unreadable_file_is_refused(tmp_path):
+    if os.geteuid() != 0:
+        path = CORPUS["unreadable"](tmp_path)
+        with pytest.raises(AudioReadError) as info:
+            measure(str(path))
+        assert str(info.value) == f"{path}: cannot open (Permission denied)"
+        return
+    # Root reads mode-000 files anyway, so an unprivileged forked child reads them (modules
+    # are imported first: the child may not read the interpreter's tree). pytest's tmp_path
+    # sits under a root-only folder, so these two files live in a world-searchable one.
+    folder = Path(tempfile.mkdtemp(prefix="deliverycheck-perm-"))
+    try:
+        os.chmod(folder, 0o755)
+        control = checked_measure(good_wav(folder / "readable.wav"))  # also warms the imports
+        path = CORPUS["unreadable"](folder)
+        answers = _as_nobody([Path(control.path), path])
+    finally:
+        shutil.rmtree(folder)
+    if answers[0].startswith("SETUP"):
+        pytest.skip(f"running as root and cannot drop privileges to test it ({answers[0]})")
+    # The readable control proves the refusal comes from the file's mode, not the folder.
+    assert answers == ["measured", f"{path}: cannot open (Permission denied)"]
 
 
 # --- Hostile file names ---------------------------------------------------------------------
