@@ -1,0 +1,110 @@
+"""The demo batch: deterministic generation, and every file gets exactly what demo/README.md promises."""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from checker.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+GENERATOR = ROOT / "demo" / "generate.py"
+PROMISES = ROOT / "demo" / "README.md"
+
+
+def generate(out: Path) -> None:
+    subprocess.run([sys.executable, str(GENERATOR), str(out)], check=True, capture_output=True)
+
+
+def digests(folder: Path) -> dict[str, str]:
+    return {
+        str(p.relative_to(folder)): hashlib.sha256(p.read_bytes()).hexdigest()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file()
+    }
+
+
+def promised(section: str) -> dict[str, tuple[str, set[str]]]:
+    """{file: (status, {rule ids})} from the markdown table under the given heading."""
+    text = PROMISES.read_text()
+    body = text.split(section, 1)[1].split("\n## ", 1)[0]
+    rows = {}
+    for line in body.splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) != 4 or cells[0] in ("file", "") or set(cells[0]) <= {"-"}:
+            continue
+        name, _, status, flags = cells
+        rows[name] = (status, {f.strip() for f in flags.split(",") if f.strip()})
+    assert rows, f"no promise table under {section!r} in {PROMISES}"
+    return rows
+
+
+def check(args: list[str]) -> tuple[int, dict[str, dict]]:
+    out_dir = Path(args[args.index("--out") + 1])
+    code = main(["check", *args, "--quiet"], io.StringIO(), io.StringIO())
+    results = {}
+    for line in (out_dir / "results.jsonl").read_text().splitlines():
+        row = json.loads(line)
+        key = "stems (set row)" if row["kind"] == "set" else Path(row["path"]).name
+        results[key] = row
+    return code, results
+
+
+@pytest.fixture(scope="module")
+def batch(tmp_path_factory) -> Path:
+    out = tmp_path_factory.mktemp("demo") / "batch"
+    generate(out)
+    return out
+
+
+def test_generator_is_deterministic(batch, tmp_path):
+    again = tmp_path / "again"
+    generate(again)
+    first, second = digests(batch), digests(again)
+    assert len(first) == 20  # 15 podcast-week files, 4 stems and the mix
+    assert first == second
+
+
+def compare(results: dict[str, dict], promises: dict[str, tuple[str, set[str]]]) -> None:
+    assert set(results) == set(promises)
+    for name, (status, rules) in promises.items():
+        row = results[name]
+        got_rules = {f["rule"] for f in (row["verdict"] or {}).get("flags", [])}
+        assert (row["status"], got_rules) == (status, rules), name
+
+
+def test_podcast_week_gets_what_the_readme_promises(batch, tmp_path):
+    out = tmp_path / "podcast"
+    week = batch / "podcast-week"
+    code, results = check([str(week), "--profile", "podcast-stereo", "--out", str(out)])
+    compare(results, promised("## The podcast week"))
+    assert code == 3  # README: an unreadable file outranks the failures
+    assert "cannot open as audio" in results["ep111-show-notes.wav"]["error"]
+
+
+def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):
+    out = tmp_path / "stems"
+    stems = batch / "theme-stems"
+    code, results = check(
+        [
+            str(stems / "stems"),
+            "--profile",
+            "mastering-stems",
+            "--mix",
+            str(stems / "reference-mix.wav"),
+            "--out",
+            str(out),
+        ]
+    )
+    compare(results, promised("## The theme-tune stems"))
+    assert code == 1
+    # The slipped stem is named in the set row's slip flag.
+    slip = [f for f in results["stems (set row)"]["verdict"]["flags"] if f["rule"] == "slip_max_s"]
+    assert re.search(r"theme-vocal\.wav", slip[0]["message"])
