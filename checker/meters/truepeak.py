@@ -147,6 +147,8 @@ class TruePeakMeter:
         self.ceiling_amp = db_to_amplitude(self.ceiling_dbtp)
         self.max_positions = int(options.max_positions)
         factor = oversampling or oversampling_for_rate(self.rate_hz)
+        if factor not in (1, 2, 4):
+            raise ValueError(f"TruePeakMeter: oversampling = {factor} (expected 1, 2 or 4)")
         self.factor = factor
         phases = design_phases(factor)
         self.interp_taps = phases.shape[0]
