@@ -219,8 +219,9 @@ def ebur128_true_peak_db(x, rate):
 def resample_poly_reference_db(x):
     """32x scipy.signal.resample_poly, with a long explicit filter (scipy firwin, 64 taps per
     phase, cutoff at the input Nyquist). resample_poly's default filter (about 20 taps per
-    phase) droops near Nyquist: measured here it reads up to 0.08 dB below this one on
-    broadband 96 kHz material, which would make it a poor upper reference."""
+    phase) droops near Nyquist: measured here on 36 faded_programme signals (44.1, 48,
+    96 kHz) it reads from 0.09 dB below to 0.045 dB above this one, too loose for a
+    0.05 dB upper check."""
     h = sps.firwin(32 * 64 + 1, 1 / 32, window=("kaiser", 9.0))
     return np.array(
         [db(np.abs(sps.resample_poly(x[:, c], 32, 1, window=h)).max()) for c in range(2)]
