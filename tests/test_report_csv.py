@@ -24,8 +24,10 @@ from checker.report import REPORT_FILES, write_reports
 from checker.report.atomic import atomic_text
 from checker.report.csv_out import neutralise
 from checker.report.htmldata import embed_json, profile_limits_for_graph, reduce_timeline
-from checker.report.table import LEAD_COLUMNS, MEASUREMENT_COLUMNS, results_frame
+from checker.report.jsonl import dumps as jsonl_dumps
+from checker.report.table import LEAD_COLUMNS, MEASUREMENT_COLUMNS, results_frame, sorted_results
 from checker.results import FileResult, RunInfo
+from checker.serial import dumps as serial_dumps
 from checker.timeline import Timeline, build_timeline
 from checker.verdict import Flag, GainAdvice, Verdict
 
@@ -331,6 +333,7 @@ def test_graph_limits_from_the_profile_table():
         {"key": "integrated_target_lufs", "value": -16.0, "tolerance": 1.5, "unit": "LUFS"},
         {"key": "declared_integrated_tolerance_lu", "value": 1.0, "unit": "LU"},
         {"key": "short_term_max_lufs", "value": -18.0, "unit": "LUFS"},
+        {"key": "sum_true_peak_max_dbtp", "value": 0.0, "unit": "dBTP"},  # a stem-set limit
     ))  # fmt: skip
     got = profile_limits_for_graph(table)
     assert (got["target_lufs"], got["band_low_lufs"], got["band_high_lufs"]) == (
@@ -365,3 +368,13 @@ def test_timeline_reduction_keeps_the_loudest_value():
     )
     got = reduce_timeline(small, max_points=3)
     assert got == {"n": 3, "t0": 0.1, "dt": 0.2, "short_term_lufs": [None, -200, -210]}
+
+
+def test_jsonl_lines_are_the_shared_serialiser_text(written):
+    # results.jsonl uses a one-pass encoder; it must write exactly what checker.serial.dumps does.
+    out, results, _ = written
+    lines = (out / "results.jsonl").read_text(encoding="utf-8").splitlines()
+    assert lines == [serial_dumps(r.to_dict(timeline=True)) for r in sorted_results(results)]
+    odd = {"a": np.float64("nan"), "b": np.array([1.5, -np.inf]), "c": (np.int64(3), np.bool_(True)),
+           "d": {"e": [float("inf"), None, "x"]}, 4: np.float32(0.25)}  # fmt: skip
+    assert jsonl_dumps(odd) == serial_dumps(odd)

@@ -14,35 +14,14 @@ from typing import Any
 
 import numpy as np
 
+from checker.report.jsonl import safe
 from checker.results import FileResult, RunInfo
-from checker.serial import plain
 from checker.timeline import Timeline
 
 #: Points per series in the embedded graph data (the SVG is about 700 px wide).
 GRAPH_POINTS = 480
 
 _PLUS_MINUS = re.compile(r"^\s*(-?\d+(?:\.\d+)?)\s*(?:\+-|\+/-|±)\s*(\d+(?:\.\d+)?)")
-
-
-def safe(value: Any) -> Any:
-    """One pass to JSON-ready data with the rules of checker.serial.json_safe.
-
-    NaN -> None, -inf -> "-inf", inf -> "inf"; numpy scalars and arrays -> Python values.
-    """
-    if isinstance(value, dict):
-        return {str(k): safe(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [safe(v) for v in value]
-    if isinstance(value, float):
-        if math.isnan(value):
-            return None
-        if math.isinf(value):
-            return "-inf" if value < 0 else "inf"
-        return value
-    if value is None or isinstance(value, (str, int)):
-        return value
-    converted = plain(value)
-    return value if converted is value else safe(converted)
 
 
 def embed_json(value: Any) -> str:
@@ -109,15 +88,18 @@ def profile_limits_for_graph(run: RunInfo) -> dict[str, float | None]:
         key = str(limit.get("key", "")).lower()
         value = limit.get("value")
         number = _finite(value)
-        if "declared" in key:  # header-vs-measurement tolerances, not levels
-            continue
-        if "true_peak" in key and ("max" in key or "ceiling" in key) and number is not None:
+        # Per-file levels only: not declared_* (header checks) nor sum_*/set_* (stem sets).
+        if (
+            key.startswith("true_peak")
+            and ("max" in key or "ceiling" in key)
+            and number is not None
+        ):
             ceiling = number
-        if "short_term" in key and "max" in key and number is not None:
+        if key.startswith(("short_term", "max_short_term")) and "max" in key and number is not None:
             short_max = number
-        if "momentary" in key and "max" in key and number is not None:
+        if key.startswith(("momentary", "max_momentary")) and "max" in key and number is not None:
             momentary_max = number
-        if "integrated" not in key:
+        if not key.startswith("integrated"):
             continue
         if _finite(limit.get("tolerance")) is not None:
             tol = _finite(limit.get("tolerance"))
@@ -163,8 +145,11 @@ def graph_limits(result: FileResult, profile: dict[str, float | None]) -> dict[s
         step = _finite(gain.gain_to_target_db)
         if loudness is not None and step is not None:
             limits["target_lufs"] = round(loudness + step, 2)
+    limits["ceiling_from"] = "profile"
     if limits["ceiling_dbtp"] is None:
+        # No true-peak limit in the profile: show the level the meter counted overs against.
         limits["ceiling_dbtp"] = _finite(values.get("true_peak_ceiling_dbtp"))
+        limits["ceiling_from"] = "meter"
     return limits
 
 

@@ -9,6 +9,38 @@
   var heads = Array.prototype.slice.call(document.querySelectorAll("#file-table thead th[data-col]"));
   var collator = new Intl.Collator(undefined, { numeric: true, sensitivity: "base" });
   var sortState = { col: -1, dir: 1 };
+  var PAGE = 250;
+  var order = rows.map(function (_, i) { return i; });  // current sort (default: worst first)
+  var limit = PAGE;  // rows attached to the table; the rest wait, detached, until asked for
+
+  // ---- showing: only the first `limit` matching rows are in the document ----
+  var form = document.getElementById("filters");
+  var query = document.getElementById("q");
+  var shown = document.getElementById("shown");
+  var more = document.getElementById("more");
+  var moreBox = document.getElementById("more-box");
+  var timer = null;
+  function render() {
+    var on = {};
+    form.querySelectorAll("input[name=status]").forEach(function (box) { on[box.value] = box.checked; });
+    var q = query.value.trim().toLowerCase();
+    var frag = document.createDocumentFragment(), matches = 0;
+    for (var k = 0; k < order.length; k++) {
+      var r = rows[order[k]];
+      if (on[r.st] === false || (q !== "" && r.h.indexOf(q) === -1)) continue;
+      if (matches < limit) frag.appendChild(trs[order[k]]);
+      matches++;
+    }
+    tbody.textContent = "";
+    tbody.classList.remove("first-page");
+    tbody.appendChild(frag);
+    var count = Math.min(matches, limit);
+    shown.textContent = count < matches
+      ? "Showing the first " + count + " of " + matches + " matching files (" + rows.length + " in total)"
+      : "Showing " + count + " of " + rows.length + " files";
+    moreBox.hidden = count >= matches;
+    more.textContent = "Show " + Math.min(PAGE, matches - count) + " more";
+  }
 
   // ---- sorting: numbers as numbers, -inf lowest, empty cells always last ----
   function numKey(v) {
@@ -19,8 +51,8 @@
   }
   function sortBy(col, dir) {
     var numeric = heads[col].getAttribute("data-kind") === "num";
-    var order = rows.map(function (_, i) { return i; });
     var keys = rows.map(function (r) { return numeric ? numKey(r.s[col]) : String(r.s[col] || ""); });
+    order = rows.map(function (_, i) { return i; });
     order.sort(function (a, b) {
       var x = keys[a], y = keys[b], c;
       if (numeric) {
@@ -33,14 +65,12 @@
       }
       return c !== 0 ? c * dir : a - b;
     });
-    var frag = document.createDocumentFragment();
-    order.forEach(function (i) { frag.appendChild(trs[i]); });
-    tbody.appendChild(frag);
     heads.forEach(function (th, n) {
       if (n === col) th.setAttribute("aria-sort", dir > 0 ? "ascending" : "descending");
       else th.removeAttribute("aria-sort");
     });
     sortState = { col: col, dir: dir };
+    render();
   }
   heads.forEach(function (th, n) {
     th.querySelector("button").addEventListener("click", function () {
@@ -49,28 +79,17 @@
   });
 
   // ---- filtering by status and by text ----
-  var form = document.getElementById("filters");
-  var query = document.getElementById("q");
-  var shown = document.getElementById("shown");
-  var timer = null;
-  function applyFilter() {
-    var on = {};
-    form.querySelectorAll("input[name=status]").forEach(function (box) { on[box.value] = box.checked; });
-    var q = query.value.trim().toLowerCase();
-    var count = 0;
-    for (var i = 0; i < rows.length; i++) {
-      var visible = on[rows[i].st] !== false && (q === "" || rows[i].h.indexOf(q) !== -1);
-      if (trs[i].hidden === visible) trs[i].hidden = !visible;
-      if (visible) count++;
-    }
-    shown.textContent = "Showing " + count + " of " + rows.length + " files";
-  }
-  form.addEventListener("change", applyFilter);
+  form.addEventListener("change", function (e) {
+    if (e.target !== query) render();  // the search box re-renders on input, not on blur
+  });
   form.addEventListener("submit", function (e) { e.preventDefault(); });
   query.addEventListener("input", function () {
     clearTimeout(timer);
-    timer = setTimeout(applyFilter, 120);
+    timer = setTimeout(render, 120);
   });
+  more.addEventListener("click", function () { limit += PAGE; render(); });
+  document.getElementById("all").addEventListener("click", function () { limit = rows.length; render(); });
+  render();
 
   // ---- formatting ----
   function fmt(key, v) {
@@ -187,7 +206,7 @@
     }
     if (typeof lim.ceiling_dbtp === "number") {
       svg("line", { "class": "ceiling", x1: L, x2: W - R, y1: y(lim.ceiling_dbtp), y2: y(lim.ceiling_dbtp), stroke: "#a0242c", "stroke-width": "1.5", "stroke-dasharray": "6 4" }, root);
-      label(y(lim.ceiling_dbtp) - 4, "#a0242c", "true-peak ceiling " + lim.ceiling_dbtp.toFixed(1) + " dBTP");
+      label(y(lim.ceiling_dbtp) - 4, "#a0242c", (lim.ceiling_from === "meter" ? "overs counted above " : "true-peak ceiling ") + lim.ceiling_dbtp.toFixed(1) + " dBTP");
     }
     [["short_term_max_lufs", "short-term max "], ["momentary_max_lufs", "momentary max "]].forEach(function (m) {
       var v = lim[m[0]];
@@ -276,10 +295,15 @@
     if (d.timeline && d.timeline.n) {
       fig.appendChild(drawGraph(d));
       var legend = fig.appendChild(el("ul", { "class": "legend" }));
-      [["l-short", "short-term (3 s)"], ["l-moment", "momentary (400 ms)"], ["l-band", "target range"], ["l-ceiling", "true-peak ceiling"], ["l-mark", "over or flagged position"]].forEach(function (p) {
-        legend.appendChild(el("li", { "class": p[0] }, p[1]));
+      var lim = d.limits || {};
+      [["l-short", "short-term (3 s)", true], ["l-moment", "momentary (400 ms)", true],
+        ["l-band", "target range", typeof lim.band_low_lufs === "number"],
+        ["l-ceiling", "true-peak ceiling", typeof lim.ceiling_dbtp === "number"],
+        ["l-max", "short-term or momentary maximum", typeof lim.short_term_max_lufs === "number" || typeof lim.momentary_max_lufs === "number"],
+        ["l-mark", "over or flagged position", (d.marks || []).length > 0]].forEach(function (p) {
+        if (p[2]) legend.appendChild(el("li", { "class": p[0] }, p[1]));
       });
-      fig.appendChild(el("figcaption", null, "Loudness in LUFS against the profile target; the ceiling line is in dBTP. Reduced to at most a few hundred points, keeping each stretch's loudest value."));
+      fig.appendChild(el("figcaption", null, "Short-term and momentary loudness in LUFS with the profile's limits; the true-peak line is in dBTP. Reduced to at most a few hundred points, keeping each stretch's loudest value."));
     } else {
       fig.appendChild(el("p", { "class": "muted" }, "No loudness timeline was stored for this file."));
     }
