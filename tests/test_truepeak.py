@@ -114,6 +114,8 @@ def test_tech3341_cases_15_to_19(case):
     assert_allclose(sample_peak, TECH3341_SAMPLE_PEAK_DBFS[case], rtol=0, atol=0.005)
     assert r.true_peak_dbtp >= sample_peak - 1e-6  # phase 0 of the interpolator is the sample
     assert r.true_peak_oversampling == 4
+    # A steady tone peaks all through the file: not an edge peak (rule in truepeak.py).
+    assert not r.true_peak_at_edge
 
 
 def tech3341_case_20_to_23(offset: int) -> np.ndarray:
@@ -350,8 +352,8 @@ def test_overs_counted_on_known_signal():
 
 def test_edge_flag_and_abrupt_start():
     """A full-scale fs/4 tone at 45 deg cut hard at both ends: the edges do not inflate the
-    reading (interpolated points whose filter reaches past an end are not used), and a peak
-    placed in the last 5 ms is flagged."""
+    reading (interpolated points whose filter reaches past an end are not used). A peak in
+    the first or last 5 ms is flagged when nothing in between comes within 0.05 dB of it."""
     x = tech3341_tone(16, seconds=0.2)[:, 0] * 2  # amplitude 1.0, true peak 0 dBTP
     r = measure(x)
     assert_allclose(r.true_peak_dbtp, 0.0, rtol=0, atol=0.05)  # sine amplitude
@@ -364,6 +366,12 @@ def test_edge_flag_and_abrupt_start():
     quiet[4800] = 0.9  # mid-file
     r = measure(quiet)
     assert not r.true_peak_at_edge
+    quiet[96] = 0.95  # 2 ms after the start, higher than the mid-file spike
+    r = measure(quiet)
+    assert r.true_peak_at_edge
+    assert_allclose(r.true_peak_time_s, 96 / 48_000, rtol=0, atol=1 / 48_000)
+    quiet[96] = 0.9  # same height as the mid-file spike (within 0.05 dB): not edge-only
+    assert not measure(quiet).true_peak_at_edge
 
 
 def test_silence_empty_and_all_channels():

@@ -226,15 +226,19 @@ class ChunkStream:
     Chunk j covers output positions ``[j * step - before, (j + 1) * step + after)``
     and needs input ``[start, start + window)`` with
     ``start = j * step - before - history``. Input before frame 0 and after the
-    last frame is zero. Keeps only the not-yet-used tail (history + look-ahead),
-    channel-major float32 so each channel's window is contiguous.
+    last frame is zero. Keeps only the not-yet-used tail (history + look-ahead +
+    holdback), channel-major float32 so each channel's window is contiguous.
     """
 
-    def __init__(self, channels: int, step: int, before: int, history: int, window: int) -> None:
+    def __init__(
+        self, channels: int, step: int, before: int, history: int, window: int, holdback: int = 0
+    ) -> None:
         self.channels = channels
         self.step = step
         self.lead = before + history  # zeros needed before frame 0 for chunk 0
         self.window = window
+        #: push() yields a chunk only when this many frames beyond its window have arrived.
+        self.holdback = holdback
         self.frames_in = 0
         self.next_chunk = 0
         # buf holds input frames [buf_start, buf_start + buf.shape[1])
@@ -250,7 +254,7 @@ class ChunkStream:
             self.buf = np.concatenate([self.buf, x.T.astype(np.float32)], axis=1)
             self.frames_in += x.shape[0]
         end = self.buf_start + self.buf.shape[1]
-        while self._chunk_start(self.next_chunk) + self.window <= end:
+        while self._chunk_start(self.next_chunk) + self.window + self.holdback <= end:
             j = self.next_chunk
             lo = self._chunk_start(j) - self.buf_start
             yield j, self.buf[:, lo : lo + self.window]

@@ -33,9 +33,13 @@ Tech 3341 test tones do) is a step, and any interpolator rings on it; with zero
 padding this filter read cases 17 and 18 0.43 and 0.73 dB high, outside the
 document's +0.2 dB. With the rule they read within 0.01 dB. The price: a real
 inter-sample peak within 0.33 ms of either end is read as its sample value.
-A maximum within the first or last 5 ms sets ``true_peak_at_edge``; the
-maximum is the earliest one on ties, so a steady tone that starts abruptly
-may carry the flag.
+``true_peak_at_edge`` is set when the maximum lies within the first or last
+5 ms AND exceeds every point in between by more than 0.05 dB (our over-read
+bound): a steady tone, whose maximum recurs all through the file, is not an
+edge peak even if its first (earliest) maximum falls in the first 5 ms, which
+is where ``true_peak_time_s`` then points. Points between are only compared
+when they could come within 0.69 dB of the running maximum, which cannot
+change the decision. Points in the last 5 ms are held back until result().
 
 Overs
 -----
@@ -50,12 +54,14 @@ Speed: skipping chunks
 ----------------------
 The input is processed in fixed chunks of 4096 frames aligned to file positions
 (so any block split gives bit-identical results). A chunk of a channel is not
-interpolated when ``F * B * max|x over its window| * (1 + 1e-4)`` cannot exceed
-the channel's running maximum and ``B * max|x| * (1 + 1e-4)`` cannot exceed the
-ceiling, with B the largest sum of |taps| of any grid phase or fine offset
-(2.54) and F = 1.0012 the largest gain of the final sinusoid fit: an exact
-bound (the margin covers float32 rounding), so the result equals the unskipped
-computation bit for bit (``TruePeakMeter(..., skip=False)`` to check).
+interpolated when ``E * F * B * max|x over its window| * (1 + 1e-4)`` cannot
+exceed the channel's running maximum and ``B * max|x| * (1 + 1e-4)`` cannot
+exceed the ceiling, with B the largest sum of |taps| of any grid phase or fine
+offset (2.54), F = 1.0012 the largest gain of the final sinusoid fit and
+E = 0.05 dB the edge-dominance margin (so a skipped chunk cannot change the
+edge decision either): an exact bound (the margin covers float32 rounding), so
+the result equals the unskipped computation bit for bit
+(``TruePeakMeter(..., skip=False)`` to check).
 """
 
 from __future__ import annotations
@@ -85,8 +91,10 @@ from checker.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.units import amplitude_to_db, db_to_amplitude
 
-#: Maxima closer than this to either end of the file are flagged as at the edge.
+#: Maxima closer than this to either end of the file are flagged as at the edge...
 EDGE_S = 0.005
+#: ...when they exceed every point in between by more than this (our over-read bound).
+EDGE_DOMINANCE_DB = 0.05
 #: Relative margin on the skip bound (float32 dot products of <= 48 terms err < 3e-6).
 BOUND_MARGIN = 1e-4
 #: Fine evaluation around candidate maxima: steps per input sample (a multiple of 4).
@@ -122,7 +130,8 @@ class TruePeakResult:
 @dataclass
 class _State:
     best: np.ndarray  # per channel, linear
-    best_index: np.ndarray  # grid index of each channel's maximum (-1: none)
+    best_index: np.ndarray  # fine index of each channel's maximum (-1: none)
+    best_inner: np.ndarray  # per channel, linear: largest value >= EDGE_S from both ends
     in_run: np.ndarray  # last grid point of the previous chunk was above the ceiling
     overs: int = 0
     over_index: list[int] = field(default_factory=list)  # grid indices of first run starts
@@ -169,10 +178,13 @@ class TruePeakMeter:
             ROW_POSITIONS,
             self.interp.history,
             self.interp.window_frames,
+            holdback=math.ceil(EDGE_S * self.rate_hz) + 1,  # the last 5 ms wait for result()
         )
+        self.edge_dominance = 10.0 ** (EDGE_DOMINANCE_DB / 20.0)
         self.state = _State(
             best=np.zeros(self.channels),
             best_index=np.full(self.channels, -1, dtype=np.int64),
+            best_inner=np.zeros(self.channels),
             in_run=np.zeros(self.channels, dtype=bool),
         )
         #: Chunk-channels interpolated / seen (for benchmarks; not part of the result).
@@ -228,7 +240,7 @@ class TruePeakMeter:
             self.seen += 1
             if (
                 self.skip
-                and reach[c] * self.fine_bound <= st.best[c]
+                and reach[c] * self.fine_bound * self.edge_dominance <= st.best[c]
                 and reach[c] <= self.ceiling_amp
             ):
                 st.in_run[c] = False
@@ -239,7 +251,7 @@ class TruePeakMeter:
             centres = a[lo:hi] if masks is None else a[lo:hi] * masks[0]
             top = float(centres.max())
             if top > 0.0 and top * self.refine_bound > st.best[c]:
-                self._refine(st, c, window[c], y, a, centres, lo, top, base, masks)
+                self._refine(st, c, window[c], y, a, centres, lo, top, base, masks, last_frame)
             if top <= self.ceiling_amp:
                 st.in_run[c] = False
                 continue
@@ -258,7 +270,7 @@ class TruePeakMeter:
             events.sort()
             st.over_index.extend(k for k, _ in events[: self.max_positions - len(st.over_index)])
 
-    def _refine(self, st, c, win, y, a, centres, lo, top, base, masks) -> None:
+    def _refine(self, st, c, win, y, a, centres, lo, top, base, masks, last_frame) -> None:
         """Update channel c's maximum from this chunk: grid values, plus a fine evaluation
         of the filter around the FINE_CANDIDATES local maxima with the largest
         sinusoid-fit estimates among those that could beat the running maximum."""
@@ -284,6 +296,12 @@ class TruePeakMeter:
         if values[i] > st.best[c]:
             st.best[c] = values[i]
             st.best_index[c] = base * step + int(fine_pos[i])
+        time_s = (base * step + fine_pos) / (FINE_STEPS * self.rate_hz)
+        inner = time_s >= EDGE_S
+        if last_frame is not None:
+            inner &= time_s <= last_frame / self.rate_hz - EDGE_S
+        if inner.any():
+            st.best_inner[c] = max(st.best_inner[c], float(values[inner].max()))
 
     def _fine(self, win: np.ndarray, k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Filter output at FINE_STEPS per input sample over +-1 grid step around grid
@@ -321,7 +339,8 @@ class TruePeakMeter:
             index = int(st.best_index[winners].min())
             time_s = index / (FINE_STEPS * self.rate_hz)
             end_s = (frames - 1) / self.rate_hz
-            at_edge = time_s < EDGE_S or time_s > end_s - EDGE_S
+            near_end = time_s < EDGE_S or time_s > end_s - EDGE_S
+            at_edge = near_end and overall > float(st.best_inner.max()) * self.edge_dominance
         grid_rate = self.factor * self.rate_hz
         return TruePeakResult(
             true_peak_dbtp=amplitude_to_db(overall),
