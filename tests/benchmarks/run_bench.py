@@ -1,0 +1,177 @@
+"""`make bench`: the one-pass analysis against plain decoding and the reference libraries.
+
+Every command runs in its own process; commands alternate within each
+repetition; the table shows medians and ratios measured side by side in this
+one run (the machine is shared and noisy: compare ratios, not lone times).
+Peak RSS comes from os.wait4 on each child.
+
+    python tests/benchmarks/run_bench.py            # full set (generates ~3.5 GB once, cached)
+    python tests/benchmarks/run_bench.py --quick    # shorter files, fewer repetitions
+    python tests/benchmarks/run_bench.py --tiny     # seconds-long smoke run (used by the test suite)
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import statistics
+import subprocess
+import sys
+import time
+import zlib
+from pathlib import Path
+
+import numpy as np
+import soundfile as sf
+from scipy import signal as sps
+
+HERE = Path(__file__).resolve().parent
+CACHE = HERE / "cache"
+PY = sys.executable
+EXE = str(Path(PY).with_name("deliverycheck"))
+BLOCK = 48_000
+
+
+def programme_chunk(rng: np.random.Generator, n: int, channels: int, rate: int) -> np.ndarray:
+    """Programme-like material: tilted noise, level steps every 0.5-4 s, occasional pauses."""
+    common = rng.standard_normal(n)
+    x = 0.7 * common[:, None] + 0.5 * rng.standard_normal((n, channels))
+    b, a = sps.butter(1, 1000.0 / (rate / 2))
+    x = sps.lfilter(b, a, x, axis=0) * 3.0 + 0.2 * x
+    env = np.empty(n)
+    pos = 0
+    while pos < n:
+        seg = int(rng.uniform(0.5, 4.0) * rate)
+        env[pos : pos + seg] = 10 ** ((rng.uniform(-14, 4) if rng.random() > 0.12 else -60) / 20)
+        pos += seg
+    x *= sps.lfilter([0.002], [1, -0.998], env)[:, None]
+    return x * 0.05
+
+
+def make_file(path: Path, minutes: float, channels: int, rate: int, subtype: str, limited: bool):
+    if path.exists():
+        return path
+    path.parent.mkdir(parents=True, exist_ok=True)
+    rng = np.random.default_rng(zlib.crc32(path.name.encode()))  # stable across processes
+    tmp = path.with_suffix(".part")
+    total = int(minutes * 60 * rate)
+    with sf.SoundFile(str(tmp), "w", rate, channels, subtype=subtype, format="WAV") as f:
+        done = 0
+        while done < total:
+            n = min(60 * rate, total - done)
+            x = programme_chunk(rng, n, channels, rate)
+            if limited:  # heavy limiting: peaks near full scale in every block
+                x = np.tanh(x * 40.0) * 0.98
+            f.write(np.clip(x, -1.0, 1.0))
+            done += n
+    os.replace(tmp, path)
+    return path
+
+
+def run_once(cmd: list[str]) -> tuple[float, float, int]:
+    """(wall seconds, peak RSS MB, exit status) of one child process."""
+    start = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)
+    wall = time.perf_counter() - start
+    proc.returncode = os.waitstatus_to_exitcode(status)
+    err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
+    if proc.returncode not in (0, 1):
+        raise SystemExit(f"bench: {' '.join(cmd)} exited {proc.returncode}: {err.strip()[-400:]}")
+    return wall, usage.ru_maxrss / 1024.0, proc.returncode
+
+
+def commands(path: Path) -> dict[str, list[str]]:
+    w = str(HERE / "workloads.py")
+    return {
+        "a decode": [PY, w, "decode", str(path), str(BLOCK)],
+        "b deliverycheck": [EXE, "measure", "--json", str(path)],
+        "c pyloudnorm": [PY, w, "pyloudnorm", str(path)],
+        "d pyebur128": [PY, w, "pyebur128", str(path), str(BLOCK)],
+    }
+
+
+def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, tuple[float, float]]:
+    info = sf.info(str(path))
+    cmds = {k: v for k, v in commands(path).items() if k not in skip}
+    times: dict[str, list[float]] = {k: [] for k in cmds}
+    rss: dict[str, float] = dict.fromkeys(cmds, 0.0)
+    for _ in range(reps):
+        for name, cmd in cmds.items():  # alternate the commands inside each repetition
+            wall, mb, _ = run_once(cmd)
+            times[name].append(wall)
+            rss[name] = max(rss[name], mb)
+    result = {k: (statistics.median(v), rss[k]) for k, v in times.items()}
+    dur = info.frames / info.samplerate
+    print(
+        f"\n{path.name}: {dur / 60:.1f} min, {info.channels} ch, {info.samplerate} Hz, {info.subtype}"
+    )
+    print(f"  {'command':<18} {'median s':>9} {'x realtime':>11} {'peak RSS MB':>12}")
+    for k, (t, mb) in result.items():
+        print(f"  {k:<18} {t:>9.2f} {dur / t:>11.0f} {mb:>12.0f}")
+    b = result["b deliverycheck"][0]
+    ratios = [f"b/a = {b / result['a decode'][0]:.2f}"]
+    if "c pyloudnorm" in result:
+        ratios.append(f"c/b = {result['c pyloudnorm'][0] / b:.2f}")
+    if "d pyebur128" in result:
+        ratios.append(f"d/b = {result['d pyebur128'][0] / b:.2f}")
+    print("  ratios: " + ", ".join(ratios))
+    return result
+
+
+def bench_jobs(files: list[Path], reps: int, out: Path) -> None:
+    walls = {1: [], 2: []}
+    for _ in range(reps):
+        for jobs in (1, 2):
+            cmd = [EXE, "check", *map(str, files), "--profile", "measure-only", "--jobs", str(jobs)]
+            cmd += ["--out", str(out / f"jobs{jobs}"), "--fresh", "--quiet"]
+            walls[jobs].append(run_once(cmd)[0])
+    m1, m2 = statistics.median(walls[1]), statistics.median(walls[2])
+    print(f"\nbatch of {len(files)} files: --jobs 1 {m1:.1f} s, --jobs 2 {m2:.1f} s")
+    print(f"  throughput ratio jobs2/jobs1 = {m1 / m2:.2f} (target >= 1.8 on 2 cores)")
+
+
+def main(argv: list[str] | None = None) -> int:
+    p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    p.add_argument("--quick", action="store_true", help="shorter files, 3 repetitions")
+    p.add_argument("--tiny", action="store_true", help="a few seconds of audio: smoke run")
+    p.add_argument("--reps", type=int, default=None)
+    p.add_argument("--cache", type=Path, default=CACHE)
+    args = p.parse_args(argv)
+    if args.tiny:
+        scale, reps, batch = 0.05, args.reps or 1, 2  # 3-second files
+    elif args.quick:
+        scale, reps, batch = 1 / 6, args.reps or 3, 4
+    else:
+        scale, reps, batch = 1.0, args.reps or 5, 16
+    c = args.cache
+    files = [
+        (
+            make_file(c / f"programme-60min-{scale:g}.wav", 60 * scale, 2, 48_000, "PCM_24", False),
+            set(),
+        ),
+        (
+            make_file(c / f"surround-20min-{scale:g}.wav", 20 * scale, 6, 48_000, "PCM_24", False),
+            set(),
+        ),
+        (make_file(c / f"cd-10min-{scale:g}.wav", 10 * scale, 2, 44_100, "PCM_16", False), set()),
+        (
+            make_file(c / f"limited-10min-{scale:g}.wav", 10 * scale, 2, 48_000, "PCM_24", True),
+            set(),
+        ),
+    ]
+    print(
+        f"deliverycheck benchmark: {reps} repetition(s), medians; each command in its own process"
+    )
+    for path, skip in files:
+        bench_file(path, reps, skip)
+    ten = [
+        make_file(c / f"batch-{i:02d}-{scale:g}.wav", 10 * scale, 2, 48_000, "PCM_24", False)
+        for i in range(batch)
+    ]
+    bench_jobs(ten, max(1, min(reps, 3)), c / "batch-out")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

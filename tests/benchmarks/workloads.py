@@ -1,0 +1,64 @@
+"""Small programs the benchmark runs, each in its own process (argv: path [block_frames])."""
+
+from __future__ import annotations
+
+import sys
+
+import numpy as np
+import soundfile as sf
+
+
+def decode_only(path: str, block_frames: int) -> None:
+    """(a) Decode only: the engine's read pattern (reused buffer), no analysis."""
+    with sf.SoundFile(path) as f:
+        integer = f.subtype in ("PCM_16", "PCM_24", "PCM_32", "PCM_S8", "PCM_U8")
+        dtype = "int32" if integer else "float64"
+        buf = np.empty((block_frames, f.channels), dtype=dtype)
+        while True:
+            n = len(f.read(out=buf, dtype=dtype, always_2d=True))
+            if integer and n:
+                buf[:n] * (1.0 / 2**31)  # the same int -> float conversion the engine does
+            if n < block_frames:
+                break
+
+
+def pyloudnorm_integrated(path: str) -> None:
+    """(c) pyloudnorm as its users call it: whole-file read, then integrated_loudness."""
+    import pyloudnorm
+
+    data, rate = sf.read(path)
+    pyloudnorm.Meter(rate).integrated_loudness(data)
+
+
+def pyebur128_full(path: str, block_frames: int) -> None:
+    """(d) pyebur128: integrated + LRA + true peak + sample peak, fed in blocks."""
+    import pyebur128 as e
+
+    with sf.SoundFile(path) as f:
+        mode = e.MeasurementMode
+        state = e.R128State(
+            f.channels,
+            f.samplerate,
+            mode.MODE_I | mode.MODE_LRA | mode.MODE_TRUE_PEAK | mode.MODE_SAMPLE_PEAK,
+        )
+        for block in f.blocks(blocksize=block_frames, dtype="float64", always_2d=True):
+            buf = np.ascontiguousarray(block).ravel()
+            state.add_frames(buf, block.shape[0])
+        e.get_loudness_global(state)
+        e.get_loudness_range(state)
+        for c in range(f.channels):
+            e.get_true_peak(state, c)
+            e.get_sample_peak(state, c)
+
+
+if __name__ == "__main__":
+    which, path = sys.argv[1], sys.argv[2]
+    frames = int(sys.argv[3]) if len(sys.argv) > 3 else 48_000
+    if which == "decode":
+        decode_only(path, frames)
+    elif which == "pyloudnorm":
+        pyloudnorm_integrated(path)
+    elif which == "pyebur128":
+        pyebur128_full(path, frames)
+    else:
+        raise SystemExit(f"unknown workload {which!r}")
