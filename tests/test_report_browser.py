@@ -6,6 +6,7 @@ Chromium). The fixtures are the FileResult batch of test_report_csv (no audio).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import re
 from pathlib import Path
@@ -178,8 +179,18 @@ def test_sort_filter_detail_and_nothing_leaves_the_page(browser, report, tmp_pat
     page.close()
 
 
-def test_hostile_file_name_stays_text(browser, report, tmp_path):
+def test_hostile_file_name_stays_text(browser, tmp_path):
+    # Run facts come from the command line and the profile file: escaped like file data.
+    run = dataclasses.replace(
+        make_run(),
+        inputs=("<script>alert(4)</script>", "batch/in_1"),
+        profile_title="<b onmouseover=alert(5)>R 128</b>",
+    )
+    report = write_reports(tmp_path / "out", run, make_results())["html"]
     page, watch = open_report(browser, report)
+    assert page.text_content("h1") == "<b onmouseover=alert(5)>R 128</b>"
+    assert page.get_by_text("<script>alert(4)</script>", exact=True).count() == 1
+    assert page.locator("b[onmouseover]").count() == 0
     name = HOSTILE.rsplit("/", 1)[1]
     assert page.get_by_text(name, exact=True).count() == 1  # the table cell shows it as text
     assert page.locator("img").count() == 0

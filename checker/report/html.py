@@ -158,7 +158,10 @@ def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str,
     fmt = fmt_format(values)
     flag_words = " | ".join(f"{f.severity}: {f.message}" for f in flags)
     if r.status == "error":
-        flag_cell = escape(r.error or "could not be measured")
+        message = r.error or "could not be measured"
+        if message.startswith(r.path + ": "):  # the row already names the file
+            message = message[len(r.path) + 2 :]
+        flag_cell = escape(message)
     elif flags:
         fails = sum(f.severity == "fail" for f in flags)
         more = f" (+{len(flags) - 1})" if len(flags) > 1 else ""
@@ -182,7 +185,9 @@ def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str,
         signed = col.unit in ("dBTP", "dBFS")
         cells.append(f'<td class="n">{fmt_level(values.get(col.key), signed=signed)}</td>')
     cells.append(f'<td class="n">{fmt_duration(values.get("duration_s"))}</td>')
-    cells.append(f'<td class="fmt">{escape(fmt)}</td>')
+    first, _, rest = fmt.partition(" \u00b7 ")  # rate on one line, bits and channels below
+    fmt_html = escape(first) + (f'<span class="sub">{escape(rest)}</span>' if rest else "")
+    cells.append(f'<td class="fmt">{fmt_html}</td>')
     cells.append(f'<td class="n">{fmt_level(gain_db, signed=True)}</td>')
     cells.append(f'<td class="flags">{flag_cell}</td>')
     cells.append(
@@ -313,7 +318,12 @@ def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) 
         "generated_at": escape(generated_at),
         "engine_version": escape(run.engine_version or "not recorded"),
         "inputs": _inputs(run),
-        "folder": escape(prefix or "(files in different folders)"),
+        "folder": (
+            '<div class="wide"><dt>Common folder (not repeated in the table)</dt>'
+            f"<dd><code>{escape(prefix)}</code></dd></div>"
+            if prefix
+            else ""
+        ),
         "limits": _profile_table(run),
         "limit_count": str(len(run.profile_limits)),
         "tiles": tiles,

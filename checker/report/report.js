@@ -101,9 +101,8 @@
       return v.map(function (x) { return Array.isArray(x) ? "(" + x.map(function (y) { return fmt("", y); }).join(", ") + ")" : fmt(key, x); }).join("; ");
     }
     if (typeof v === "number") {
-      if (Number.isInteger(v) && !LEVEL.test(key)) return String(v);
-      if (LEVEL.test(key)) return v.toFixed(2);
-      if (/_s$/.test(key)) return v.toFixed(3);
+      if (LEVEL.test(key) || /_s$/.test(key)) return v.toFixed(2);
+      if (Number.isInteger(v)) return String(v);
       return String(Number(v.toPrecision(4)));
     }
     if (typeof v === "object") return JSON.stringify(v);
@@ -112,6 +111,7 @@
   function withUnit(v, unit) {
     var key = /^(LUFS|LU|dB|dBTP|dBFS)$/.test(unit) ? "x_db" : (unit === "s" ? "x_s" : "x");
     var text = fmt(key, v);
+    if (typeof v === "string") return text;  // limits written as text carry their own units
     return unit && text !== "\u2014" ? text + " " + unit : text;
   }
   function el(tag, attrs, text) {
@@ -290,8 +290,11 @@
         card.appendChild(el("p", { "class": "listen" }, "Listening level: turn the monitors down before you audition a file with gain applied; a few dB up is much louder, and an over can hurt ears and speakers."));
       }
     }
-    section("Loudness over time");
-    var fig = body.appendChild(el("figure", { "class": "graph" }));
+    var fig = el("figure", { "class": "graph" });
+    if (!d.error || d.timeline) {
+      section("Loudness over time");
+      body.appendChild(fig);
+    }
     if (d.timeline && d.timeline.n) {
       fig.appendChild(drawGraph(d));
       var legend = fig.appendChild(el("ul", { "class": "legend" }));
