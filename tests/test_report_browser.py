@@ -165,8 +165,15 @@ def test_sort_filter_detail_and_nothing_leaves_the_page(browser, report, tmp_pat
     shot = tmp_path / "detail.png"
     page.screenshot(path=str(shot))
     assert shot.stat().st_size > 10_000
-    page.click("#detail-close")
+    page.keyboard.press("Escape")  # the native dialog closes on Escape ...
     assert not page.is_visible("dialog#detail")
+    # ... and focus goes back to the button that opened it.
+    assert page.evaluate("document.activeElement.className") == "open"
+
+    # Keyboard only: a column heading is a button; Enter sorts by it.
+    page.focus("th.h-path button")
+    page.keyboard.press("Enter")
+    assert page.get_attribute("th.h-path", "aria-sort") == "ascending"
 
     # The page may not fetch anything: the CSP refuses it before a request is made.
     outcome = page.evaluate(

@@ -163,14 +163,14 @@ def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str,
             message = message[len(r.path) + 2 :]
         flag_cell = escape(message)
     elif flags:
-        fails = sum(f.severity == "fail" for f in flags)
-        more = f" (+{len(flags) - 1})" if len(flags) > 1 else ""
+        worst = next((f for f in flags if f.severity == "fail"), flags[0])
+        cls = "fc has-fail" if worst.severity == "fail" else "fc"
+        noun = "flag" if len(flags) == 1 else "flags"
         flag_cell = (
-            f'<span class="fc" title="{escape(flag_words)}"><b>{len(flags)}</b> '
-            f"{escape(flags[0].message)}{escape(more)}</span>"
+            f'<span class="{cls}" title="{escape(flag_words)}">'
+            f'<b>{len(flags)}<span class="vh"> {noun}, worst:</span></b> '
+            f"{escape(worst.message)}</span>"
         )
-        if fails:
-            flag_cell = flag_cell.replace('class="fc"', 'class="fc has-fail"', 1)
     else:
         flag_cell = '<span class="none">none</span>'
     tag = '<span class="tag">set</span> ' if r.kind == "set" else ""
