@@ -378,3 +378,17 @@ def test_jsonl_lines_are_the_shared_serialiser_text(written):
     odd = {"a": np.float64("nan"), "b": np.array([1.5, -np.inf]), "c": (np.int64(3), np.bool_(True)),
            "d": {"e": [float("inf"), None, "x"]}, 4: np.float32(0.25)}  # fmt: skip
     assert jsonl_dumps(odd) == serial_dumps(odd)
+
+
+def test_html_never_carries_file_text_raw(written):
+    # Without a browser: every way file text reaches the page is escaped (table cells and
+    # attributes by html.escape, JSON blocks with \u003c), so no raw tag from a file survives.
+    out, _, _ = written
+    page = (out / "report.html").read_text(encoding="utf-8")
+    for raw in ("<img src=x", "<script>alert(", '"><script>', "</script><script>"):
+        assert raw not in page
+    assert "&lt;img src=x onerror=alert(1)&gt;.wav" in page
+    assert "\\u003cimg src=x onerror=alert(1)\\u003e.wav" in page
+    assert page.count("<script>") == 1  # the report's own script, nothing else executable
+    csp = page.split('http-equiv="Content-Security-Policy" content="', 1)[1].split('"', 1)[0]
+    assert csp.startswith("default-src 'none';") and "script-src 'sha256-" in csp
