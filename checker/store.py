@@ -310,7 +310,7 @@ class Store:
         ]
 
     def runs(self) -> list[RunInfo]:
-        rows = self.db.execute("SELECT run_json FROM runs ORDER BY started_at, run_id").fetchall()
+        rows = self.db.execute("SELECT run_json FROM runs ORDER BY started_at, rowid").fetchall()
         out = []
         for (text,) in rows:
             d = from_json_safe(json.loads(text))

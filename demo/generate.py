@@ -20,7 +20,7 @@ from scipy import signal as sps
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from synth import music_like, room_tone, speech_like  # noqa: E402
+from synth import music_like, room_tone, speech_like, stable  # noqa: E402
 
 from checker.audio import Block, StreamInfo  # noqa: E402
 from checker.layout import default_layout  # noqa: E402
@@ -36,7 +36,11 @@ def lufs(x: np.ndarray, rate: int = RATE) -> float:
     info = StreamInfo("demo", "WAV", "DOUBLE", rate, x.shape[1], x.shape[0])
     meter = LoudnessMeter(info, default_layout(x.shape[1]), MeasureOptions())
     meter.feed(Block(x=np.ascontiguousarray(x, dtype=np.float64), raw=None, start=0))
-    return meter.result().to_dict()["integrated_lufs"]
+    return stable(meter.result().to_dict()["integrated_lufs"])
+
+
+def dc(x: np.ndarray) -> np.ndarray:
+    return np.array([stable(m) for m in np.atleast_1d(np.mean(x, axis=0))])
 
 
 def soft_limit(x: np.ndarray, ceiling_dbfs: float) -> np.ndarray:
@@ -55,7 +59,7 @@ def fit(x: np.ndarray, target_lufs: float, ceiling_dbfs: float = -3.0, rate: int
     for _ in range(6):
         x = x * 10 ** ((target_lufs - lufs(x, rate)) / 20)
         x = soft_limit(x, ceiling_dbfs)
-    return x - np.mean(x, axis=0)  # limiting an asymmetric waveform leaves a trace of DC
+    return x - dc(x)  # limiting an asymmetric waveform leaves a trace of DC
 
 
 def stereo(mono: np.ndarray, spread: float = 0.0, seed: int = 0) -> np.ndarray:
@@ -119,7 +123,7 @@ def episodes(out: Path) -> None:
     write(d / "promo-a-dc-offset.wav", x, "PCM_16")
     # promo-b: a music bed at the right loudness, but a hot fill at 6 s clipped in the bounce.
     x = music_like(20.0, RATE, seed=9)
-    x = (x - np.mean(x, axis=0)) * 10 ** ((-16.5 - lufs(x)) / 20)
+    x = (x - dc(x)) * 10 ** ((-16.5 - lufs(x)) / 20)
     x[6 * RATE : int(6.5 * RATE)] *= 4.0
     write(d / "promo-b-clipped-bed.wav", np.clip(x, -1.0, 1.0), "PCM_16")
     # promo-c: a 5.1 promo (with LFE) sent to a stereo podcast feed.
@@ -172,12 +176,13 @@ def stem_handoff(out: Path) -> None:
     balance = {"drums": 0.9, "bass": 0.5, "keys": 0.6, "vocal": 0.8}
     mix = sum(balance[k] * v for k, v in stems.items())
     scale = 10 ** (-4 / 20) / np.max(np.abs(mix))
-    write(d / "reference-mix.wav", mix * scale, "FLOAT")
+    # PCM_24, not FLOAT: libsndfile stamps float WAV files with the time of writing (PEAK chunk).
+    write(d / "reference-mix.wav", mix * scale, "PCM_24")
     for name, s in stems.items():
         s = s * balance[name] * scale
         if name == "vocal":
             s = np.concatenate([np.zeros((480, 2)), s[:-480]])
-        write(d / "stems" / f"theme-{name}.wav", s, "FLOAT")
+        write(d / "stems" / f"theme-{name}.wav", s, "PCM_24")
 
 
 def main(argv: list[str]) -> int:

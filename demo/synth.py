@@ -11,6 +11,20 @@ import numpy as np
 from scipy import signal as sps
 
 
+def stable(value: float) -> float:
+    """Round a statistic to 9 significant digits.
+
+    numpy's sums may differ in the last bit from run to run (SIMD paths depend on
+    memory alignment); rounding every gain derived from a sum keeps the generated
+    files byte-identical across runs.
+    """
+    return float(f"{float(value):.9g}")
+
+
+def rms(x: np.ndarray) -> float:
+    return max(stable(np.sqrt(np.mean(np.square(x)))), 1e-12)
+
+
 def _bandpass(x: np.ndarray, lo: float, hi: float, rate: int) -> np.ndarray:
     sos = sps.butter(2, [lo, hi], btype="bandpass", fs=rate, output="sos")
     return sps.sosfilt(sos, x)
@@ -21,7 +35,7 @@ def room_tone(n: int, rate: int, rng: np.random.Generator, level_dbfs: float = -
     x = rng.standard_normal(n)
     sos = sps.butter(1, 600.0, fs=rate, output="sos")
     x = sps.sosfilt(sos, x)
-    return x * (10 ** (level_dbfs / 20) / max(np.sqrt(np.mean(x**2)), 1e-12))
+    return x * (10 ** (level_dbfs / 20) / rms(x))
 
 
 def speech_like(duration_s: float, rate: int, seed: int, voice_hz: float = 140.0) -> np.ndarray:
@@ -53,7 +67,7 @@ def speech_like(duration_s: float, rate: int, seed: int, voice_hz: float = 140.0
             pos = end
         pos += int(rng.uniform(0.3, 0.9) * rate)
     x = voiced * env
-    x = x / max(np.sqrt(np.mean(x**2)), 1e-12) * 0.1
+    x = x / rms(x) * 0.1
     return x + room_tone(n, rate, rng)
 
 
@@ -93,4 +107,4 @@ def music_like(duration_s: float, rate: int, seed: int) -> np.ndarray:
         hat_at = min(n - h, a + int(beat / 2 * rate))
         out[hat_at : hat_at + h, 0] += hat * 0.25
         out[hat_at : hat_at + h, 1] += hat * 0.3
-    return out / max(np.sqrt(np.mean(out**2)), 1e-12) * 0.1
+    return out / rms(out) * 0.1
