@@ -1,4 +1,13 @@
-"""deliverycheck: batch loudness-and-headroom delivery checker."""
+"""deliverycheck: batch loudness-and-headroom delivery checker.
+
+Public API::
+
+    measure(path, options=None) -> Measurement      # one file, one pass, no profile
+    load_profile(name_or_path) -> Profile           # a shipped profile by name, or a TOML file
+    evaluate(measurement, profile) -> Verdict       # pure: no audio is read
+    check(paths, profile, out_dir, jobs=None) -> (RunInfo, [FileResult])
+                                                    # a whole batch: store, reports, resume
+"""
 
 from __future__ import annotations
 
@@ -6,5 +15,39 @@ __version__ = "0.1.0"
 
 from checker.measure import Measurement, measure  # noqa: E402
 from checker.meters.base import MeasureOptions  # noqa: E402
+from checker.profiles import Profile, load_profile  # noqa: E402
+from checker.results import FileResult, RunInfo  # noqa: E402
+from checker.rules import evaluate  # noqa: E402
+from checker.verdict import Flag, GainAdvice, Verdict  # noqa: E402
 
-__all__ = ["Measurement", "MeasureOptions", "measure", "__version__"]
+__all__ = [
+    "FileResult",
+    "Flag",
+    "GainAdvice",
+    "MeasureOptions",
+    "Measurement",
+    "Profile",
+    "RunInfo",
+    "Verdict",
+    "__version__",
+    "check",
+    "evaluate",
+    "load_profile",
+    "measure",
+]
+
+
+def check(paths, profile, out_dir, jobs: int | None = None, fresh: bool = False, **kwargs):
+    """Check a batch like ``deliverycheck check``: measure (or reuse stored measurements),
+    judge against ``profile`` (a Profile, a shipped name or a TOML path), write the reports
+    into ``out_dir``; returns (RunInfo, [FileResult]). Per-file problems are error rows."""
+    from pathlib import Path
+
+    from checker.batch import run_batch
+    from checker.report import write_reports
+
+    if isinstance(profile, str | Path):
+        profile = load_profile(str(profile))
+    run, results = run_batch(list(paths), profile, out_dir, jobs=jobs, fresh=fresh, **kwargs)
+    write_reports(Path(out_dir), run, results)
+    return run, results

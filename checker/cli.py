@@ -38,12 +38,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--debug", action="store_true", help="show tracebacks on errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
-        try:
-            module = importlib.import_module(f"checker.commands.{name}")
-        except ModuleNotFoundError as exc:  # TEMPORARY during bring-up
-            if exc.name == f"checker.commands.{name}":
-                continue
-            raise
+        module = importlib.import_module(f"checker.commands.{name}")
         p = module.add_parser(sub)
         p.set_defaults(_run=module.run)
     return parser

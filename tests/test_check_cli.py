@@ -300,3 +300,16 @@ def test_progress_on_a_terminal_and_not_in_a_pipe(corpus, tmp_path):
         argv = command(corpus["src"], corpus["loose"], tmp_path / "c", "--quiet")[3:]
         assert main(argv, io.StringIO(), tty) == EXIT_UNCHECKED
     assert "checking:" not in read_all(master)
+
+
+def test_library_check_matches_the_command(corpus, tmp_path):
+    """checker.check() is the command without the printing: same statuses, same report files."""
+    import checker
+
+    run, results = checker.check([corpus["src"]], str(corpus["loose"]), tmp_path / "lib", jobs=1)
+    assert run.profile_name == "loose"
+    statuses = sorted(r.status for r in results)
+    assert statuses.count("error") == 2 and statuses.count("fail") == 4
+    assert statuses.count("pass") == 8
+    for name in ("report.csv", "flags.csv", "report.html", "results.jsonl", "results.sqlite"):
+        assert (tmp_path / "lib" / name).is_file()

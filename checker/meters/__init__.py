@@ -16,13 +16,7 @@ METERS: tuple[tuple[str, str], ...] = (
 
 
 def meter_classes() -> list[type]:
-    classes = []
-    for module_name, class_name in METERS:
-        try:
-            module = importlib.import_module(module_name)
-        except ModuleNotFoundError as exc:  # TEMPORARY during bring-up; made strict before release
-            if exc.name == module_name:
-                continue
-            raise
-        classes.append(getattr(module, class_name))
-    return classes
+    return [
+        getattr(importlib.import_module(module_name), class_name)
+        for module_name, class_name in METERS
+    ]
