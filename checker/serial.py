@@ -32,14 +32,22 @@ def plain(value: Any) -> Any:
 
 
 def json_safe(value: Any) -> Any:
-    value = plain(value)
+    """plain() plus -inf/inf as strings, in one pass (results.jsonl writes thousands of points)."""
+    if isinstance(value, float):
+        if value != value:
+            return None
+        if value in (math.inf, -math.inf):
+            return "-inf" if value < 0 else "inf"
+        return value
+    if isinstance(value, (str, int, bool)) or value is None:
+        return value
     if isinstance(value, dict):
-        return {k: json_safe(v) for k, v in value.items()}
-    if isinstance(value, list):
+        return {str(k): json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
         return [json_safe(v) for v in value]
-    if isinstance(value, float) and math.isinf(value):
-        return "-inf" if value < 0 else "inf"
-    return value
+    if isinstance(value, np.ndarray):
+        return [json_safe(v) for v in value.tolist()]
+    return json_safe(plain(value))
 
 
 def from_json_safe(value: Any) -> Any:
