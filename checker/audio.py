@@ -95,6 +95,14 @@ class Block:
     def frames(self) -> int:
         return self.x.shape[0]
 
+    @property
+    def xt(self) -> np.ndarray:
+        """``x`` channel-major, C-contiguous (channels, frames). The reader stores its
+        blocks that way (``x`` is then a transposed view), so this costs nothing for
+        them; for other blocks it is a copy, made on every call."""
+        t = self.x.T
+        return t if t.flags.c_contiguous else np.ascontiguousarray(t)
+
 
 def open_info(path: str) -> StreamInfo:
     """Read the header only. Raises AudioReadError with a one-line message."""
@@ -182,11 +190,17 @@ def read_blocks(
 
 
 def _iterate(handle: sf.SoundFile, info: StreamInfo, block_frames: int) -> Iterator[Block]:
+    """Blocks are stored channel-major: ``x`` (and ``raw``) are transposed views of
+    C-contiguous (channels, frames) buffers reused from block to block, so every
+    per-channel reduction in the meters runs over contiguous memory without a copy."""
     integer = info.is_integer_pcm
     dtype = "int32" if integer else "float64"
-    buf = np.empty((block_frames, info.channels), dtype=dtype)
+    channels = info.channels
+    buf = np.empty((block_frames, channels), dtype=dtype)  # interleaved, as libsndfile writes
     readf = _snd.sf_readf_int if integer else _snd.sf_readf_double
     pointer = _ffi.cast("int *" if integer else "double *", buf.ctypes.data)
+    raw_t = np.empty((channels, block_frames), dtype=np.int32) if integer else None
+    x_t = np.empty((channels, block_frames), dtype=np.float64)
     start = 0
     try:
         with handle:
@@ -200,13 +214,17 @@ def _iterate(handle: sf.SoundFile, info: StreamInfo, block_frames: int) -> Itera
                     )
                 if n <= 0:
                     break
+                full = n == block_frames  # a short (last) block gets its own contiguous arrays
                 if integer:
-                    raw = buf[:n]
-                    x = raw * INT32_SCALE
-                    yield Block(x=x, raw=raw, start=start)
+                    rt = raw_t if full else np.empty((channels, n), dtype=np.int32)
+                    np.copyto(rt, buf[:n].T)
+                    xt = x_t if full else np.empty((channels, n))
+                    np.multiply(rt, INT32_SCALE, out=xt)
+                    yield Block(x=xt.T, raw=rt.T, start=start)
                 else:
-                    x = buf[:n]
-                    yield Block(x=x, raw=None, start=start)
+                    xt = x_t if full else np.empty((channels, n))
+                    np.copyto(xt, buf[:n].T)
+                    yield Block(x=xt.T, raw=None, start=start)
                 start += n
                 if n < block_frames:
                     break

@@ -19,7 +19,7 @@ from signals import noise, programme, sine, write
 from checker.audio import Block, StreamInfo
 from checker.layout import default_layout
 from checker.measure import measure
-from checker.meters.bandwidth import BandwidthMeter, fft_frames_for
+from checker.meters.bandwidth import SPARSE_STRIDE, BandwidthMeter, fft_frames_for
 from checker.meters.base import MeasureOptions
 
 
@@ -216,3 +216,43 @@ def test_single_frame_blocks_match():
 def test_hypothesis_splits(sizes):
     whole = run(INVARIANCE_X, 48_000, sizes=(INVARIANCE_X.shape[0],))
     _same(whole, run(INVARIANCE_X, 48_000, sizes=tuple(sizes)))
+
+
+# ---------------------------------------------------------------- sampled frames past DENSE_S
+
+
+def _run_dense(x: np.ndarray, rate: int, dense_s: float, sizes=(48_000,)) -> BandwidthMeter:
+    info = StreamInfo("x.wav", "WAV", "FLOAT", rate, x.shape[1], x.shape[0])
+    meter = BandwidthMeter(info, default_layout(x.shape[1]), MeasureOptions(), dense_s=dense_s)
+    pos, i = 0, 0
+    while pos < x.shape[0]:
+        n = min(sizes[i % len(sizes)], x.shape[0] - pos)
+        meter.feed(Block(x[pos : pos + n].copy(), None, pos))
+        pos += n
+        i += 1
+    return meter
+
+
+def test_sampled_frames_keep_the_white_noise_level_and_split_invariance():
+    # Past dense_s only every SPARSE_STRIDE-th frame is analysed, counted SPARSE_STRIDE
+    # times. White noise of variance s^2 reads s^2 per bin (Parseval; the meter's
+    # scale, see the module docstring), sampled or not: 6 s, dense for 1 s only.
+    rate = 48_000
+    x = noise(6.0, rate, channels=2, seed=5) * 0.1
+    s2 = float(np.mean(x**2))
+    sampled = _run_dense(x, rate, dense_s=1.0)
+    full = _run_dense(x, rate, dense_s=math.inf)
+    assert sampled.frames == full.frames  # frames passed, analysed or represented
+    assert full.weight == full.frames
+    # Each sampled frame stands for SPARSE_STRIDE frames; the last may overhang the end.
+    assert 0 <= sampled.weight - full.frames < SPARSE_STRIDE
+    band = slice(10, -10)
+    for m in (sampled, full):
+        level_db = 10 * np.log10(np.mean(m.spectrum()[band]) / s2)
+        assert_allclose(level_db, 0.0, rtol=0, atol=0.1)  # Parseval: equal, up to noise
+    ratio_db = 10 * np.log10(sampled.spectrum()[band] / full.spectrum()[band])
+    assert np.median(np.abs(ratio_db)) < 1.0  # 1/4 of the late frames: a few % per bin
+    assert np.max(np.abs(ratio_db)) > 0.0  # the sampled path really analysed fewer frames
+    other = _run_dense(x, rate, dense_s=1.0, sizes=(1_000, 33_333, 7))
+    assert_allclose(other.spectrum(), sampled.spectrum(), rtol=1e-9, atol=0)
+    assert other.result() == sampled.result()

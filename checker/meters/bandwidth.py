@@ -55,9 +55,15 @@ Analysis (project choices; the constants below):
   NEAR_SILENCE_DBFS; less than MIN_BROADBAND_SHARE of the power left after the
   median filter (pure tones, tone-only test files).
 
-Cost: one real FFT per hop per channel (about 23 per second per channel at
-48 kHz, every frame analysed); measured at roughly 200-300x real time for a
-stereo 48 kHz file on the shared 2-core machine, comparable to the other meters.
+Cost and sampling: one real FFT per analysed frame and channel. Every frame
+starting in the first DENSE_S = 60 s is analysed (about 23 per second per channel
+at 48 kHz); after that only every SPARSE_STRIDE = 4th frame by file-wide index,
+counted 4 times, a systematic sample of the rest of a long file (still about 6
+frames per second per channel): the FFTs cost about as much as decoding the file
+when every frame is analysed, a quarter of that sampled. Block-split invariance
+holds (the choice depends on the frame's index only). numpy's FFT, not scipy's:
+importing scipy.fft costs about 0.3 s per process, which is what a short file's
+whole analysis takes.
 """
 
 from __future__ import annotations
@@ -67,9 +73,6 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
-from scipy import fft as sfft
-from scipy import ndimage
-from scipy.signal import windows
 
 from checker.audio import Block, StreamInfo
 from checker.layout import Layout
@@ -96,10 +99,29 @@ CUTOFF_DROP_DB = 3.0
 SUGGEST_BELOW_FRACTION = 0.85
 NEAR_SILENCE_DBFS = -80.0
 MIN_BROADBAND_SHARE = 0.01  # -20 dB of the power outside narrow peaks
+#: Every spectrum frame starting in the first DENSE_S seconds is analysed; after that,
+#: every SPARSE_STRIDE-th frame (by file-wide index), counted SPARSE_STRIDE times.
+DENSE_S = 60.0
+SPARSE_STRIDE = 4
 #: Frames x channels per FFT call (bounds temporary memory: 128 x 4096 x 16 bytes).
 FFT_BATCH_ROWS = 128
 #: Common lower rates, for the plain-words suggestion.
 COMMON_RATES_HZ = (8000, 11025, 16000, 22050, 24000, 32000, 44100, 48000, 88200, 96000)
+
+
+def kaiser_periodic(n: int, beta: float) -> np.ndarray:
+    """Periodic Kaiser window (the symmetric one of n + 1 points, last dropped), as
+    scipy.signal.windows.kaiser(n, beta, sym=False); numpy's, to keep scipy.signal
+    (about 0.7 s of imports) out of the measuring process."""
+    return np.kaiser(n + 1, beta)[:-1]
+
+
+def median_filter_nearest(x: np.ndarray, size: int) -> np.ndarray:
+    """Running median over ``size`` (odd) points, edges padded with the end values
+    (scipy.ndimage.median_filter(x, size, mode="nearest") for 1-D x)."""
+    half = size // 2
+    padded = np.concatenate((np.full(half, x[0]), x, np.full(half, x[-1])))
+    return np.median(sliding_window_view(padded, size), axis=1)
 
 
 def fft_frames_for(rate_hz: int) -> int:
@@ -119,40 +141,62 @@ class BandwidthResult:
 
 
 class BandwidthMeter:
-    def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
+    def __init__(
+        self,
+        info: StreamInfo,
+        layout: Layout,
+        options: MeasureOptions,
+        *,
+        dense_s: float = DENSE_S,
+    ) -> None:
         self.rate = info.sample_rate_hz
         self.channels = info.channels
         self.n = fft_frames_for(self.rate)
         self.hop = self.n // 2
-        self.window = windows.kaiser(self.n, KAISER_BETA, sym=False)
+        self.window = kaiser_periodic(self.n, KAISER_BETA)
         self.window_power = float(np.sum(self.window**2))
         self.bits = info.format_bits if info.is_integer_pcm else None
         self.sum_parts = np.zeros(2 * (self.n // 2 + 1))  # sums of re^2 and im^2 per bin
-        self.frames = 0
-        self.tail = np.zeros((0, self.channels))
+        self.frames = 0  # spectrum frames passed (analysed or represented)
+        self.weight = 0.0  # frames the sums stand for: dense 1 each, sparse SPARSE_STRIDE each
+        self.dense_frames = min(2**62, math.ceil(min(dense_s, 1e12) * self.rate / self.hop))
+        self.tail = np.zeros((self.channels, 0))  # channel-major: (channels, frames)
 
     def feed(self, block: Block) -> None:
-        x = block.x
-        if x.shape[0] == 0:
+        if block.frames == 0:
             return
-        if not np.isfinite(x).all():
+        x = block.xt  # (channels, frames), contiguous rows
+        if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)
-        buf = np.concatenate([self.tail, x]) if self.tail.shape[0] else x
-        count = 0 if buf.shape[0] < self.n else (buf.shape[0] - self.n) // self.hop + 1
+        buf = np.concatenate([self.tail, x], axis=1) if self.tail.shape[1] else x
+        length = buf.shape[1]
+        count = 0 if length < self.n else (length - self.n) // self.hop + 1
         if count:
-            view = sliding_window_view(buf, self.n, axis=0)[:: self.hop]  # (count, ch, n)
-            step = max(1, FFT_BATCH_ROWS // self.channels)
-            for i in range(0, count, step):
-                spec = sfft.rfft(view[i : i + step] * self.window, axis=-1)
-                parts = spec.view(np.float64)  # re, im interleaved: |X|^2 = re^2 + im^2
-                self.sum_parts += np.einsum("ijk,ijk->k", parts, parts)
+            view = sliding_window_view(buf, self.n, axis=1)[:, :: self.hop]  # (ch, count, n)
+            k = np.arange(self.frames, self.frames + count)  # file-wide spectrum frame index
+            dense = np.flatnonzero(k < self.dense_frames)
+            sparse = np.flatnonzero((k >= self.dense_frames) & (k % SPARSE_STRIDE == 0))
+            if dense.size:
+                self._add(view[:, dense[0] : dense[-1] + 1], 1.0)
+            if sparse.size:
+                self._add(view[:, sparse[0] : sparse[-1] + 1 : SPARSE_STRIDE], SPARSE_STRIDE)
             self.frames += count
-        self.tail = buf[count * self.hop :].copy()
+        self.tail = buf[:, count * self.hop :].copy()
+
+    def _add(self, frames: np.ndarray, weight: float) -> None:
+        """Add the power spectra of ``frames`` (channels, count, n), each counted ``weight`` times."""
+        step = max(1, FFT_BATCH_ROWS // self.channels)
+        for i in range(0, frames.shape[1], step):
+            spec = np.fft.rfft(frames[:, i : i + step] * self.window, axis=-1)
+            parts = spec.view(np.float64)  # re, im interleaved: |X|^2 = re^2 + im^2
+            total = np.einsum("ijk,ijk->k", parts, parts)
+            self.sum_parts += total if weight == 1.0 else weight * total
+            self.weight += weight * spec.shape[1]
 
     def spectrum(self) -> np.ndarray:
         """Averaged equivalent white-noise power per bin, 0 Hz to Nyquist (re 1.0)."""
         power = self.sum_parts[0::2] + self.sum_parts[1::2]
-        return power / (max(1, self.frames * self.channels) * self.window_power)
+        return power / (max(1.0, self.weight * self.channels) * self.window_power)
 
     def result(self) -> BandwidthResult:
         return analyse(self.spectrum(), self.rate, self.frames, self.bits)
@@ -177,7 +221,7 @@ def analyse(power: np.ndarray, rate_hz: int, frames: int, bits: int | None) -> B
     if level < NEAR_SILENCE_DBFS:
         return _none(f"cannot judge: near silence (long-term level {level:.1f} dBFS)")
     width = max(5, int(round(MEDIAN_FRACTION * nbins)) | 1)
-    smooth_power = ndimage.median_filter(power, size=width, mode="nearest")
+    smooth_power = median_filter_nearest(power, width)
     share = float(smooth_power[1:].sum() / band.sum())
     if share < MIN_BROADBAND_SHARE:
         return _none(

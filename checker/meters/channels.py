@@ -58,6 +58,14 @@ def channel_pairs(channels: int) -> list[tuple[int, int]]:
     return [(i, i + 1) for i in range(channels - 1)]
 
 
+def _equal(a: np.ndarray, b: np.ndarray, sign: float = 1.0) -> bool:
+    """a == sign * b sample for sample (a short prefix first: most pairs differ at once)."""
+    head = min(a.size, 64)
+    if not np.array_equal(a[:head], sign * b[:head]):
+        return False
+    return bool(np.array_equal(a, sign * b))
+
+
 class ChannelsMeter:
     def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
         ch = info.channels
@@ -78,21 +86,23 @@ class ChannelsMeter:
             return
         xt = channels_first(finite_x(block))  # (channels, frames)
         self.frames += xt.shape[1]
-        self.peak = np.maximum(self.peak, np.abs(xt).max(axis=1))
+        self.peak = np.maximum(self.peak, np.maximum(xt.max(axis=1), -xt.min(axis=1)))
         self.sums += xt.sum(axis=1)
-        self.squares += np.einsum("ij,ij->i", xt, xt)
+        if self.channels < 2 or self.channels > MAX_ALL_PAIRS_CHANNELS:
+            self.squares += np.einsum("ij,ij->i", xt, xt)
         if self.channels < 2:
             return
         if self.channels <= MAX_ALL_PAIRS_CHANNELS:
-            gram = xt @ xt.T
+            gram = xt @ xt.T  # squares on the diagonal, products off it
+            self.squares += np.diagonal(gram)
             self.products += gram[self.first, self.second]
         else:
             self.products += np.einsum("ij,ij->i", xt[self.first], xt[self.second])
         for k, (i, j) in enumerate(self.pairs):
             if self.identical[k]:
-                self.identical[k] = np.array_equal(xt[i], xt[j])
+                self.identical[k] = _equal(xt[i], xt[j])
             if self.inverted[k]:
-                self.inverted[k] = np.array_equal(xt[i], -xt[j])
+                self.inverted[k] = _equal(xt[i], xt[j], -1.0)
 
     def result(self) -> ChannelsResult:
         silent_mask = self.peak < db_to_amplitude(SILENT_CHANNEL_PEAK_DBFS)

@@ -44,7 +44,7 @@ from typing import Any
 
 import numpy as np
 
-from checker.audio import Block, StreamInfo
+from checker.audio import INT32_SCALE, Block, StreamInfo
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
@@ -119,6 +119,13 @@ def channels_first(x: np.ndarray) -> np.ndarray:
     """A contiguous (channels, frames) copy: numpy reduces along the last axis far
     faster than across a short first axis (about 10x for stereo)."""
     return np.ascontiguousarray(x.T)
+
+
+def _zero_frames(xt: np.ndarray) -> np.ndarray:
+    """(frames,) True where every channel is digital zero."""
+    if xt.shape[0] == 1:
+        return xt[0] == 0.0
+    return ~np.any(xt != 0.0, axis=0)
 
 
 def float_grid_bits(xt: np.ndarray) -> np.ndarray:
@@ -205,11 +212,11 @@ class LevelsMeter:
         elif raw is None:
             x = finite_x(block)
         xt = channels_first(x)
-        ax = np.abs(xt)
-        m = ax.max(axis=1)
+        hi, lo = xt.max(axis=1), xt.min(axis=1)
+        m = np.maximum(hi, -lo)
         better = m > self.peak
         if better.any():
-            idx = ax.argmax(axis=1)
+            idx = np.abs(xt).argmax(axis=1)
             self.peak = np.where(better, m, self.peak)
             self.peak_frame = np.where(better, idx + block.start, self.peak_frame)
         if raw is not None:
@@ -217,19 +224,24 @@ class LevelsMeter:
             sums = rt.sum(axis=1, dtype=np.int64)
             self.dc_int = [a + int(b) for a, b in zip(self.dc_int, sums, strict=True)]
             self.code_or |= np.bitwise_or.reduce(rt, axis=1)
-            self._clip(rt == self.clip_hi, rt == self.clip_lo, block.start)
+            # Full-scale codes only where the block reaches them (or a run is still open).
+            reach = (hi >= self.clip_hi * INT32_SCALE) | (lo <= self.clip_lo * INT32_SCALE)
+            if reach.any() or any(s is not None for state in self.clip_open for s in state):
+                self._clip(rt == self.clip_hi, rt == self.clip_lo, block.start)
         else:
             self.dc_float += xt.sum(axis=1)
             if self.info.is_float:
-                self._clip(xt >= 1.0, xt <= -1.0, block.start)
-                self.overs += int(np.count_nonzero(ax > 1.0))
+                if (m >= 1.0).any() or any(s is not None for st in self.clip_open for s in st):
+                    self._clip(xt >= 1.0, xt <= -1.0, block.start)
+                if (m > 1.0).any():
+                    self.overs += int(np.count_nonzero(xt > 1.0) + np.count_nonzero(xt < -1.0))
                 active = self.grid_bits <= MAX_GRID_BITS
                 if active.any():
                     bits = float_grid_bits(xt[active])
                     self.grid_bits[active] = np.maximum(self.grid_bits[active], bits)
         x2 = xt * xt
         self.sumsq += x2.sum(axis=1)
-        self._segments(x2, ~np.any(xt != 0.0, axis=0))
+        self._segments(x2, _zero_frames(xt))
         self.frames += n
 
     def _count_nonfinite(self, x: np.ndarray, start: int) -> np.ndarray:

@@ -46,10 +46,10 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
-from scipy.signal import sosfilt
 
 from checker import units
 from checker.audio import Block, StreamInfo
+from checker.dsp.iir import sosfilt_rows
 from checker.dsp.kweighting import k_weighting_sos
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
@@ -191,8 +191,8 @@ class LoudnessMeter:
         self.active = np.flatnonzero(weights > 0.0)
         self.all_active = self.active.size == weights.size
         self.weights = weights[self.active]
-        self.sos = k_weighting_sos(self.rate)
-        self.zi = np.zeros((self.sos.shape[0], 2, self.active.size))
+        self.sos = np.ascontiguousarray(k_weighting_sos(self.rate), dtype=np.float64)
+        self.zi = np.zeros((self.active.size, self.sos.shape[0], 2))  # per channel, section
         self.frames = 0  # frames fed so far
         self.sub_count = 0  # 1 ms sub-steps completed
         self.partial = 0.0  # weighted power sum of the current, incomplete 1 ms sub-step
@@ -205,19 +205,20 @@ class LoudnessMeter:
     # -- streaming -------------------------------------------------------------------------
 
     def feed(self, block: Block) -> None:
-        x = block.x
-        n = x.shape[0]
+        n = block.frames
         if n == 0:
             return
-        if not self.all_active:
-            x = x[:, self.active]
-        if not np.isfinite(x).all():  # NaN/Inf in a float file (counted by the levels meter)
-            x = np.where(np.isfinite(x), x, 0.0)
         if self.active.size == 0:
             p = np.zeros(n)
         else:
-            y, self.zi = sosfilt(self.sos, x, axis=0, zi=self.zi)
-            p = (y * y) @ self.weights
+            # A channel-major copy of the channels that count, filtered in place.
+            xt = block.x.T
+            y = np.array(xt if self.all_active else xt[self.active], dtype=np.float64, order="C")
+            if block.raw is None and not np.isfinite(y).all():
+                y[~np.isfinite(y)] = 0.0  # NaN/Inf in a float file (counted by the levels meter)
+            sosfilt_rows(self.sos, y, self.zi)
+            np.multiply(y, y, out=y)
+            p = self.weights @ y
         start = self.frames
         end = start + n
         self.frames = end

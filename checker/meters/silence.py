@@ -49,6 +49,14 @@ class SilenceResult:
         return dict(self.__dict__)
 
 
+def _first_last(mask: np.ndarray) -> tuple[int | None, int | None]:
+    """First and last index where ``mask`` is True, or (None, None)."""
+    first = int(mask.argmax())
+    if not mask[first]:
+        return None, None
+    return first, mask.size - 1 - int(mask[::-1].argmax())
+
+
 class SilenceMeter:
     def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
         self.rate = info.sample_rate_hz
@@ -69,19 +77,20 @@ class SilenceMeter:
         n = block.frames
         if n == 0:
             return
-        level = np.abs(channels_first(finite_x(block))).max(axis=0)
+        xt = channels_first(finite_x(block))
+        level = np.abs(xt[0]) if xt.shape[0] == 1 else np.abs(xt).max(axis=0)
         start = block.start
-        loud = np.flatnonzero(level >= self.threshold)
-        if loud.size:
+        first, last = _first_last(level >= self.threshold)
+        if first is not None:
             if self.first_loud is None:
-                self.first_loud = start + int(loud[0])
-            self.last_loud = start + int(loud[-1])
+                self.first_loud = start + first
+            self.last_loud = start + last
         zero = level == 0.0
-        nonzero = np.flatnonzero(~zero)
-        if nonzero.size:
+        first, last = _first_last(~zero)
+        if first is not None:
             if self.first_nonzero is None:
-                self.first_nonzero = start + int(nonzero[0])
-            self.last_nonzero = start + int(nonzero[-1])
+                self.first_nonzero = start + first
+            self.last_nonzero = start + last
         starts, ends, self.zero_open = find_runs(zero, start, self.zero_open)
         # A run that starts at frame 0 is leading padding, not a dropout.
         length = ends - starts
