@@ -8,16 +8,18 @@ Peak RSS comes from os.wait4 on each child.
     python tests/benchmarks/run_bench.py            # full set (generates ~3.5 GB once, cached)
     python tests/benchmarks/run_bench.py --quick    # shorter files, fewer repetitions
     python tests/benchmarks/run_bench.py --tiny     # seconds-long smoke run (used by the test suite)
+    python tests/benchmarks/run_bench.py --long     # adds the memory check: a 3-hour file
+                                                    # against a 10-minute one (~3 GB more, cached)
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import statistics
 import subprocess
 import sys
-import time
 import zlib
 from pathlib import Path
 
@@ -68,17 +70,27 @@ def make_file(path: Path, minutes: float, channels: int, rate: int, subtype: str
     return path
 
 
+_spawner: subprocess.Popen | None = None
+
+
 def run_once(cmd: list[str]) -> tuple[float, float, int]:
-    """(wall seconds, peak RSS MB, exit status) of one child process."""
-    start = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    _, status, usage = os.wait4(proc.pid, 0)
-    wall = time.perf_counter() - start
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
-    if proc.returncode not in (0, 1):
-        raise SystemExit(f"bench: {' '.join(cmd)} exited {proc.returncode}: {err.strip()[-400:]}")
-    return wall, usage.ru_maxrss / 1024.0, proc.returncode
+    """(wall seconds, peak RSS MB, exit status) of one child process, started by the
+    small spawner process (see spawner.py: why not from this one)."""
+    global _spawner
+    if _spawner is None:
+        _spawner = subprocess.Popen(
+            [PY, str(HERE / "spawner.py")],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            text=True,
+        )
+    assert _spawner.stdin is not None and _spawner.stdout is not None
+    _spawner.stdin.write(json.dumps(cmd) + "\n")
+    _spawner.stdin.flush()
+    wall, mb, status, err = json.loads(_spawner.stdout.readline())
+    if status not in (0, 1):
+        raise SystemExit(f"bench: {' '.join(cmd)} exited {status}: {err.strip()[-400:]}")
+    return wall, mb, status
 
 
 def commands(path: Path) -> dict[str, list[str]]:
@@ -109,6 +121,12 @@ def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, tuple[float, 
     print(f"  {'command':<18} {'median s':>9} {'x realtime':>11} {'peak RSS MB':>12}")
     for k, (t, mb) in result.items():
         print(f"  {k:<18} {t:>9.2f} {dur / t:>11.0f} {mb:>12.0f}")
+    computed, seen = truepeak_skip(path)
+    if seen:
+        print(
+            f"  true peak: {computed} of {seen} chunk-channels interpolated "
+            f"({100 * computed / seen:.0f} %; the rest skipped by the exact bound)"
+        )
     b = result["b deliverycheck"][0]
     ratios = [f"b/a = {b / result['a decode'][0]:.2f}"]
     if "c pyloudnorm" in result:
@@ -117,6 +135,36 @@ def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, tuple[float, 
         ratios.append(f"d/b = {result['d pyebur128'][0] / b:.2f}")
     print("  ratios: " + ", ".join(ratios))
     return result
+
+
+def truepeak_skip(path: Path) -> tuple[int, int]:
+    """(chunk-channels interpolated, seen) by the true-peak meter on this file."""
+    w = str(HERE / "workloads.py")
+    out = subprocess.run(
+        [PY, w, "tpskip", str(path), str(BLOCK)], capture_output=True, text=True, check=True
+    ).stdout.split()
+    return int(out[0]), int(out[1])
+
+
+def bench_memory(long_file: Path, short_file: Path, reps: int) -> None:
+    """Peak RSS of (b) on a 3-hour file against a 10-minute one: streaming keeps it flat."""
+    print("\nmemory: deliverycheck measure, peak RSS (MB) by file length")
+    rows, minutes = [], []
+    for path in (short_file, long_file):
+        info = sf.info(str(path))
+        runs = [run_once(commands(path)["b deliverycheck"]) for _ in range(reps)]
+        wall = statistics.median(r[0] for r in runs)
+        mb = max(r[1] for r in runs)
+        dur = info.frames / info.samplerate
+        rows.append(mb)
+        minutes.append(dur / 60)
+        print(
+            f"  {dur / 60:6.1f} min: {mb:6.0f} MB peak RSS, {wall:7.2f} s, {dur / wall:5.0f}x realtime"
+        )
+    print(
+        f"  peak RSS {minutes[1]:.0f} min / {minutes[0]:.0f} min = {rows[1] / rows[0]:.2f} "
+        "(target: about 1, both <= 200 MB)"
+    )
 
 
 def bench_jobs(files: list[Path], reps: int, out: Path) -> None:
@@ -135,6 +183,9 @@ def main(argv: list[str] | None = None) -> int:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     p.add_argument("--quick", action="store_true", help="shorter files, 3 repetitions")
     p.add_argument("--tiny", action="store_true", help="a few seconds of audio: smoke run")
+    p.add_argument(
+        "--long", action="store_true", help="also: peak RSS on a 3-hour file vs a 10-minute one"
+    )
     p.add_argument("--reps", type=int, default=None)
     p.add_argument("--cache", type=Path, default=CACHE)
     args = p.parse_args(argv)
@@ -170,6 +221,11 @@ def main(argv: list[str] | None = None) -> int:
         for i in range(batch)
     ]
     bench_jobs(ten, max(1, min(reps, 3)), c / "batch-out")
+    if args.long:
+        long_file = make_file(
+            c / f"programme-180min-{scale:g}.wav", 180 * scale, 2, 48_000, "PCM_24", False
+        )
+        bench_memory(long_file, ten[0], max(1, min(reps, 2)))
     return 0
 
 

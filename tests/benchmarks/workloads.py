@@ -51,6 +51,21 @@ def pyebur128_full(path: str, block_frames: int) -> None:
             e.get_sample_peak(state, c)
 
 
+def truepeak_skip(path: str, block_frames: int) -> None:
+    """True-peak chunks interpolated / seen (the skip bound's effect), printed as 'n m'."""
+    from checker.audio import read_blocks
+    from checker.layout import default_layout
+    from checker.meters.base import MeasureOptions
+    from checker.meters.truepeak import TruePeakMeter
+
+    info, blocks = read_blocks(path, block_frames)
+    meter = TruePeakMeter(info, default_layout(info.channels), MeasureOptions())
+    for block in blocks:
+        meter.feed(block)
+    meter.result()
+    print(meter.computed, meter.seen)
+
+
 if __name__ == "__main__":
     which, path = sys.argv[1], sys.argv[2]
     frames = int(sys.argv[3]) if len(sys.argv) > 3 else 48_000
@@ -60,5 +75,7 @@ if __name__ == "__main__":
         pyloudnorm_integrated(path)
     elif which == "pyebur128":
         pyebur128_full(path, frames)
+    elif which == "tpskip":
+        truepeak_skip(path, frames)
     else:
         raise SystemExit(f"unknown workload {which!r}")
