@@ -189,7 +189,7 @@ def _context():
         from checker.meters import METERS
 
         ctx.set_forkserver_preload(
-            ["checker.workers", "checker.measure", "scipy.signal", *(m for m, _ in METERS)]
+            ["checker.workers", "checker.measure", *(m for m, _ in METERS)]
         )
         return ctx
     return mp.get_context("spawn")  # pragma: no cover - Windows
