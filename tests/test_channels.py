@@ -7,10 +7,11 @@ import math
 import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from meterkit import info_for, run_meter, to_codes
 from numpy.testing import assert_allclose
 from signals import noise, write
 
-from checker.audio import Block, StreamInfo
+from checker.audio import Block
 from checker.layout import default_layout
 from checker.measure import measure
 from checker.meters.base import MeasureOptions
@@ -19,38 +20,8 @@ from checker.meters.channels import ChannelsMeter
 RATE = 8_000
 
 
-def info_for(subtype: str, channels: int, rate: int = RATE) -> StreamInfo:
-    return StreamInfo("mem.wav", "WAV", subtype, rate, channels, None)
-
-
-def to_codes(x: np.ndarray, bits: int) -> np.ndarray:
-    top = 2 ** (bits - 1)
-    k = np.clip(np.round(x * top), -top, top - 1).astype(np.int64)
-    return (k << (32 - bits)).astype(np.int32)
-
-
 def run(x, subtype="DOUBLE", raw=None, sizes=(10**9,)):
-    """Feed x (and raw) in blocks of the given sizes (cycled) through one reused buffer."""
-    info = info_for(subtype, x.shape[1])
-    meter = ChannelsMeter(info, default_layout(info.channels), MeasureOptions())
-    n = x.shape[0]
-    cap = max(1, min(n, max(sizes)))
-    buf_x = np.empty((cap, x.shape[1]))
-    buf_raw = np.empty((cap, x.shape[1]), dtype=np.int32)
-    start, i = 0, 0
-    while start < n:
-        stop = min(n, start + sizes[i % len(sizes)])
-        i += 1
-        bx, braw = buf_x[: stop - start], None
-        bx[:] = x[start:stop]
-        if raw is not None:
-            braw = buf_raw[: stop - start]
-            braw[:] = raw[start:stop]
-        meter.feed(Block(bx, braw, start))
-        buf_x.fill(0.123)  # a meter that kept a view would now see garbage
-        buf_raw.fill(12345)
-        start = stop
-    return meter.result()
+    return run_meter(ChannelsMeter, info_for(subtype, x.shape[1]), x, raw, sizes)
 
 
 def no_nan(value) -> bool:

@@ -8,10 +8,11 @@ import numpy as np
 import soundfile as sf
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from meterkit import info_for, run_meter, to_codes
 from numpy.testing import assert_allclose
 from signals import write
 
-from checker.audio import Block, StreamInfo, read_blocks
+from checker.audio import Block, read_blocks
 from checker.layout import default_layout
 from checker.measure import measure
 from checker.meters.base import MeasureOptions
@@ -21,42 +22,7 @@ from checker.units import quantization_floor_dbfs
 RATE = 8_000
 
 
-def info_for(subtype: str, channels: int, rate: int = RATE) -> StreamInfo:
-    return StreamInfo("mem.wav", "WAV", subtype, rate, channels, None)
-
-
-def to_codes(x: np.ndarray, bits: int) -> np.ndarray:
-    """Round to an N-bit grid and left-justify in int32, as checker.audio delivers codes."""
-    top = 2 ** (bits - 1)
-    k = np.clip(np.round(x * top), -top, top - 1).astype(np.int64)
-    return (k << (32 - bits)).astype(np.int32)
-
-
-def run(meter_cls, info, x, raw=None, sizes=(10**9,), options=None):
-    """Feed x (and raw) in blocks of the given sizes (cycled) through one reused buffer."""
-    meter = meter_cls(info, default_layout(info.channels), options or MeasureOptions())
-    n = x.shape[0]
-    cap = max(1, min(n, max(sizes)))
-    buf_x = np.empty((cap, x.shape[1]))
-    buf_raw = np.empty((cap, x.shape[1]), dtype=np.int32)
-    start, i = 0, 0
-    while start < n or i == 0:
-        stop = min(n, start + sizes[i % len(sizes)])
-        i += 1
-        k = stop - start
-        bx = buf_x[:k]
-        bx[:] = x[start:stop]
-        braw = None
-        if raw is not None:
-            braw = buf_raw[:k]
-            braw[:] = raw[start:stop]
-        meter.feed(Block(bx, braw, start))
-        buf_x.fill(0.123)  # a meter that kept a view would now see garbage
-        buf_raw.fill(12345)
-        start = stop
-        if n == 0:
-            break
-    return meter.result()
+run = run_meter
 
 
 def no_nan(value) -> bool:
