@@ -435,3 +435,27 @@ def test_skip_bound_uses_the_taps():
     # The bound sum |taps| is >= 1 for every phase (phase 0 is exactly 1: the sample itself).
     sums = phase_abs_sums(design_phases(4))
     assert sums[0] == 1.0 and np.all(sums[1:] > 1.0)
+
+
+def test_whole_block_skip_is_bit_identical_and_used():
+    # A loud first second, then 7 s up to 20 dB quieter: most later 9600-frame blocks can
+    # be passed over whole (feed's block-level test). Same result as interpolating every
+    # chunk (skip=False) and as the per-chunk skip alone; same chunks counted.
+    rate = 48_000
+    x = programme(8.0, rate=rate, seed=12, level_dbfs=-30.0)
+    x[:rate] *= 10.0
+    options = MeasureOptions()
+    fast = meter_for(x, rate, options)
+    full = meter_for(x, rate, options, skip=False)
+    per_chunk = meter_for(x, rate, options)
+    per_chunk._all_skippable = lambda block, xx: False  # per-chunk decisions only
+    whole_blocks = 0
+    for i in range(0, x.shape[0], 9600):
+        block = Block(x=x[i : i + 9600], raw=None, start=i)
+        whole_blocks += fast._all_skippable(block, block.x)
+        for m in (fast, full, per_chunk):
+            m.feed(Block(x=x[i : i + 9600], raw=None, start=i))
+    assert whole_blocks >= 10  # the block-level path was really taken
+    assert fast.result().to_dict() == full.result().to_dict() == per_chunk.result().to_dict()
+    assert fast.seen == full.seen == per_chunk.seen
+    assert fast.computed == per_chunk.computed < full.computed

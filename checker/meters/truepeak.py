@@ -195,8 +195,35 @@ class TruePeakMeter:
         x = block.x
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
+        if self.skip and x.shape[0] and self._all_skippable(block, x):
+            chunks = 0
+            for _ in self.stream.push(x):  # every chunk would be skipped: only count them
+                chunks += 1
+            self.seen += chunks * self.channels
+            if chunks:
+                self.state.in_run[:] = False
+            return
         for j, window in self.stream.push(x):
             self._chunk(self.state, j, window, None)
+
+    def _all_skippable(self, block: Block, x: np.ndarray) -> bool:
+        """True when every chunk this block completes would be skipped on every channel.
+
+        Those chunks' windows lie within the stream's kept tail and this block, so the
+        per-channel maximum over both bounds each chunk's own (taken, like the chunks',
+        on the float32 samples: rounding is monotonic), and the skip test below is the
+        one _chunk applies per chunk."""
+        xt = block.xt if x is block.x else np.ascontiguousarray(x.T)
+        peak = np.maximum(xt.max(axis=1), -xt.min(axis=1)).astype(np.float32)
+        tail = self.stream.buf
+        if tail.shape[1]:
+            peak = np.maximum(peak, np.maximum(tail.max(axis=1), -tail.min(axis=1)))
+        reach = peak.astype(np.float64) * (self.tap_bound * (1.0 + BOUND_MARGIN))
+        st = self.state
+        return bool(
+            np.all(reach * self.fine_bound * self.edge_dominance <= st.best)
+            and np.all(reach <= self.ceiling_amp)
+        )
 
     def _edge_masks(
         self, base: int, lo: int, hi: int, last_frame: int | None
