@@ -59,6 +59,8 @@ MOMENTARY_STEPS = 4  # 400 ms of 100 ms steps
 SHORT_TERM_STEPS = 30  # 3 s of 100 ms steps
 MOMENTARY_SUBSTEPS = 400  # 400 ms of 1 ms sub-steps
 SHORT_TERM_SUBSTEPS = 300  # 3 s of 10 ms sub-steps
+#: 100 ms records are joined into one array once this many pieces have piled up.
+COMPACT_AFTER = 64
 #: Unit roundoff of float64 (bounds the running-sum estimate's error in _SlidingMax).
 EPS = float(np.finfo(np.float64).eps)
 RELATIVE_GATE_LU = -10.0  # BS.1770-4
@@ -272,6 +274,8 @@ class LoudnessMeter:
         self.pending_10ms = buf[full:].copy()
         if full:
             self.step_chunks.append(buf[:full].reshape(-1, 10).sum(axis=1))
+            if len(self.step_chunks) > COMPACT_AFTER:  # one array, not thousands of small ones
+                self.step_chunks = [np.concatenate(self.step_chunks)]
 
     # -- results ---------------------------------------------------------------------------
 
