@@ -195,12 +195,20 @@ def zero_nonfinite(block: Block) -> None:
     np.copyto(block.x, 0.0, where=~np.isfinite(block.x))
 
 
-def measure(path: str, options: MeasureOptions | None = None) -> Measurement:
-    """Measure one file in a single streaming pass. Raises AudioReadError."""
+def measure(
+    path: str, options: MeasureOptions | None = None, *, read_ahead: bool = False
+) -> Measurement:
+    """Measure one file in a single streaming pass. Raises AudioReadError.
+
+    ``read_ahead``: decode in a second thread, overlapping the meters (for a lone
+    measurement with a core to spare; batch workers keep one thread each)."""
     options = options or MeasureOptions()
     before = _stat(str(path))
     try:
-        info, blocks = read_blocks(str(path), options.block_frames)
+        if read_ahead:
+            info, blocks = read_blocks(str(path), options.block_frames, read_ahead=True)
+        else:
+            info, blocks = read_blocks(str(path), options.block_frames)
     except AudioReadError as exc:  # say what the WAV header reader saw, if anything
         raise open_error(str(path), exc) from None
     header = read_wav_header(str(path))  # header only (seeks past the audio); None if not WAV
