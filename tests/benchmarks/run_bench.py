@@ -3,7 +3,12 @@
 Every command runs in its own process; commands alternate within each
 repetition; the table shows medians and ratios measured side by side in this
 one run (the machine is shared and noisy: compare ratios, not lone times).
-Peak RSS comes from os.wait4 on each child.
+Peak RSS comes from os.wait4 on each child (started by spawner.py).
+
+Rows: (a) decode only; (b) `deliverycheck measure` as users run it (it decodes
+ahead in a second thread); (b1) the same analysis on one thread, what a batch
+worker spends per file; (c) pyloudnorm integrated; (d) pyebur128 integrated +
+LRA + true peak + sample peak.
 
     python tests/benchmarks/run_bench.py            # full set (generates ~3.5 GB once, cached)
     python tests/benchmarks/run_bench.py --quick    # shorter files, fewer repetitions
@@ -98,6 +103,7 @@ def commands(path: Path) -> dict[str, list[str]]:
     return {
         "a decode": [PY, w, "decode", str(path), str(BLOCK)],
         "b deliverycheck": [EXE, "measure", "--json", str(path)],
+        "b1 one thread": [PY, w, "measure1", str(path)],
         "c pyloudnorm": [PY, w, "pyloudnorm", str(path)],
         "d pyebur128": [PY, w, "pyebur128", str(path), str(BLOCK)],
     }
@@ -129,6 +135,8 @@ def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, tuple[float, 
         )
     b = result["b deliverycheck"][0]
     ratios = [f"b/a = {b / result['a decode'][0]:.2f}"]
+    if "b1 one thread" in result:
+        ratios.append(f"b1/a = {result['b1 one thread'][0] / result['a decode'][0]:.2f}")
     if "c pyloudnorm" in result:
         ratios.append(f"c/b = {result['c pyloudnorm'][0] / b:.2f}")
     if "d pyebur128" in result:

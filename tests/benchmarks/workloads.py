@@ -51,6 +51,14 @@ def pyebur128_full(path: str, block_frames: int) -> None:
             e.get_sample_peak(state, c)
 
 
+def measure_one_thread(path: str) -> None:
+    """(b1) The same analysis as `deliverycheck measure`, without its read-ahead thread:
+    what one file costs on one core (a batch worker's case)."""
+    from checker.measure import measure
+
+    measure(path)
+
+
 def truepeak_skip(path: str, block_frames: int) -> None:
     """True-peak chunks interpolated / seen (the skip bound's effect), printed as 'n m'."""
     from checker.audio import read_blocks
@@ -75,6 +83,8 @@ if __name__ == "__main__":
         pyloudnorm_integrated(path)
     elif which == "pyebur128":
         pyebur128_full(path, frames)
+    elif which == "measure1":
+        measure_one_thread(path)
     elif which == "tpskip":
         truepeak_skip(path, frames)
     else:
