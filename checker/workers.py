@@ -188,9 +188,7 @@ def _context():
         ctx = mp.get_context("forkserver")
         from checker.meters import METERS
 
-        ctx.set_forkserver_preload(
-            ["checker.workers", "checker.measure", *(m for m, _ in METERS)]
-        )
+        ctx.set_forkserver_preload(["checker.workers", "checker.measure", *(m for m, _ in METERS)])
         return ctx
     return mp.get_context("spawn")  # pragma: no cover - Windows
 
