@@ -48,7 +48,9 @@ def promised(section: str) -> dict[str, tuple[str, set[str]]]:
 
 def check(args: list[str]) -> tuple[int, dict[str, dict]]:
     out_dir = Path(args[args.index("--out") + 1])
-    code = main(["check", *args, "--quiet"], io.StringIO(), io.StringIO())
+    out = io.StringIO()
+    code = main(["check", *args, "--quiet"], out, io.StringIO())
+    (out_dir / "summary.txt").write_text(out.getvalue())
     results = {}
     for line in (out_dir / "results.jsonl").read_text().splitlines():
         row = json.loads(line)
@@ -105,6 +107,8 @@ def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):
     )
     compare(results, promised("## The theme-tune stems"))
     assert code == 1
+    summary = (out / "summary.txt").read_text()
+    assert "profile mastering-stems: 4 files and 1 stem set: 4 pass, 0 warn, 1 fail" in summary
     # The slipped stem is named in the set row's slip flag.
     slip = [f for f in results["stems (set row)"]["verdict"]["flags"] if f["rule"] == "slip_max_s"]
     assert re.search(r"theme-vocal\.wav", slip[0]["message"])

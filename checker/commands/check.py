@@ -134,8 +134,12 @@ def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> lis
     counts = {s: 0 for s in (PASS, WARN, FAIL, ERROR)}
     for r in results:
         counts[r.status] = counts.get(r.status, 0) + 1
+    sets = sum(1 for r in results if r.kind == "set")
+    checked = f"{len(results) - sets} files"
+    if sets:
+        checked += f" and {sets} stem set{'s' if sets > 1 else ''}"
     lines = [
-        f"profile {run.profile_name}: {len(results)} files: "
+        f"profile {run.profile_name}: {checked}: "
         + ", ".join(f"{counts[s]} {s}" for s in (PASS, WARN, FAIL, ERROR))
     ]
     worst = [r for r in results if r.status in (ERROR, FAIL, WARN)]
