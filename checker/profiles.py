@@ -69,10 +69,11 @@ class Limit:
         return self.definition.unit
 
     def text(self) -> str:
-        """The limit in plain words, e.g. "<= -1.0 dBTP" or "-23.0 +- 0.5 LU"."""
+        """The limit in plain words, e.g. "<= -1.0 dBTP" or "target -23.0 LUFS +- 0.5 LU"
+        (never starting with a minus sign, which a spreadsheet would read as a formula)."""
         d, u = self.definition, (" " + self.definition.unit).rstrip()
         if d.kind == TARGET:
-            return f"{_num(self.value)} {d.unit} +- {_num(self.tolerance_lu)} LU"
+            return f"target {_num(self.value)} {d.unit} +- {_num(self.tolerance_lu)} LU"
         if d.kind in (MAX, MIN):
             op = "<=" if d.kind == MAX else ">="
             warn = f" (warn beyond {_num(self.warn_value)})" if self.warn_value is not None else ""

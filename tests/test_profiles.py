@@ -171,7 +171,7 @@ def test_true_peak_ceiling_and_limits_table():
         "severity": "fail",
     }
     assert tp["source"].startswith("ATSC A/85")
-    assert rows["integrated_target_lufs"]["text"] == "-24.0 LUFS +- 2.0 LU"
+    assert rows["integrated_target_lufs"]["text"] == "target -24.0 LUFS +- 2.0 LU"
 
 
 # ---------------------------------------------------------------- inheritance

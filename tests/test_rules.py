@@ -296,7 +296,7 @@ def test_silent_file_loudness_says_why(tmp_path):
     flag = next(f for f in verdict.flags if f.rule == "integrated_target_lufs")
     assert flag.message == (
         "Integrated loudness could not be measured (every block is below the -70 LUFS absolute "
-        "gate); the limit (-23.0 LUFS +- 0.5 LU) was not checked."
+        "gate); the limit (target -23.0 LUFS +- 0.5 LU) was not checked."
     )
     assert flag.severity == FAIL
     # -inf (digital silence) is below any maximum: the true-peak limit itself is met
