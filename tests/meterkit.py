@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from checker.audio import Block, StreamInfo
@@ -49,3 +51,12 @@ def run_meter(meter_cls, info, x, raw=None, sizes=(10**9,), options=None):
         if n == 0:
             break
     return meter.result()
+
+
+def no_nan(value) -> bool:
+    """True when no float anywhere inside value (dicts, lists) is NaN."""
+    if isinstance(value, dict):
+        return all(no_nan(v) for v in value.values())
+    if isinstance(value, (list, tuple)):
+        return all(no_nan(v) for v in value)
+    return not (isinstance(value, float) and math.isnan(value))

@@ -2,12 +2,10 @@
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from meterkit import info_for, run_meter, to_codes
+from meterkit import info_for, no_nan, run_meter, to_codes
 from numpy.testing import assert_allclose
 from signals import noise, write
 
@@ -22,14 +20,6 @@ RATE = 8_000
 
 def run(x, subtype="DOUBLE", raw=None, sizes=(10**9,)):
     return run_meter(ChannelsMeter, info_for(subtype, x.shape[1]), x, raw, sizes)
-
-
-def no_nan(value) -> bool:
-    if isinstance(value, dict):
-        return all(no_nan(v) for v in value.values())
-    if isinstance(value, (list, tuple)):
-        return all(no_nan(v) for v in value)
-    return not (isinstance(value, float) and math.isnan(value))
 
 
 def test_inverted_pair_correlates_minus_one():

@@ -8,7 +8,7 @@ import numpy as np
 import soundfile as sf
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from meterkit import info_for, run_meter, to_codes
+from meterkit import info_for, no_nan, run_meter, to_codes
 from numpy.testing import assert_allclose
 from signals import write
 
@@ -23,14 +23,6 @@ RATE = 8_000
 
 
 run = run_meter
-
-
-def no_nan(value) -> bool:
-    if isinstance(value, dict):
-        return all(no_nan(v) for v in value.values())
-    if isinstance(value, (list, tuple)):
-        return all(no_nan(v) for v in value)
-    return not (isinstance(value, float) and math.isnan(value))
 
 
 def assert_same(ref: dict, got: dict, exact: set[str]) -> None:
