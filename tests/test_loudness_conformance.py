@@ -1,8 +1,8 @@
 """Loudness conformance: BS.1770-4 coefficients and calibration, EBU Tech 3341 and 3342 cases.
 
 Signals are synthesised from the published test-signal descriptions (parameters as
-collected in the project's standards notes: transcriptions checked against several
-sources, not against the PDFs; the durations of Tech 3341 cases 9 and 12 are
+collected in the project's standards notes: secondary copies of the test-case tables,
+checked against several sources but not against the PDFs; the durations of Tech 3341 cases 9 and 12 are
 derived from the expected result). Levels are the peak level of a 1 kHz sine in
 dBFS, stereo, both channels in phase, as in EBU Tech 3341/3342.
 """

@@ -1,8 +1,8 @@
 """True-peak meter (checker/meters/truepeak.py) and its interpolator (checker/dsp/interp.py).
 
 Sources of expected values are named beside each check. "Standards notes" means the
-project's /work/shared/standards-notes.md (EBU Tech 3341 parameters there are from
-transcriptions checked against each other, not against the PDF).
+project's standards notes (EBU Tech 3341 parameters there come from secondary copies
+of the test-case tables, checked against each other, not against the PDF).
 """
 
 from __future__ import annotations
