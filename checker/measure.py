@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 import os
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -23,8 +22,24 @@ from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_hea
 ENGINE_VERSION = f"{__version__}+engine3"
 
 
+class FlatValues:
+    """Read access to a ``values`` dict of flat, unit-suffixed keys: ``m.integrated_lufs``,
+    ``m.get("true_peak_dbtp")``. Shared by Measurement and a stem set's SetMeasurement."""
+
+    values: dict[str, Any]
+
+    def __getattr__(self, name: str) -> Any:
+        values = self.__dict__.get("values")
+        if values is not None and name in values:
+            return values[name]
+        raise AttributeError(name)
+
+    def get(self, name: str, default: Any = None) -> Any:
+        return self.values.get(name, default)
+
+
 @dataclass(frozen=True)
-class Measurement:
+class Measurement(FlatValues):
     """Everything measured about one file, as flat unit-suffixed values.
 
     ``values`` holds plain data only (str, int, float, bool, None, lists), so a
@@ -37,15 +52,6 @@ class Measurement:
     timeline: Timeline | None = None
     findings: tuple[str, ...] = field(default_factory=tuple)
     engine_version: str = ENGINE_VERSION
-
-    def __getattr__(self, name: str) -> Any:
-        values = self.__dict__.get("values")
-        if values is not None and name in values:
-            return values[name]
-        raise AttributeError(name)
-
-    def get(self, name: str, default: Any = None) -> Any:
-        return self.values.get(name, default)
 
     def to_dict(self, timeline: bool = False) -> dict[str, Any]:
         d: dict[str, Any] = {"path": self.path, **self.values}
@@ -205,20 +211,17 @@ def measure(
     options = options or MeasureOptions()
     before = _stat(str(path))
     try:
-        if read_ahead:
-            info, blocks = read_blocks(str(path), options.block_frames, read_ahead=True)
-        else:
-            info, blocks = read_blocks(str(path), options.block_frames)
+        info, blocks = read_blocks(str(path), options.block_frames, read_ahead=read_ahead)
     except AudioReadError as exc:  # say what the WAV header reader saw, if anything
         raise open_error(str(path), exc) from None
     header = read_wav_header(str(path))  # header only (seeks past the audio); None if not WAV
     info = check_header(str(path), info, header)
     layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
-    # The levels meter counts NaN/Inf (nonfinite_samples and its findings) on the untouched
-    # block; every other meter then gets them as 0.
-    counting = [m for m in meters if type(m).__name__ == "LevelsMeter"]
-    others = [m for m in meters if type(m).__name__ != "LevelsMeter"]
+    # Meters that count NaN/Inf (class attribute sees_nonfinite = True) get the untouched
+    # block; every other meter then gets those samples as 0.
+    counting = [m for m in meters if getattr(m, "sees_nonfinite", False)]
+    others = [m for m in meters if not getattr(m, "sees_nonfinite", False)]
     frames = 0
     for block in blocks:
         frames += block.frames
@@ -248,13 +251,9 @@ def measure(
         findings.extend(getattr(result, "findings", ()) or ())
         if hasattr(meter, "series"):
             series.update(meter.series())
-    values = plain(values)
-    for key, value in values.items():
-        if isinstance(value, float) and math.isnan(value):  # pragma: no cover - guarded by plain()
-            values[key] = None
     return Measurement(
         path=str(path),
-        values=values,
+        values=plain(values),  # plain data; NaN would become None (plain maps it)
         timeline=build_timeline(series),
         findings=tuple(findings),
     )

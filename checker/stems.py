@@ -50,7 +50,7 @@ import soundfile as sf
 
 from checker.audio import Block, StreamInfo, read_blocks
 from checker.errors import AudioReadError
-from checker.measure import Measurement, resolve_layout
+from checker.measure import FlatValues, Measurement, resolve_layout
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
 from checker.stems_findings import findings
@@ -95,7 +95,7 @@ def stem_set_from_folder(folder: str, mix_path: str | None = None) -> StemSet:
 
 
 @dataclass(frozen=True)
-class SetMeasurement:
+class SetMeasurement(FlatValues):
     """A stem set's flat values, plain-words findings and read errors."""
 
     path: str  # the set's folder
@@ -105,15 +105,6 @@ class SetMeasurement:
     errors: tuple[str, ...] = field(default_factory=tuple)
     stem_paths: tuple[str, ...] = field(default_factory=tuple)
     mix_path: str | None = None
-
-    def __getattr__(self, name: str) -> Any:
-        values = self.__dict__.get("values")
-        if values is not None and name in values:
-            return values[name]
-        raise AttributeError(name)
-
-    def get(self, name: str, default: Any = None) -> Any:
-        return self.values.get(name, default)
 
     def as_measurement(self) -> Measurement:
         """The same values as a Measurement, for rules, the store and the reports."""

@@ -346,8 +346,8 @@ def _changing(path: Path, change):
     """A read_blocks that calls change(path) after yielding the first block."""
     real = measure_module.read_blocks
 
-    def read_blocks(p, block_frames):
-        info, blocks = real(p, block_frames)
+    def read_blocks(p, block_frames, **kwargs):
+        info, blocks = real(p, block_frames, **kwargs)
 
         def gen():
             for i, block in enumerate(blocks):

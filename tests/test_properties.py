@@ -178,7 +178,7 @@ def _split_reader(cuts: list[int]):
     blocks included), through one reused buffer as the real reader does."""
     real = measure_module.read_blocks
 
-    def read_blocks(path, block_frames):
+    def read_blocks(path, block_frames, **kwargs):  # kwargs: read_ahead, unused here
         info, blocks = real(path, 10**7)
         whole = [(b.x.copy(), None if b.raw is None else b.raw.copy()) for b in blocks]
         x = np.concatenate([w[0] for w in whole]) if whole else np.zeros((0, info.channels))

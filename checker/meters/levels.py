@@ -177,6 +177,10 @@ class LevelsResult:
 
 
 class LevelsMeter:
+    #: measure() feeds this meter the untouched block so it can count NaN/Inf samples;
+    #: the other meters see those samples as 0.
+    sees_nonfinite = True
+
     def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
         self.info = info
         self.options = options
