@@ -33,6 +33,7 @@ import numpy as np
 import soundfile as sf
 from soundfile import _ffi, _snd  # libsndfile's C functions (see the loop)
 
+from checker.dsp import native
 from checker.errors import AudioReadError, UnsupportedAudioError
 
 MIN_SAMPLE_RATE_HZ = 8_000
@@ -222,6 +223,7 @@ class _Decoder:
         self.x_t = [np.empty((channels, block_frames), dtype=np.float64) for _ in range(slots)]
         self.start = 0
         self.done = False
+        self.native = native.enabled()
 
     def next(self, slot: int) -> Block | None:
         """The next block, in buffer set ``slot``; None at the end."""
@@ -243,11 +245,17 @@ class _Decoder:
         xt = self.x_t[slot] if full else np.empty((channels, n))
         if self.integer:
             rt = self.raw_t[slot] if full else np.empty((channels, n), dtype=np.int32)
-            np.copyto(rt, self.buf[:n].T)
-            np.multiply(rt, INT32_SCALE, out=xt)
+            if self.native:
+                native.deinterleave_i32(self.buf[:n], rt, xt, INT32_SCALE)
+            else:
+                np.copyto(rt, self.buf[:n].T)
+                np.multiply(rt, INT32_SCALE, out=xt)
             block = Block(x=xt.T, raw=rt.T, start=self.start)
         else:
-            np.copyto(xt, self.buf[:n].T)
+            if self.native:
+                native.deinterleave_f64(self.buf[:n], xt)
+            else:
+                np.copyto(xt, self.buf[:n].T)
             block = Block(x=xt.T, raw=None, start=self.start)
         self.start += n
         self.done = n < size

@@ -28,6 +28,7 @@ from typing import Any
 import numpy as np
 
 from checker.audio import Block, StreamInfo
+from checker.dsp import native
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.levels import channels_first, finite_x
@@ -37,6 +38,7 @@ SILENT_CHANNEL_PEAK_DBFS = -80.0
 MAX_ALL_PAIRS_CHANNELS = 8
 #: Variance below this fraction of the mean square is treated as a constant channel.
 CONSTANT_RELATIVE_VARIANCE = 1e-12
+NO_CUTS = np.empty(0, dtype=np.int64)
 
 
 @dataclass(frozen=True)
@@ -71,8 +73,8 @@ class ChannelsMeter:
         ch = info.channels
         self.channels = ch
         self.pairs = channel_pairs(ch)
-        self.first = np.array([i for i, _ in self.pairs], dtype=np.intp)
-        self.second = np.array([j for _, j in self.pairs], dtype=np.intp)
+        self.first = np.array([i for i, _ in self.pairs], dtype=np.int64)
+        self.second = np.array([j for _, j in self.pairs], dtype=np.int64)
         self.frames = 0
         self.peak = np.zeros(ch)
         self.sums = np.zeros(ch)
@@ -80,21 +82,30 @@ class ChannelsMeter:
         self.products = np.zeros(len(self.pairs))
         self.identical = np.ones(len(self.pairs), dtype=bool)
         self.inverted = np.ones(len(self.pairs), dtype=bool)
+        self.native = native.enabled()
 
     def feed(self, block: Block) -> None:
         if block.frames == 0:
             return
         xt = channels_first(finite_x(block))  # (channels, frames)
         self.frames += xt.shape[1]
-        self.peak = np.maximum(self.peak, np.maximum(xt.max(axis=1), -xt.min(axis=1)))
-        self.sums += xt.sum(axis=1)
-        if self.channels < 2 or self.channels > MAX_ALL_PAIRS_CHANNELS:
+        if self.native:
+            hi, lo, sums, squares, _, _, _ = native.channel_stats(xt, None, NO_CUTS)
+            self.squares += squares[0]
+        else:
+            hi, lo, sums = xt.max(axis=1), xt.min(axis=1), xt.sum(axis=1)
+        self.peak = np.maximum(self.peak, np.maximum(hi, -lo))
+        self.sums += sums
+        if not self.native and (self.channels < 2 or self.channels > MAX_ALL_PAIRS_CHANNELS):
             self.squares += np.einsum("ij,ij->i", xt, xt)
         if self.channels < 2:
             return
-        if self.channels <= MAX_ALL_PAIRS_CHANNELS:
+        if self.native:
+            self.products += native.pair_products(xt, self.first, self.second)
+        elif self.channels <= MAX_ALL_PAIRS_CHANNELS:
             gram = xt @ xt.T  # squares on the diagonal, products off it
-            self.squares += np.diagonal(gram)
+            if not self.native:
+                self.squares += np.diagonal(gram)
             self.products += gram[self.first, self.second]
         else:
             self.products += np.einsum("ij,ij->i", xt[self.first], xt[self.second])

@@ -45,6 +45,7 @@ from typing import Any
 import numpy as np
 
 from checker.audio import INT32_SCALE, Block, StreamInfo
+from checker.dsp import native
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
@@ -211,6 +212,7 @@ class LevelsMeter:
         self.part_sum = np.zeros(ch)
         self.part_zeros = 0
         self.part_frames = 0
+        self.native = native.enabled()
 
     # ------------------------------------------------------------------ feed
     def feed(self, block: Block) -> None:
@@ -224,24 +226,34 @@ class LevelsMeter:
         elif raw is None:
             x = finite_x(block)
         xt = channels_first(x)
-        hi, lo = xt.max(axis=1), xt.min(axis=1)
+        rt = channels_first(raw) if raw is not None else None
+        if self.native:
+            cuts = self._segment_cuts(n)
+            # Block contract (checker.audio): x == raw / 2**31 exactly for integer PCM.
+            hi, lo, float_sums, squares, zeros, int_sums, code_or = native.channel_stats(
+                xt, rt, cuts, raw_scaled=True
+            )
+        else:
+            hi, lo = xt.max(axis=1), xt.min(axis=1)
+            float_sums = int_sums = code_or = None
         m = np.maximum(hi, -lo)
         better = m > self.peak
         if better.any():
             idx = np.abs(xt).argmax(axis=1)
             self.peak = np.where(better, m, self.peak)
             self.peak_frame = np.where(better, idx + block.start, self.peak_frame)
-        if raw is not None:
-            rt = channels_first(raw)
-            sums = rt.sum(axis=1, dtype=np.int64)
-            self.dc_int = [a + int(b) for a, b in zip(self.dc_int, sums, strict=True)]
-            self.code_or |= np.bitwise_or.reduce(rt, axis=1)
+        if rt is not None:
+            if int_sums is None:
+                int_sums = rt.sum(axis=1, dtype=np.int64)
+                code_or = np.bitwise_or.reduce(rt, axis=1)
+            self.dc_int = [a + int(b) for a, b in zip(self.dc_int, int_sums, strict=True)]
+            self.code_or |= code_or
             # Full-scale codes only where the block reaches them (or a run is still open).
             reach = (hi >= self.clip_hi * INT32_SCALE) | (lo <= self.clip_lo * INT32_SCALE)
             if reach.any() or any(s is not None for state in self.clip_open for s in state):
                 self._clip(rt == self.clip_hi, rt == self.clip_lo, block.start)
         else:
-            self.dc_float += xt.sum(axis=1)
+            self.dc_float += xt.sum(axis=1) if float_sums is None else float_sums
             if self.info.is_float:
                 if (m >= 1.0).any() or any(s is not None for st in self.clip_open for s in st):
                     self._clip(xt >= 1.0, xt <= -1.0, block.start)
@@ -251,7 +263,10 @@ class LevelsMeter:
                 if active.any():
                     bits = float_grid_bits(xt[active])
                     self.grid_bits[active] = np.maximum(self.grid_bits[active], bits)
-        self._segments(xt, _zero_frames(xt))
+        if self.native:
+            self._add_pieces(squares, zeros, cuts, n)
+        else:
+            self._segments(xt, _zero_frames(xt))
         self.frames += n
 
     def _count_nonfinite(self, x: np.ndarray, start: int) -> np.ndarray:
@@ -285,6 +300,36 @@ class LevelsMeter:
             self.clip_first = keep_first(
                 self.clip_first, np.concatenate(found), self.options.max_positions
             )
+
+    def _segment_cuts(self, n: int) -> np.ndarray:
+        """Where 100 ms segments end inside a block of n frames: the partial segment first,
+        then every full one (the last piece, after the last cut, is the new partial)."""
+        first = min(n, self.seg_len - self.part_frames)
+        full = (n - first) // self.seg_len
+        return first + self.seg_len * np.arange(full + 1, dtype=np.int64)
+
+    def _add_pieces(self, squares: np.ndarray, zeros: np.ndarray, cuts: np.ndarray, n: int) -> None:
+        """The compiled twin of _segments: squares (pieces, ch) and zero-frame counts per
+        piece cut at ``cuts`` (see _segment_cuts)."""
+        self.sumsq += squares.sum(axis=0)
+        self.part_sum = self.part_sum + squares[0]
+        self.part_zeros += int(zeros[0])
+        self.part_frames += int(cuts[0])
+        if self.part_frames == self.seg_len:
+            self.seg_sums.append(self.part_sum[None, :])
+            self.seg_zeros.append(np.array([self.part_zeros]))
+            self.part_sum = np.zeros_like(self.part_sum)
+            self.part_zeros = 0
+            self.part_frames = 0
+        if cuts.size > 1:
+            self.seg_sums.append(squares[1:-1].copy())
+            self.seg_zeros.append(zeros[1:-1].copy())
+        if len(self.seg_sums) > COMPACT_AFTER:
+            self.seg_sums = [np.concatenate(self.seg_sums)]
+            self.seg_zeros = [np.concatenate(self.seg_zeros)]
+        self.part_sum = self.part_sum + squares[-1]
+        self.part_zeros += int(zeros[-1])
+        self.part_frames += n - int(cuts[-1])
 
     def _segments(self, xt: np.ndarray, zero: np.ndarray) -> None:
         """xt: (channels, frames) samples; zero: (frames,) all-channel digital zero.

@@ -49,6 +49,7 @@ from numpy.lib.stride_tricks import sliding_window_view
 
 from checker import units
 from checker.audio import Block, StreamInfo
+from checker.dsp import native
 from checker.dsp.iir import sosfilt_rows
 from checker.dsp.kweighting import k_weighting_sos
 from checker.layout import Layout
@@ -211,6 +212,10 @@ class LoudnessMeter:
         self.weights = weights[self.active]
         self.sos = np.ascontiguousarray(k_weighting_sos(self.rate), dtype=np.float64)
         self.zi = np.zeros((self.active.size, self.sos.shape[0], 2))  # per channel, section
+        # Compiled K-weighting (checker/dsp/native.py): filters without copying the block.
+        self.native = native.enabled() and self.sos.shape == (2, 6)
+        self.rows = self.active.astype(np.int64)
+        self.power = np.empty(options.block_frames)  # reused per-frame power buffer
         self.frames = 0  # frames fed so far
         self.sub_count = 0  # 1 ms sub-steps completed
         self.partial = 0.0  # weighted power sum of the current, incomplete 1 ms sub-step
@@ -228,6 +233,9 @@ class LoudnessMeter:
             return
         if self.active.size == 0:
             p = np.zeros(n)
+        elif self.native:
+            p = self.power[:n] if n <= self.power.size else np.empty(n)
+            native.kweight_power(block.xt, self.rows, self.sos, self.zi, self.weights, p)
         else:
             # A channel-major copy of the channels that count, filtered in place.
             xt = block.x.T
@@ -247,12 +255,15 @@ class LoudnessMeter:
             return
         js = np.arange(self.sub_count + 1, last + 1, dtype=np.int64)
         cuts = _boundaries(js, self.rate, 1000) - start  # 1 <= cuts, strictly increasing, <= n
-        starts = np.concatenate(([0], cuts))
-        if cuts[-1] == n:
-            sums = np.add.reduceat(p, starts[:-1])
+        if self.native:
+            sums = native.piece_sums(p, cuts)  # the last piece is [cuts[-1], n): 0.0 if empty
+            tail = float(sums[-1])
+            sums = sums[:-1]
+        elif cuts[-1] == n:
+            sums = np.add.reduceat(p, np.concatenate(([0], cuts[:-1])))
             tail = 0.0
         else:
-            sums = np.add.reduceat(p, starts)
+            sums = np.add.reduceat(p, np.concatenate(([0], cuts)))
             tail = float(sums[-1])
             sums = sums[:-1]
         sums[0] += self.partial

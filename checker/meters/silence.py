@@ -27,6 +27,7 @@ from typing import Any
 import numpy as np
 
 from checker.audio import Block, StreamInfo
+from checker.dsp import native
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.levels import channels_first, find_runs, finite_x, keep_first
@@ -72,25 +73,42 @@ class SilenceMeter:
         self.dropouts = 0
         self.dropout_first = np.empty(0, dtype=np.int64)
         self.longest_frames = 0
+        self.native = native.enabled()
+        self.mask = np.empty(0, dtype=np.uint8)  # reused zero-frame mask (compiled path)
 
     def feed(self, block: Block) -> None:
         n = block.frames
         if n == 0:
             return
         xt = channels_first(finite_x(block))
-        level = np.abs(xt[0]) if xt.shape[0] == 1 else np.abs(xt).max(axis=0)
         start = block.start
-        first, last = _first_last(level >= self.threshold)
+        if self.native:
+            if self.mask.size < n:
+                self.mask = np.empty(n, dtype=np.uint8)
+            zeros, first, last, first_nz, last_nz = native.frame_scan(xt, self.threshold, self.mask)
+            # the mask is only written when the block has zero frames
+            zero = self.mask[:n].view(bool) if zeros else np.zeros(n, dtype=bool)
+            loud = (first, last) if first >= 0 else (None, None)
+            nonzero = (first_nz, last_nz) if first_nz >= 0 else (None, None)
+        else:
+            level = np.abs(xt[0]) if xt.shape[0] == 1 else np.abs(xt).max(axis=0)
+            loud = _first_last(level >= self.threshold)
+            zero = level == 0.0
+            nonzero = _first_last(~zero)
+            zeros = -1  # not counted
+        first, last = loud
         if first is not None:
             if self.first_loud is None:
                 self.first_loud = start + first
             self.last_loud = start + last
-        zero = level == 0.0
-        first, last = _first_last(~zero)
+        first, last = nonzero
         if first is not None:
             if self.first_nonzero is None:
                 self.first_nonzero = start + first
             self.last_nonzero = start + last
+        if zeros == 0 and self.zero_open is None:
+            self.frames += n
+            return  # no zero frame and no open run: no dropout can start or end here
         starts, ends, self.zero_open = find_runs(zero, start, self.zero_open)
         # A run that starts at frame 0 is leading padding, not a dropout.
         length = ends - starts

@@ -1,0 +1,365 @@
+/*
+ * Compiled inner loops for the measuring pass (loaded by checker/dsp/native.py).
+ *
+ * Plain C functions on raw buffers, called through ctypes, which releases the GIL
+ * for the length of each call (the read-ahead thread keeps decoding meanwhile).
+ * Every function has a numpy twin in the module that uses it; tests/test_native.py
+ * compares the two. Built with -ffp-contract=off so that no multiply-add is fused:
+ * the K-weighting recursion then gives the same bits as scipy's sosfilt.
+ *
+ * The module also initialises as an (empty) Python extension module, so that
+ * setuptools builds it and importlib finds its file.
+ */
+#define PY_SSIZE_T_CLEAN
+#include <Python.h>
+#include <math.h>
+#include <stdint.h>
+#include <string.h>
+
+#define EXPORT __attribute__((visibility("default")))
+/* x86-64: also an AVX2 build of the reductions, chosen at load time by the CPU */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+#define CLONES __attribute__((target_clones("avx2", "default")))
+#else
+#define CLONES
+#endif
+
+/* Version of the functions' signatures; native.py refuses a library with another one. */
+EXPORT int64_t dc_abi_version(void) { return 4; }
+
+/* ------------------------------------------------------------------------ reading */
+
+/* Interleaved int32 codes (n frames x ch) -> channel-major raw_t (ch x n) and
+ * x_t = code * scale (ch x n). */
+EXPORT void dc_deinterleave_i32(const int32_t *in, int64_t n, int64_t ch, int32_t *raw_t,
+                                double *x_t, double scale)
+{
+    if (ch == 1) {
+        for (int64_t t = 0; t < n; t++) {
+            int32_t v = in[t];
+            raw_t[t] = v;
+            x_t[t] = (double)v * scale;
+        }
+        return;
+    }
+    if (ch == 2) {
+        int32_t *r0 = raw_t, *r1 = raw_t + n;
+        double *x0 = x_t, *x1 = x_t + n;
+        for (int64_t t = 0; t < n; t++) {
+            int32_t a = in[2 * t], b = in[2 * t + 1];
+            r0[t] = a;
+            r1[t] = b;
+            x0[t] = (double)a * scale;
+            x1[t] = (double)b * scale;
+        }
+        return;
+    }
+    for (int64_t t = 0; t < n; t++) {
+        const int32_t *f = in + t * ch;
+        for (int64_t c = 0; c < ch; c++) {
+            raw_t[c * n + t] = f[c];
+            x_t[c * n + t] = (double)f[c] * scale;
+        }
+    }
+}
+
+/* Interleaved doubles (n x ch) -> channel-major x_t (ch x n). */
+EXPORT void dc_deinterleave_f64(const double *in, int64_t n, int64_t ch, double *x_t)
+{
+    if (ch == 2) {
+        double *x0 = x_t, *x1 = x_t + n;
+        for (int64_t t = 0; t < n; t++) {
+            x0[t] = in[2 * t];
+            x1[t] = in[2 * t + 1];
+        }
+        return;
+    }
+    for (int64_t t = 0; t < n; t++)
+        for (int64_t c = 0; c < ch; c++)
+            x_t[c * n + t] = in[t * ch + c];
+}
+
+/* ---------------------------------------------------------------------- K-weighting */
+
+static inline double finite_or_zero(double v) { return isfinite(v) ? v : 0.0; }
+
+typedef double v2d __attribute__((vector_size(16)));
+
+/* K-weighted, channel-weighted power per frame:
+ *   p[t] = sum_r w[r] * y_r[t]^2,  y_r = x row rows[r] through the two sections of sos (2 x 6),
+ * state zi (nrows x 2 sections x 2) carried across calls. x: ch rows of n frames, row r at
+ * x + rows[r] * n. Non-finite samples are taken as 0. Rows are filtered two at a time, one
+ * per lane of a two-double vector (element-wise IEEE arithmetic: the same bits as one row
+ * at a time). */
+EXPORT void dc_kweight_power(const double *x, int64_t n, const int64_t *rows, int64_t nrows,
+                             const double *sos, double *zi, const double *w, double *p)
+{
+    const double *s1 = sos, *s2 = sos + 6;
+    const v2d b10 = {s1[0], s1[0]}, b11 = {s1[1], s1[1]}, b12 = {s1[2], s1[2]};
+    const v2d a11 = {s1[4], s1[4]}, a12 = {s1[5], s1[5]};
+    const v2d b20 = {s2[0], s2[0]}, b21 = {s2[1], s2[1]}, b22 = {s2[2], s2[2]};
+    const v2d a21 = {s2[4], s2[4]}, a22 = {s2[5], s2[5]};
+    int64_t r = 0;
+    if (nrows == 0) {
+        memset(p, 0, (size_t)n * sizeof(double));
+        return;
+    }
+    for (; r < nrows; r += 2) {
+        const int pair = r + 1 < nrows;
+        const double *xa = x + rows[r] * n;
+        const double *xb = pair ? x + rows[r + 1] * n : xa;
+        double *za = zi + 4 * r, *zb = pair ? zi + 4 * (r + 1) : za;
+        v2d z10 = {za[0], zb[0]}, z11 = {za[1], zb[1]};
+        v2d z20 = {za[2], zb[2]}, z21 = {za[3], zb[3]};
+        const double wa = w[r], wb = pair ? w[r + 1] : 0.0;
+        const int first = r == 0;
+        for (int64_t t = 0; t < n; t++) {
+            const v2d u = {finite_or_zero(xa[t]), finite_or_zero(xb[t])};
+            /* direct form II transposed, in the order of scipy's _sosfilt */
+            v2d y = b10 * u + z10;
+            z10 = b11 * u - a11 * y + z11;
+            z11 = b12 * u - a12 * y;
+            v2d v = b20 * y + z20;
+            z20 = b21 * y - a21 * v + z21;
+            z21 = b22 * y - a22 * v;
+            double q = wa * (v[0] * v[0]);
+            if (pair)
+                q = q + wb * (v[1] * v[1]);
+            p[t] = first ? q : p[t] + q;
+        }
+        za[0] = z10[0]; za[1] = z11[0]; za[2] = z20[0]; za[3] = z21[0];
+        if (pair) {
+            zb[0] = z10[1]; zb[1] = z11[1]; zb[2] = z20[1]; zb[3] = z21[1];
+        }
+    }
+}
+
+/* Reductions below keep LANES partial results (element t goes to lane t % LANES), combined
+ * in a fixed order at the end: the compiler vectorises across the lanes without reordering
+ * any sum (no -ffast-math), so a result depends only on the data, never on how the buffer
+ * happens to be aligned (a resumed batch reproduces its report byte for byte). */
+#define LANES 8
+
+static inline double lane_sum(const double *p, int64_t lo, int64_t end)
+{
+    double s[LANES] = {0.0};
+    int64_t t = lo;
+    for (; t + LANES <= end; t += LANES)
+        for (int j = 0; j < LANES; j++)
+            s[j] += p[t + j];
+    for (int j = 0; t < end; t++, j++)
+        s[j] += p[t];
+    return ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
+}
+
+/* Sums of p over consecutive pieces: piece k ends (exclusive) at cuts[k] (increasing,
+ * <= n), the last piece (index ncuts) runs from cuts[ncuts - 1] (or 0) to n. */
+CLONES EXPORT void dc_piece_sums(const double *p, int64_t n, const int64_t *cuts, int64_t ncuts,
+                                 double *out)
+{
+    int64_t lo = 0;
+    for (int64_t k = 0; k <= ncuts; k++) {
+        int64_t hi = k < ncuts ? cuts[k] : n;
+        out[k] = lane_sum(p, lo, hi);
+        lo = hi;
+    }
+}
+
+/* --------------------------------------------------------------- sample-domain stats */
+
+#define EXACT_SUM_FRAMES (INT64_C(1) << 21)
+
+/* Per channel row c of x (ch x n): maximum mx[c], minimum mn[c], sum sm[c]; per piece k
+ * (cut as in dc_piece_sums) and channel: sum of squares sq[k * ch + c]; per piece: frames
+ * where every channel is exactly 0, zero[k]. With raw (ch x n int32 codes, may be NULL):
+ * exact int64 sums isum[c] and the OR of every code ors[c]; x_is_raw_scaled promises
+ * x == raw / 2^31 exactly (then the sums come from the float sums). n >= 1. */
+/* One channel's piece [lo, end): running max/min, sum, and returns the sum of squares; counts
+ * exact zeros into *zeros. LANES accumulators per quantity (see lane_sum). */
+typedef int64_t v2i __attribute__((vector_size(16)));
+
+/* element-wise a > b ? a : b and a < b ? a : b on two-double vectors */
+#define VMAX(a, b) ((v2d)((((v2i)((a) > (b))) & (v2i)(a)) | (~((v2i)((a) > (b))) & (v2i)(b))))
+#define VMIN(a, b) ((v2d)((((v2i)((a) < (b))) & (v2i)(a)) | (~((v2i)((a) < (b))) & (v2i)(b))))
+
+/* One channel's piece [lo, end): running max/min, sum, and returns the sum of squares; counts
+ * exact zeros into *zeros. LANES accumulators per quantity (see lane_sum), held in four
+ * two-double vectors: lane j is element j % 2 of vector j / 2. */
+static inline double piece_stats(const double *x, int64_t lo, int64_t end, double *hi_,
+                                 double *lo_, double *sum_, int64_t *zeros)
+{
+    const v2d zero = {0.0, 0.0};
+    v2d h[4], l[4], s[4], q[4];
+    v2i z[4];
+    for (int i = 0; i < 4; i++) {
+        h[i] = (v2d){*hi_, *hi_};
+        l[i] = (v2d){*lo_, *lo_};
+        s[i] = q[i] = zero;
+        z[i] = (v2i){0, 0};
+    }
+    int64_t t = lo;
+    for (; t + LANES <= end; t += LANES) {
+        for (int i = 0; i < 4; i++) {
+            v2d v;
+            memcpy(&v, x + t + 2 * i, sizeof v);
+            h[i] = VMAX(v, h[i]);
+            l[i] = VMIN(v, l[i]);
+            s[i] += v;
+            q[i] += v * v;
+            z[i] -= (v2i)(v == zero);
+        }
+    }
+    double hi[LANES], mn[LANES], sl[LANES], ql[LANES];
+    int64_t zl[LANES];
+    for (int j = 0; j < LANES; j++) {
+        hi[j] = h[j / 2][j % 2];
+        mn[j] = l[j / 2][j % 2];
+        sl[j] = s[j / 2][j % 2];
+        ql[j] = q[j / 2][j % 2];
+        zl[j] = z[j / 2][j % 2];
+    }
+    for (int j = 0; t < end; t++, j++) {
+        double v = x[t];
+        hi[j] = v > hi[j] ? v : hi[j];
+        mn[j] = v < mn[j] ? v : mn[j];
+        sl[j] += v;
+        ql[j] += v * v;
+        zl[j] += v == 0.0;
+    }
+    double hh = hi[0], mm = mn[0];
+    int64_t zz = 0;
+    for (int j = 0; j < LANES; j++) {
+        hh = hi[j] > hh ? hi[j] : hh;
+        mm = mn[j] < mm ? mn[j] : mm;
+        zz += zl[j];
+    }
+    *hi_ = hh;
+    *lo_ = mm;
+    *sum_ += ((sl[0] + sl[1]) + (sl[2] + sl[3])) + ((sl[4] + sl[5]) + (sl[6] + sl[7]));
+    *zeros = zz;
+    return ((ql[0] + ql[1]) + (ql[2] + ql[3])) + ((ql[4] + ql[5]) + (ql[6] + ql[7]));
+}
+
+CLONES EXPORT void dc_channel_stats(const double *x, const int32_t *raw, int64_t ch, int64_t n,
+                                    const int64_t *cuts, int64_t ncuts, double *mx, double *mn,
+                                    double *sm, double *sq, int64_t *zero, int64_t *isum,
+                                    int32_t *ors, int64_t x_is_raw_scaled)
+{
+    /* zero[k] first holds the fewest exact zeros any channel has in piece k: only a piece
+     * where every channel has some needs the frame-by-frame count */
+    for (int64_t k = 0; k <= ncuts; k++)
+        zero[k] = INT64_MAX;
+    for (int64_t c = 0; c < ch; c++) {
+        const double *xc = x + c * n;
+        double hi = xc[0], lo = xc[0], sum = 0.0;
+        int64_t start = 0;
+        for (int64_t k = 0; k <= ncuts; k++) {
+            int64_t end = k < ncuts ? cuts[k] : n, zeros;
+            sq[k * ch + c] = piece_stats(xc, start, end, &hi, &lo, &sum, &zeros);
+            zero[k] = zeros < zero[k] ? zeros : zero[k];
+            start = end;
+        }
+        mx[c] = hi;
+        mn[c] = lo;
+        sm[c] = sum;
+        if (raw != NULL) {
+            const int32_t *rc = raw + c * n;
+            int32_t o = 0;
+            for (int64_t t = 0; t < n; t++)
+                o |= rc[t];
+            ors[c] = o;
+            if (n <= EXACT_SUM_FRAMES && x_is_raw_scaled) {
+                /* every partial sum of x = code / 2^31 is a multiple of 2^-31 below 2^22 in
+                 * magnitude: exact in a double, whatever the order, so this is the exact sum */
+                isum[c] = (int64_t)(sum * 2147483648.0);
+            } else {
+                int64_t is = 0;
+                for (int64_t t = 0; t < n; t++)
+                    is += rc[t];
+                isum[c] = is;
+            }
+        }
+    }
+    int64_t start = 0;
+    for (int64_t k = 0; k <= ncuts; k++) {
+        int64_t end = k < ncuts ? cuts[k] : n;
+        if (zero[k] > 0 && ch > 1) {
+            int64_t count = 0;
+            for (int64_t t = start; t < end; t++) {
+                int nonzero = 0;
+                for (int64_t c = 0; c < ch; c++)
+                    nonzero |= x[c * n + t] != 0.0;
+                count += !nonzero;
+            }
+            zero[k] = count;
+        }
+        start = end;
+    }
+}
+
+/* Sums of products of row pairs (first[k], second[k]) of x (ch x n). */
+CLONES EXPORT void dc_pair_products(const double *x, int64_t n, const int64_t *first,
+                             const int64_t *second, int64_t npairs, double *out)
+{
+    for (int64_t k = 0; k < npairs; k++) {
+        const double *a = x + first[k] * n, *b = x + second[k] * n;
+        double s[LANES] = {0.0};
+        int64_t t = 0;
+        for (; t + LANES <= n; t += LANES)
+            for (int j = 0; j < LANES; j++)
+                s[j] += a[t + j] * b[t + j];
+        for (int j = 0; t < n; t++, j++)
+            s[j] += a[t] * b[t];
+        out[k] = ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
+    }
+}
+
+/* Frame scan for the silence meter over x (ch x n): a frame's level is its largest |x|; it is
+ * loud when level >= threshold, zero when level == 0. out = first loud, last loud, first
+ * non-zero, last non-zero frame (-1 when none). level (n doubles) is scratch space; when
+ * some frame is zero, zero_mask[t] = 1 for zero frames and 0 otherwise (else untouched).
+ * Returns the number of zero frames. */
+CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, double threshold,
+                             int64_t *out, uint8_t *zero_mask, double *level)
+{
+    for (int64_t t = 0; t < n; t++)
+        level[t] = fabs(x[t]);
+    for (int64_t c = 1; c < ch; c++) {
+        const double *xc = x + c * n;
+        for (int64_t t = 0; t < n; t++) {
+            double a = fabs(xc[t]);
+            level[t] = a > level[t] ? a : level[t];
+        }
+    }
+    int64_t zeros = 0;
+    for (int64_t t = 0; t < n; t++)
+        zeros += level[t] == 0.0;
+    if (zeros)
+        for (int64_t t = 0; t < n; t++)
+            zero_mask[t] = level[t] == 0.0;
+    int64_t t;
+    out[0] = out[1] = out[2] = out[3] = -1;
+    for (t = 0; t < n && !(level[t] >= threshold); t++) {}
+    if (t < n) {
+        out[0] = t;
+        for (t = n - 1; !(level[t] >= threshold); t--) {}
+        out[1] = t;
+    }
+    for (t = 0; t < n && level[t] == 0.0; t++) {}
+    if (t < n) {
+        out[2] = t;
+        for (t = n - 1; level[t] == 0.0; t--) {}
+        out[3] = t;
+    }
+    return zeros;
+}
+
+/* ------------------------------------------------------------------ module shell */
+
+static struct PyModuleDef kernels_module = {
+    PyModuleDef_HEAD_INIT, "_kernels",
+    "Compiled inner loops of deliverycheck, called through ctypes (see checker/dsp/native.py).",
+    -1, NULL,
+};
+
+PyMODINIT_FUNC PyInit__kernels(void) { return PyModule_Create(&kernels_module); }

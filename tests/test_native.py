@@ -1,0 +1,271 @@
+"""The compiled kernels (checker/dsp/kernels.c) against their numpy twins.
+
+Expected values come from numpy / scipy doing the same arithmetic (the project's own
+numpy path, which the conformance and cross-check tests hold against EBU Tech 3341/3342
+and the reference libraries). The meters' own tests run with the compiled kernels when
+they are built (the default), so every published check also covers this path.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import shutil
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+import soundfile as sf
+from meterkit import run_meter
+from numpy.testing import assert_allclose, assert_array_equal
+
+from checker.audio import INT32_SCALE, StreamInfo
+from checker.dsp import native
+from checker.dsp.iir import sosfilt_rows
+from checker.dsp.kweighting import k_weighting_sos
+from checker.layout import default_layout
+from checker.measure import measure
+from checker.meters.base import MeasureOptions
+from checker.meters.channels import ChannelsMeter
+from checker.meters.levels import LevelsMeter
+from checker.meters.loudness import LoudnessMeter
+from checker.meters.silence import SilenceMeter
+
+needs_kernels = pytest.mark.skipif(
+    not native.enabled(), reason=f"compiled kernels not loaded: {native.status()}"
+)
+
+
+def test_kernels_are_built_where_a_compiler_is():
+    # setup.py builds them at install; only a machine without a C compiler, or the
+    # DELIVERYCHECK_KERNELS=numpy switch, may leave the numpy path in charge.
+    if os.environ.get(native.ENV, "").lower() == "numpy":
+        pytest.skip(f"{native.ENV}=numpy set for this run")
+    if shutil.which("cc") is None and shutil.which("gcc") is None:
+        pytest.skip("no C compiler on this machine: the numpy path is expected")
+    assert native.enabled(), native.status()
+
+
+def test_environment_switch_selects_numpy():
+    code = "from checker.dsp import native; print(native.enabled(), native.status())"
+    env = dict(os.environ, **{native.ENV: "numpy"})
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True)
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.startswith("False numpy kernels"), out.stdout
+
+
+def test_disabled_context_switches_meters_to_numpy():
+    with native.disabled():
+        assert not native.enabled()
+        assert not LevelsMeter(_info(2), default_layout(2), MeasureOptions()).native
+    assert LevelsMeter(_info(2), default_layout(2), MeasureOptions()).native == native.enabled()
+
+
+def _info(channels: int, subtype: str = "PCM_24", rate: int = 48_000) -> StreamInfo:
+    return StreamInfo("x.wav", "WAV", subtype, rate, channels, None)
+
+
+# ------------------------------------------------------------------------ kernels
+
+
+@needs_kernels
+@pytest.mark.parametrize("channels", [1, 2, 3, 6])
+def test_deinterleave_matches_numpy(channels):
+    rng = np.random.default_rng(channels)
+    buf = rng.integers(-(2**31), 2**31 - 1, size=(1001, channels), dtype=np.int32)
+    raw_t, x_t = np.empty((channels, 1001), np.int32), np.empty((channels, 1001))
+    native.deinterleave_i32(buf, raw_t, x_t, INT32_SCALE)
+    assert_array_equal(raw_t, buf.T)
+    assert_array_equal(x_t, buf.T * INT32_SCALE)  # exact: a power-of-two scale
+    f = rng.standard_normal((777, channels))
+    out = np.empty((channels, 777))
+    native.deinterleave_f64(f, out)
+    assert_array_equal(out, f.T)
+
+
+@needs_kernels
+@pytest.mark.parametrize("rate", [44_100, 48_000, 96_000])
+@pytest.mark.parametrize("rows", [[0], [0, 1], [0, 1, 2, 4, 5], [2]])
+def test_kweight_power_matches_scipy_sosfilt(rate, rows):
+    rng = np.random.default_rng(rate + len(rows))
+    x = rng.standard_normal((6, 5000)) * 0.3
+    x[1, 100] = np.nan  # non-finite samples count as 0
+    x[2, 7] = np.inf
+    rows_a = np.array(rows, dtype=np.int64)
+    sos = np.ascontiguousarray(k_weighting_sos(rate))
+    weights = np.linspace(1.0, 1.41, len(rows))
+    zi_c, zi_n = np.zeros((len(rows), 2, 2)), np.zeros((len(rows), 2, 2))
+    for lo, hi in ((0, 1234), (1234, 1235), (1235, 5000)):  # state carried across calls
+        block = np.ascontiguousarray(x[:, lo:hi])
+        p = np.empty(hi - lo)
+        native.kweight_power(block, rows_a, sos, zi_c, weights, p)
+        y = np.where(np.isfinite(block[rows_a]), block[rows_a], 0.0)
+        sosfilt_rows(sos, y, zi_n)  # scipy's compiled sosfilt (checker/dsp/iir.py)
+        # Same recursion in the same order without fused multiply-adds: the same bits.
+        assert_array_equal(zi_c, zi_n)
+        assert_allclose(p, weights @ (y * y), rtol=1e-13, atol=0)
+
+
+@needs_kernels
+def test_piece_sums_match_reduceat():
+    rng = np.random.default_rng(1)
+    p = rng.random(1000)
+    for cuts in ([48, 96, 1000], [1, 2, 3], [500], [1000], [0, 0, 10]):
+        c = np.array(cuts, dtype=np.int64)
+        got = native.piece_sums(p, c)
+        edges = np.concatenate(([0], c, [p.size]))
+        want = [p[a:b].sum() for a, b in zip(edges[:-1], edges[1:], strict=True)]
+        assert_allclose(got, want, rtol=1e-13, atol=1e-15)
+    with pytest.raises(ValueError, match="cuts must rise"):
+        native.piece_sums(p, np.array([10, 5], dtype=np.int64))
+
+
+@needs_kernels
+@pytest.mark.parametrize("channels", [1, 2, 5])
+def test_channel_stats_match_numpy(channels):
+    rng = np.random.default_rng(10 + channels)
+    raw = rng.integers(-(2**23), 2**23, size=(channels, 9600), dtype=np.int32) << 8
+    raw[:, 4000:4500] = 0  # all-channel digital zero
+    raw[0, 7000:7100] = 0  # one channel only: not a zero frame
+    x = raw * INT32_SCALE
+    cuts = np.array([1000, 5800, 9600], dtype=np.int64)
+    mx, mn, sm, sq, zero, isum, ors = native.channel_stats(x, raw, cuts, raw_scaled=True)
+    assert_array_equal(mx, x.max(axis=1))
+    assert_array_equal(mn, x.min(axis=1))
+    assert_allclose(sm, x.sum(axis=1), rtol=1e-12, atol=1e-12)
+    assert_array_equal(isum, raw.sum(axis=1, dtype=np.int64))  # exact, via the float sums
+    _, _, _, _, _, isum_loop, _ = native.channel_stats(x, raw, cuts, raw_scaled=False)
+    assert_array_equal(isum_loop, raw.sum(axis=1, dtype=np.int64))
+    assert_array_equal(ors, np.bitwise_or.reduce(raw, axis=1))
+    edges = [0, 1000, 5800, 9600, 9600]
+    for k in range(4):
+        part = x[:, edges[k] : edges[k + 1]]
+        assert_allclose(sq[k], (part * part).sum(axis=1), rtol=1e-12, atol=0)
+        assert zero[k] == int((~np.any(part != 0, axis=0)).sum())
+    assert zero.sum() == 500 + (100 if channels == 1 else 0)  # mono: the 100 count too
+
+
+@needs_kernels
+@pytest.mark.parametrize("channels", [1, 2, 6])
+def test_frame_scan_matches_numpy(channels):
+    rng = np.random.default_rng(20 + channels)
+    x = rng.standard_normal((channels, 4800)) * 1e-4  # below -60 dBFS: quiet
+    x[:, :300] = 0.0
+    x[:, 4000:] = 0.0
+    x[-1, 1000] = 0.5  # one loud sample in the last channel
+    x[0, 2000] = -0.002
+    threshold = 10 ** (-60 / 20)
+    mask = np.full(4800, 7, dtype=np.uint8)
+    zeros, first, last, first_nz, last_nz = native.frame_scan(x, threshold, mask)
+    level = np.abs(x).max(axis=0)
+    loud = np.flatnonzero(level >= threshold)
+    nonzero = np.flatnonzero(level > 0)
+    assert (first, last) == (loud[0], loud[-1]) == (1000, 2000)
+    assert (first_nz, last_nz) == (nonzero[0], nonzero[-1]) == (300, 3999)
+    assert zeros == 300 + 800
+    assert_array_equal(mask.view(bool), level == 0)
+    quiet = np.full(10, 8, dtype=np.uint8)
+    assert native.frame_scan(np.zeros((channels, 10)), threshold, quiet) == (10, -1, -1, -1, -1)
+
+
+@needs_kernels
+def test_pair_products_match_einsum():
+    rng = np.random.default_rng(3)
+    x = rng.standard_normal((4, 3000))
+    first = np.array([0, 0, 1, 2], dtype=np.int64)
+    second = np.array([1, 3, 2, 3], dtype=np.int64)
+    got = native.pair_products(x, first, second)
+    assert_allclose(got, np.einsum("ij,ij->i", x[first], x[second]), rtol=1e-12, atol=1e-12)
+
+
+@needs_kernels
+def test_wrappers_refuse_wrong_buffers():
+    with pytest.raises(ValueError, match="expected C-contiguous float64"):
+        native.channel_stats(np.zeros((2, 10), dtype=np.float32), None, np.zeros(0, np.int64))
+    with pytest.raises(ValueError, match="expected C-contiguous"):
+        native.frame_scan(np.zeros((10, 2)).T, 0.1, np.zeros(10, np.uint8))
+    with pytest.raises(ValueError, match="rows"):
+        native.kweight_power(
+            np.zeros((2, 10)),
+            np.array([0, 2], dtype=np.int64),
+            np.zeros((2, 6)),
+            np.zeros((2, 2, 2)),
+            np.ones(2),
+            np.zeros(10),
+        )
+
+
+# ------------------------------------------------------------------- whole meters
+
+
+def _programme(
+    seconds: float, channels: int, rate: int, seed: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Noise bursts with digital-zero gaps, a quiet tail and one clipped run, as PCM_24
+    codes (left-justified int32) and their float view."""
+    rng = np.random.default_rng(seed)
+    n = int(seconds * rate)
+    env = np.repeat(rng.uniform(0.01, 0.5, size=n // 4800 + 1), 4800)[:n]
+    x = rng.standard_normal((n, channels)) * env[:, None] * 0.3
+    x[int(0.5 * rate) : int(0.55 * rate)] = 0.0  # a dropout
+    x[-int(0.3 * rate) :] *= 1e-5  # quiet tail
+    x[int(1.2 * rate) : int(1.2 * rate) + 5, 0] = 1.0  # clipped run
+    codes = np.clip(np.round(x * 2**23), -(2**23), 2**23 - 1).astype(np.int32) << 8
+    return codes, codes * INT32_SCALE
+
+
+def _same(a, b, key: str = "") -> None:
+    """Equal, floats to 1e-9 (summation order differs between the paths), recursively."""
+    if isinstance(a, dict):
+        assert a.keys() == b.keys(), key
+        for k in a:
+            _same(a[k], b[k], k)
+    elif isinstance(a, (list, tuple)):
+        assert len(a) == len(b), key
+        for va, vb in zip(a, b, strict=True):
+            _same(va, vb, key)
+    elif isinstance(a, float) and isinstance(b, float) and math.isfinite(a):
+        assert_allclose(a, b, rtol=1e-9, atol=1e-9, err_msg=key)
+    else:
+        assert a == b, key
+
+
+@pytest.mark.parametrize("meter_cls", [LoudnessMeter, LevelsMeter, SilenceMeter, ChannelsMeter])
+@pytest.mark.parametrize("channels", [1, 2, 6])
+def test_meters_give_the_same_results_on_both_paths(meter_cls, channels):
+    raw, x = _programme(4.0, channels, 48_000, seed=channels)
+    info = _info(channels)
+    sizes = (4_800, 1_000, 48_000, 7)
+    compiled = run_meter(meter_cls, info, x, raw=raw, sizes=sizes)
+    with native.disabled():
+        plain = run_meter(meter_cls, info, x, raw=raw, sizes=sizes)
+    _same(compiled.to_dict(), plain.to_dict())
+
+
+def test_measure_gives_the_same_values_on_both_paths(tmp_path):
+    raw, _ = _programme(5.0, 2, 44_100, seed=9)
+    path = tmp_path / "p.wav"
+    sf.write(path, (raw >> 8) / 2**23, 44_100, subtype="PCM_24")  # exact 24-bit codes
+    compiled = measure(str(path))
+    with native.disabled():
+        plain = measure(str(path))
+    _same(compiled.values, plain.values)
+    assert compiled.findings == plain.findings
+
+
+@pytest.mark.parametrize("gap", [(900, 1000), (1000, 1100), (950, 2050)])
+def test_dropout_at_a_block_edge_on_both_paths(gap):
+    # A digital-zero run that ends or starts exactly at a block boundary (blocks of 1000
+    # frames): the compiled path writes its zero mask only for blocks holding zeros.
+    rng = np.random.default_rng(4)
+    x = rng.standard_normal((4000, 2)) * 0.1 + 0.3  # never exactly zero
+    x[gap[0] : gap[1]] = 0.0
+    info = StreamInfo("x.wav", "WAV", "FLOAT", 48_000, 2, None)
+    options = MeasureOptions(dropout_min_s=0.001)  # 48 frames
+    compiled = run_meter(SilenceMeter, info, x, sizes=(1000,), options=options)
+    with native.disabled():
+        plain = run_meter(SilenceMeter, info, x, sizes=(1000,), options=options)
+    assert compiled == plain
+    assert compiled.dropouts == 1  # hand count: one gap
+    assert_allclose(compiled.longest_dropout_s, (gap[1] - gap[0]) / 48_000, rtol=0, atol=1e-12)
