@@ -106,8 +106,8 @@ MIN_BROADBAND_SHARE = 0.01  # -20 dB of the power outside narrow peaks
 #: every SPARSE_STRIDE-th frame (by file-wide index), counted SPARSE_STRIDE times.
 DENSE_S = 30.0
 SPARSE_STRIDE = 16
-#: Frames x channels per FFT call (bounds temporary memory: 128 x 4096 x 16 bytes).
-FFT_BATCH_ROWS = 128
+#: Frames per FFT call (reused buffers of 32 x 4096 x 24 bytes at 48 kHz).
+FFT_BATCH_FRAMES = 32
 #: Common lower rates, for the plain-words suggestion.
 COMMON_RATES_HZ = (8000, 11025, 16000, 22050, 24000, 32000, 44100, 48000, 88200, 96000)
 
@@ -167,6 +167,8 @@ class BandwidthMeter:
         dense = math.ceil(min(dense_s, 1e12) * self.rate / self.hop / SPARSE_STRIDE)
         self.dense_frames = min(2**62, dense * SPARSE_STRIDE)
         self.tail = np.zeros((self.channels, 0))  # channel-major: (channels, frames)
+        self.work: np.ndarray | None = None  # windowed frames, then their spectra (_add)
+        self.spec: np.ndarray | None = None
 
     def feed(self, block: Block) -> None:
         if block.frames == 0:
@@ -174,30 +176,60 @@ class BandwidthMeter:
         x = block.xt  # (channels, frames), contiguous rows
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)
-        buf = np.concatenate([self.tail, x], axis=1) if self.tail.shape[1] else x
-        length = buf.shape[1]
-        count = 0 if length < self.n else (length - self.n) // self.hop + 1
+        # Spectrum frames run over tail + x; the tail (< one frame) is not re-copied with
+        # the block: frames starting in it are cut from tail + the start of x, the others
+        # are views of x.
+        n, hop, t = self.n, self.hop, self.tail.shape[1]
+        length = t + x.shape[1]
+        count = 0 if length < n else (length - n) // hop + 1
         if count:
-            view = sliding_window_view(buf, self.n, axis=1)[:, :: self.hop]  # (ch, count, n)
-            k = np.arange(self.frames, self.frames + count)  # file-wide spectrum frame index
-            dense = np.flatnonzero(k < self.dense_frames)
-            sparse = np.flatnonzero((k >= self.dense_frames) & (k % SPARSE_STRIDE == 0))
-            if dense.size:
-                self._add(view[:, dense[0] : dense[-1] + 1], 1.0)
-            if sparse.size:
-                self._add(view[:, sparse[0] : sparse[-1] + 1 : SPARSE_STRIDE], SPARSE_STRIDE)
+            first = self.frames
+            straddle = min(count, -(-t // hop))  # frames starting inside the tail
+            if straddle:
+                need = min(x.shape[1], (straddle - 1) * hop + n - t)
+                head = np.concatenate([self.tail, x[:, :need]], axis=1)
+                self._analyse(sliding_window_view(head, n, axis=1)[:, ::hop][:, :straddle], first)
+            if count > straddle:
+                offset = straddle * hop - t
+                view = sliding_window_view(x[:, offset:], n, axis=1)[:, ::hop]
+                self._analyse(view[:, : count - straddle], first + straddle)
             self.frames += count
-        self.tail = buf[:, count * self.hop :].copy()
+        cut = count * hop - t  # where the next frame starts, relative to x
+        if cut >= 0:
+            self.tail = x[:, cut:].copy()
+        else:
+            self.tail = np.concatenate([self.tail[:, count * hop :], x], axis=1)
+
+    def _analyse(self, view: np.ndarray, first: int) -> None:
+        """Add the frames of ``view`` (channels, m, n) that are analysed; frame i of it has
+        the file-wide index first + i."""
+        end = first + view.shape[1]
+        dense_end = min(end, self.dense_frames)
+        if first < dense_end:
+            self._add(view[:, : dense_end - first], 1.0)
+        sparse = max(first, self.dense_frames)
+        sparse = -(-sparse // SPARSE_STRIDE) * SPARSE_STRIDE  # first multiple of the stride
+        if sparse < end:
+            self._add(view[:, sparse - first :: SPARSE_STRIDE], SPARSE_STRIDE)
 
     def _add(self, frames: np.ndarray, weight: float) -> None:
         """Add the power spectra of ``frames`` (channels, count, n), each counted ``weight`` times."""
-        step = max(1, FFT_BATCH_ROWS // self.channels)
-        for i in range(0, frames.shape[1], step):
-            spec = np.fft.rfft(frames[:, i : i + step] * self.window, axis=-1)
+        channels, count, n = frames.shape
+        if self.work is None:  # reused buffers: fresh large temporaries cost page faults
+            rows = max(FFT_BATCH_FRAMES, channels)
+            self.work = np.empty((rows, n))
+            self.spec = np.empty((rows, n // 2 + 1), dtype=np.complex128)
+        step = max(1, self.work.shape[0] // channels)
+        for i in range(0, count, step):
+            part = frames[:, i : i + step]
+            rows = channels * part.shape[1]
+            work, spec = self.work[:rows], self.spec[:rows]
+            np.multiply(part, self.window, out=work.reshape(part.shape))
+            np.fft.rfft(work, axis=-1, out=spec)
             parts = spec.view(np.float64)  # re, im interleaved: |X|^2 = re^2 + im^2
-            total = np.einsum("ijk,ijk->k", parts, parts)
+            total = np.einsum("jk,jk->k", parts, parts)
             self.sum_parts += total if weight == 1.0 else weight * total
-            self.weight += weight * spec.shape[1]
+        self.weight += weight * count
 
     def spectrum(self) -> np.ndarray:
         """Averaged equivalent white-noise power per bin, 0 Hz to Nyquist (re 1.0)."""
