@@ -39,7 +39,15 @@ from checker.errors import AudioReadError, UnsupportedAudioError
 MIN_SAMPLE_RATE_HZ = 8_000
 MAX_SAMPLE_RATE_HZ = 768_000
 MAX_CHANNELS = 64
-DEFAULT_BLOCK_FRAMES = 48_000
+DEFAULT_BLOCK_FRAMES = 48_000  # fixed-size reads where callers need the same size for every file
+#: Automatic block size (block_frames=None): about this many samples per block, i.e. 8 s of
+#: stereo at 48 kHz. Every meter has a fixed cost per block (Python, numpy calls), so fewer,
+#: larger blocks measure faster: on an hour of stereo, 384,000-frame blocks took about 25 %
+#: less time than 48,000-frame ones (make bench). Memory stays bounded: the samples per
+#: block, not the frames, are fixed.
+BLOCK_SAMPLES = 768_000
+MIN_BLOCK_FRAMES = 4_096
+MAX_BLOCK_FRAMES = 384_000
 
 #: libsndfile subtypes whose samples are integer codes.
 INTEGER_SUBTYPES = {
@@ -167,10 +175,22 @@ def _check_info(path: str, info) -> StreamInfo:
     )
 
 
+def auto_block_frames(info: StreamInfo) -> int:
+    """Frames per block when the caller does not fix them: BLOCK_SAMPLES over the channels,
+    within MIN_BLOCK_FRAMES..MAX_BLOCK_FRAMES, and no more than the file declares."""
+    frames = min(MAX_BLOCK_FRAMES, max(MIN_BLOCK_FRAMES, BLOCK_SAMPLES // info.channels))
+    if info.frames_declared is not None:
+        frames = min(frames, max(MIN_BLOCK_FRAMES, info.frames_declared + 1))
+    return frames
+
+
 def read_blocks(
-    path: str, block_frames: int = DEFAULT_BLOCK_FRAMES, *, read_ahead: bool = False
+    path: str, block_frames: int | None = DEFAULT_BLOCK_FRAMES, *, read_ahead: bool = False
 ) -> tuple[StreamInfo, Iterator[Block]]:
     """Open ``path`` and return its StreamInfo and an iterator of Blocks.
+
+    ``block_frames``: frames per block (the last one may be shorter); None picks
+    :func:`auto_block_frames` for the file.
 
     The iterator raises AudioReadError if decoding fails part-way; blocks
     already yielded stay valid. ``read_ahead``: decode the next block in a
@@ -178,7 +198,7 @@ def read_blocks(
     conversions run without the GIL); for a lone measurement, where a core
     would otherwise sit idle. The blocks and their order are the same.
     """
-    if block_frames < 1:
+    if block_frames is not None and block_frames < 1:
         raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
     check_file(path)
     try:
@@ -193,6 +213,8 @@ def read_blocks(
     except Exception:
         handle.close()
         raise
+    if block_frames is None:
+        block_frames = auto_block_frames(info)
     if read_ahead:
         return info, _iterate_ahead(handle, info, block_frames)
     return info, _iterate(handle, info, block_frames)

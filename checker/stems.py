@@ -48,7 +48,7 @@ from typing import Any
 import numpy as np
 import soundfile as sf
 
-from checker.audio import Block, StreamInfo, read_blocks
+from checker.audio import DEFAULT_BLOCK_FRAMES, Block, StreamInfo, read_blocks
 from checker.errors import AudioReadError
 from checker.measure import FlatValues, Measurement, resolve_layout
 from checker.meters.base import MeasureOptions
@@ -161,7 +161,8 @@ def check_stem_set(
 
     def open_one(label: str, path: str, threshold: float):
         try:
-            info, blocks = read_blocks(path, options.block_frames)
+            # One block size for every file of the set: they are read in lockstep.
+            info, blocks = read_blocks(path, options.block_frames or DEFAULT_BLOCK_FRAMES)
         except AudioReadError as exc:
             errors.append(f"{label}: {exc}")
             return None

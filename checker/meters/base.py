@@ -29,7 +29,9 @@ from checker.layout import Layout
 
 @dataclass(frozen=True)
 class MeasureOptions:
-    block_frames: int = 48_000
+    #: Frames per block; None: automatic (checker.audio.auto_block_frames). Values do not
+    #: depend on it beyond rounding.
+    block_frames: int | None = None
     #: Explicit channel layout ("L R C LFE Ls Rs"); None = from file or assumed.
     layout: str | None = None
     #: True-peak overs are counted above this ceiling.

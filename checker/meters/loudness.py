@@ -215,7 +215,7 @@ class LoudnessMeter:
         # Compiled K-weighting (checker/dsp/native.py): filters without copying the block.
         self.native = native.enabled() and self.sos.shape == (2, 6)
         self.rows = self.active.astype(np.int64)
-        self.power = np.empty(options.block_frames)  # reused per-frame power buffer
+        self.power = np.empty(0)  # reused per-frame power buffer (grows to the block size)
         self.frames = 0  # frames fed so far
         self.sub_count = 0  # 1 ms sub-steps completed
         self.partial = 0.0  # weighted power sum of the current, incomplete 1 ms sub-step
@@ -234,7 +234,9 @@ class LoudnessMeter:
         if self.active.size == 0:
             p = np.zeros(n)
         elif self.native:
-            p = self.power[:n] if n <= self.power.size else np.empty(n)
+            if self.power.size < n:
+                self.power = np.empty(n)
+            p = self.power[:n]
             native.kweight_power(block.xt, self.rows, self.sos, self.zi, self.weights, p)
         else:
             # A channel-major copy of the channels that count, filtered in place.

@@ -36,7 +36,13 @@ HERE = Path(__file__).resolve().parent
 CACHE = HERE / "cache"
 PY = sys.executable
 EXE = str(Path(PY).with_name("deliverycheck"))
-BLOCK = 48_000
+
+
+def engine_block(path: Path) -> str:
+    """The block size the engine picks for this file (checker.audio.auto_block_frames)."""
+    from checker.audio import auto_block_frames, open_info
+
+    return str(auto_block_frames(open_info(str(path))))
 
 
 def programme_chunk(rng: np.random.Generator, n: int, channels: int, rate: int) -> np.ndarray:
@@ -101,11 +107,11 @@ def run_once(cmd: list[str]) -> tuple[float, float, int]:
 def commands(path: Path) -> dict[str, list[str]]:
     w = str(HERE / "workloads.py")
     return {
-        "a decode": [PY, w, "decode", str(path), str(BLOCK)],
+        "a decode": [PY, w, "decode", str(path), engine_block(path)],
         "b deliverycheck": [EXE, "measure", "--json", str(path)],
         "b1 one thread": [PY, w, "measure1", str(path)],
         "c pyloudnorm": [PY, w, "pyloudnorm", str(path)],
-        "d pyebur128": [PY, w, "pyebur128", str(path), str(BLOCK)],
+        "d pyebur128": [PY, w, "pyebur128", str(path), engine_block(path)],
     }
 
 
@@ -149,7 +155,7 @@ def truepeak_skip(path: Path) -> tuple[int, int]:
     """(chunk-channels interpolated, seen) by the true-peak meter on this file."""
     w = str(HERE / "workloads.py")
     out = subprocess.run(
-        [PY, w, "tpskip", str(path), str(BLOCK)], capture_output=True, text=True, check=True
+        [PY, w, "tpskip", str(path), engine_block(path)], capture_output=True, text=True, check=True
     ).stdout.split()
     return int(out[0]), int(out[1])
 
