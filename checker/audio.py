@@ -27,7 +27,7 @@ import os
 import queue
 import threading
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import soundfile as sf
@@ -102,6 +102,8 @@ class Block:
     x: np.ndarray
     raw: np.ndarray | None
     start: int
+    #: Results computed once per block and shared by meters (checker.meters.blockstats).
+    memo: dict = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def frames(self) -> int:

@@ -87,7 +87,7 @@ def test_deinterleave_matches_numpy(channels):
 @needs_kernels
 @pytest.mark.parametrize("rate", [44_100, 48_000, 96_000])
 @pytest.mark.parametrize("rows", [[0], [0, 1], [0, 1, 2, 4, 5], [2]])
-def test_kweight_power_matches_scipy_sosfilt(rate, rows):
+def test_kweight_sums_match_scipy_sosfilt(rate, rows):
     rng = np.random.default_rng(rate + len(rows))
     x = rng.standard_normal((6, 5000)) * 0.3
     x[1, 100] = np.nan  # non-finite samples count as 0
@@ -96,29 +96,21 @@ def test_kweight_power_matches_scipy_sosfilt(rate, rows):
     sos = np.ascontiguousarray(k_weighting_sos(rate))
     weights = np.linspace(1.0, 1.41, len(rows))
     zi_c, zi_n = np.zeros((len(rows), 2, 2)), np.zeros((len(rows), 2, 2))
-    for lo, hi in ((0, 1234), (1234, 1235), (1235, 5000)):  # state carried across calls
+    pieces = {(0, 1234): [48, 96, 1234], (1234, 1235): [], (1235, 5000): [1, 2000, 3765]}
+    for (lo, hi), cuts in pieces.items():  # state carried across calls
         block = np.ascontiguousarray(x[:, lo:hi])
-        p = np.empty(hi - lo)
-        native.kweight_power(block, rows_a, sos, zi_c, weights, p)
+        got = native.kweight_sums(block, rows_a, sos, zi_c, weights, np.array(cuts, np.int64))
         y = np.where(np.isfinite(block[rows_a]), block[rows_a], 0.0)
         sosfilt_rows(sos, y, zi_n)  # scipy's compiled sosfilt (checker/dsp/iir.py)
         # Same recursion in the same order without fused multiply-adds: the same bits.
         assert_array_equal(zi_c, zi_n)
-        assert_allclose(p, weights @ (y * y), rtol=1e-13, atol=0)
-
-
-@needs_kernels
-def test_piece_sums_match_reduceat():
-    rng = np.random.default_rng(1)
-    p = rng.random(1000)
-    for cuts in ([48, 96, 1000], [1, 2, 3], [500], [1000], [0, 0, 10]):
-        c = np.array(cuts, dtype=np.int64)
-        got = native.piece_sums(p, c)
-        edges = np.concatenate(([0], c, [p.size]))
+        p = weights @ (y * y)
+        edges = [0, *cuts, hi - lo]
         want = [p[a:b].sum() for a, b in zip(edges[:-1], edges[1:], strict=True)]
-        assert_allclose(got, want, rtol=1e-13, atol=1e-15)
+        assert_allclose(got, want, rtol=1e-12, atol=1e-300)
     with pytest.raises(ValueError, match="cuts must rise"):
-        native.piece_sums(p, np.array([10, 5], dtype=np.int64))
+        bad = np.array([9, 3], dtype=np.int64)
+        native.kweight_sums(x[:2].copy(), np.zeros(1, np.int64), sos, zi_c[:1], weights[:1], bad)
 
 
 @needs_kernels
@@ -186,13 +178,13 @@ def test_wrappers_refuse_wrong_buffers():
     with pytest.raises(ValueError, match="expected C-contiguous"):
         native.frame_scan(np.zeros((10, 2)).T, 0.1, np.zeros(10, np.uint8))
     with pytest.raises(ValueError, match="rows"):
-        native.kweight_power(
+        native.kweight_sums(
             np.zeros((2, 10)),
             np.array([0, 2], dtype=np.int64),
             np.zeros((2, 6)),
             np.zeros((2, 2, 2)),
             np.ones(2),
-            np.zeros(10),
+            np.zeros(0, dtype=np.int64),
         )
 
 
@@ -269,3 +261,31 @@ def test_dropout_at_a_block_edge_on_both_paths(gap):
     assert compiled == plain
     assert compiled.dropouts == 1  # hand count: one gap
     assert_allclose(compiled.longest_dropout_s, (gap[1] - gap[0]) / 48_000, rtol=0, atol=1e-12)
+
+
+@needs_kernels
+def test_levels_and_channels_share_one_pass_per_block(monkeypatch):
+    # checker.meters.blockstats: the first meter computes the block's statistics, the second
+    # reads them from block.memo; a cleaned copy (NaN/Inf zeroed) is never shared.
+    from checker.audio import Block
+    from checker.meters import blockstats
+
+    calls = []
+    real = native.channel_stats
+    monkeypatch.setattr(native, "channel_stats", lambda *a, **k: calls.append(1) or real(*a, **k))
+    raw, x = _programme(1.0, 2, 48_000, seed=2)
+    info = _info(2)
+    levels = LevelsMeter(info, default_layout(2), MeasureOptions())
+    channels = ChannelsMeter(info, default_layout(2), MeasureOptions())
+    block = Block(x, raw, 0)
+    levels.feed(block)
+    channels.feed(block)
+    assert len(calls) == 1
+    assert ("sample_stats", blockstats.segment_frames(48_000), True) in block.memo
+    f = x.copy()
+    f[10, 0] = np.nan
+    float_info = _info(2, "FLOAT")
+    levels = LevelsMeter(float_info, default_layout(2), MeasureOptions())
+    nan_block = Block(f, None, 0)
+    levels.feed(nan_block)  # counts the NaN, measures a cleaned copy
+    assert nan_block.memo == {}

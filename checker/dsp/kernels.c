@@ -25,7 +25,7 @@
 #endif
 
 /* Version of the functions' signatures; native.py refuses a library with another one. */
-EXPORT int64_t dc_abi_version(void) { return 4; }
+EXPORT int64_t dc_abi_version(void) { return 6; }
 
 /* ------------------------------------------------------------------------ reading */
 
@@ -85,26 +85,26 @@ static inline double finite_or_zero(double v) { return isfinite(v) ? v : 0.0; }
 
 typedef double v2d __attribute__((vector_size(16)));
 
-/* K-weighted, channel-weighted power per frame:
- *   p[t] = sum_r w[r] * y_r[t]^2,  y_r = x row rows[r] through the two sections of sos (2 x 6),
- * state zi (nrows x 2 sections x 2) carried across calls. x: ch rows of n frames, row r at
- * x + rows[r] * n. Non-finite samples are taken as 0. Rows are filtered two at a time, one
- * per lane of a two-double vector (element-wise IEEE arithmetic: the same bits as one row
- * at a time). */
-EXPORT void dc_kweight_power(const double *x, int64_t n, const int64_t *rows, int64_t nrows,
-                             const double *sos, double *zi, const double *w, double *p)
+/* K-weighted, channel-weighted power summed over pieces of the block:
+ *   out[k] = sum over frames t of piece k of sum_r w[r] * y_r[t]^2,
+ * y_r = x row rows[r] through the two sections of sos (2 x 6), state zi (nrows x 2 sections
+ * x 2) carried across calls. x: ch rows of n frames, row r at x + rows[r] * n. Piece k ends
+ * (exclusive) at cuts[k] (rising, <= n); the last piece (index ncuts) runs to n. Non-finite
+ * samples are taken as 0. Rows are filtered two at a time, one per lane of a two-double
+ * vector (element-wise IEEE arithmetic: the same bits as one row at a time). Within a piece
+ * the frames are added in order; pieces of each row pair are added pair after pair. */
+EXPORT void dc_kweight_sums(const double *x, int64_t n, const int64_t *rows, int64_t nrows,
+                            const double *sos, double *zi, const double *w, const int64_t *cuts,
+                            int64_t ncuts, double *out)
 {
     const double *s1 = sos, *s2 = sos + 6;
     const v2d b10 = {s1[0], s1[0]}, b11 = {s1[1], s1[1]}, b12 = {s1[2], s1[2]};
     const v2d a11 = {s1[4], s1[4]}, a12 = {s1[5], s1[5]};
     const v2d b20 = {s2[0], s2[0]}, b21 = {s2[1], s2[1]}, b22 = {s2[2], s2[2]};
     const v2d a21 = {s2[4], s2[4]}, a22 = {s2[5], s2[5]};
-    int64_t r = 0;
-    if (nrows == 0) {
-        memset(p, 0, (size_t)n * sizeof(double));
-        return;
-    }
-    for (; r < nrows; r += 2) {
+    for (int64_t k = 0; k <= ncuts; k++)
+        out[k] = 0.0;
+    for (int64_t r = 0; r < nrows; r += 2) {
         const int pair = r + 1 < nrows;
         const double *xa = x + rows[r] * n;
         const double *xb = pair ? x + rows[r + 1] * n : xa;
@@ -112,20 +112,25 @@ EXPORT void dc_kweight_power(const double *x, int64_t n, const int64_t *rows, in
         v2d z10 = {za[0], zb[0]}, z11 = {za[1], zb[1]};
         v2d z20 = {za[2], zb[2]}, z21 = {za[3], zb[3]};
         const double wa = w[r], wb = pair ? w[r + 1] : 0.0;
-        const int first = r == 0;
-        for (int64_t t = 0; t < n; t++) {
-            const v2d u = {finite_or_zero(xa[t]), finite_or_zero(xb[t])};
-            /* direct form II transposed, in the order of scipy's _sosfilt */
-            v2d y = b10 * u + z10;
-            z10 = b11 * u - a11 * y + z11;
-            z11 = b12 * u - a12 * y;
-            v2d v = b20 * y + z20;
-            z20 = b21 * y - a21 * v + z21;
-            z21 = b22 * y - a22 * v;
-            double q = wa * (v[0] * v[0]);
-            if (pair)
-                q = q + wb * (v[1] * v[1]);
-            p[t] = first ? q : p[t] + q;
+        int64_t t = 0;
+        for (int64_t k = 0; k <= ncuts; k++) {
+            const int64_t end = k < ncuts ? cuts[k] : n;
+            double acc = 0.0;
+            for (; t < end; t++) {
+                const v2d u = {finite_or_zero(xa[t]), finite_or_zero(xb[t])};
+                /* direct form II transposed, in the order of scipy's _sosfilt */
+                v2d y = b10 * u + z10;
+                z10 = b11 * u - a11 * y + z11;
+                z11 = b12 * u - a12 * y;
+                v2d v = b20 * y + z20;
+                z20 = b21 * y - a21 * v + z21;
+                z21 = b22 * y - a22 * v;
+                double q = wa * (v[0] * v[0]);
+                if (pair)
+                    q = q + wb * (v[1] * v[1]);
+                acc += q;
+            }
+            out[k] += acc;
         }
         za[0] = z10[0]; za[1] = z11[0]; za[2] = z20[0]; za[3] = z21[0];
         if (pair) {
@@ -134,56 +139,24 @@ EXPORT void dc_kweight_power(const double *x, int64_t n, const int64_t *rows, in
     }
 }
 
-/* Reductions below keep LANES partial results (element t goes to lane t % LANES), combined
+/* --------------------------------------------------------------- sample-domain stats */
+
+/* These reductions keep LANES partial results (element t goes to lane t % LANES), combined
  * in a fixed order at the end: the compiler vectorises across the lanes without reordering
  * any sum (no -ffast-math), so a result depends only on the data, never on how the buffer
  * happens to be aligned (a resumed batch reproduces its report byte for byte). */
 #define LANES 8
-
-static inline double lane_sum(const double *p, int64_t lo, int64_t end)
-{
-    double s[LANES] = {0.0};
-    int64_t t = lo;
-    for (; t + LANES <= end; t += LANES)
-        for (int j = 0; j < LANES; j++)
-            s[j] += p[t + j];
-    for (int j = 0; t < end; t++, j++)
-        s[j] += p[t];
-    return ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
-}
-
-/* Sums of p over consecutive pieces: piece k ends (exclusive) at cuts[k] (increasing,
- * <= n), the last piece (index ncuts) runs from cuts[ncuts - 1] (or 0) to n. */
-CLONES EXPORT void dc_piece_sums(const double *p, int64_t n, const int64_t *cuts, int64_t ncuts,
-                                 double *out)
-{
-    int64_t lo = 0;
-    for (int64_t k = 0; k <= ncuts; k++) {
-        int64_t hi = k < ncuts ? cuts[k] : n;
-        out[k] = lane_sum(p, lo, hi);
-        lo = hi;
-    }
-}
-
-/* --------------------------------------------------------------- sample-domain stats */
-
+/* Up to this many frames, float sums of code / 2^31 are exact (see dc_channel_stats). */
 #define EXACT_SUM_FRAMES (INT64_C(1) << 21)
 
-/* Per channel row c of x (ch x n): maximum mx[c], minimum mn[c], sum sm[c]; per piece k
- * (cut as in dc_piece_sums) and channel: sum of squares sq[k * ch + c]; per piece: frames
- * where every channel is exactly 0, zero[k]. With raw (ch x n int32 codes, may be NULL):
- * exact int64 sums isum[c] and the OR of every code ors[c]; x_is_raw_scaled promises
- * x == raw / 2^31 exactly (then the sums come from the float sums). n >= 1. */
-/* One channel's piece [lo, end): running max/min, sum, and returns the sum of squares; counts
- * exact zeros into *zeros. LANES accumulators per quantity (see lane_sum). */
 typedef int64_t v2i __attribute__((vector_size(16)));
 
 /* element-wise a > b ? a : b and a < b ? a : b on two-double vectors */
 #define VMAX(a, b) ((v2d)((((v2i)((a) > (b))) & (v2i)(a)) | (~((v2i)((a) > (b))) & (v2i)(b))))
 #define VMIN(a, b) ((v2d)((((v2i)((a) < (b))) & (v2i)(a)) | (~((v2i)((a) < (b))) & (v2i)(b))))
 
-/* One channel's piece [lo, end): running max/min, sum, and returns the sum of squares; counts
- * exact zeros into *zeros. LANES accumulators per quantity (see lane_sum), held in four
+/* One channel's piece [lo, end): running max/min and sum, the sum of squares (returned) and
+ * the count of exact zeros (*zeros). LANES accumulators per quantity, held in four
  * two-double vectors: lane j is element j % 2 of vector j / 2. */
 static inline double piece_stats(const double *x, int64_t lo, int64_t end, double *hi_,
                                  double *lo_, double *sum_, int64_t *zeros)
@@ -240,6 +213,12 @@ static inline double piece_stats(const double *x, int64_t lo, int64_t end, doubl
     return ((ql[0] + ql[1]) + (ql[2] + ql[3])) + ((ql[4] + ql[5]) + (ql[6] + ql[7]));
 }
 
+/* Per channel row c of x (ch x n): maximum mx[c], minimum mn[c], sum sm[c]; per piece k
+ * (piece k ends at cuts[k], the last runs to n) and channel: sum of squares sq[k * ch + c];
+ * per piece: frames where every channel is exactly 0, zero[k]. With raw (ch x n int32
+ * codes, may be NULL): exact int64 sums isum[c] and the OR of every code ors[c];
+ * x_is_raw_scaled promises x == raw / 2^31 exactly (then the sums come from the float
+ * sums). n >= 1. */
 CLONES EXPORT void dc_channel_stats(const double *x, const int32_t *raw, int64_t ch, int64_t n,
                                     const int64_t *cuts, int64_t ncuts, double *mx, double *mn,
                                     double *sm, double *sq, int64_t *zero, int64_t *isum,

@@ -28,7 +28,7 @@ from contextlib import contextmanager
 import numpy as np
 
 ENV = "DELIVERYCHECK_KERNELS"
-ABI_VERSION = 4
+ABI_VERSION = 6
 
 _P = ctypes.c_void_p
 _I = ctypes.c_int64
@@ -37,8 +37,7 @@ _SIGNATURES = {
     "dc_abi_version": (_I, []),
     "dc_deinterleave_i32": (None, [_P, _I, _I, _P, _P, _D]),
     "dc_deinterleave_f64": (None, [_P, _I, _I, _P]),
-    "dc_kweight_power": (None, [_P, _I, _P, _I, _P, _P, _P, _P]),
-    "dc_piece_sums": (None, [_P, _I, _P, _I, _P]),
+    "dc_kweight_sums": (None, [_P, _I, _P, _I, _P, _P, _P, _P, _I, _P]),
     "dc_channel_stats": (None, [_P, _P, _I, _I, _P, _I, _P, _P, _P, _P, _P, _P, _P, _I]),
     "dc_pair_products": (None, [_P, _I, _P, _P, _I, _P]),
     "dc_frame_scan": (_I, [_P, _I, _I, _D, _P, _P, _P]),
@@ -139,33 +138,39 @@ def deinterleave_f64(buf: np.ndarray, x_t: np.ndarray) -> None:
     _lib.dc_deinterleave_f64(_ptr(buf), n, ch, _ptr(x_t))
 
 
-def kweight_power(
+def kweight_sums(
     xt: np.ndarray,
     rows: np.ndarray,
     sos: np.ndarray,
     zi: np.ndarray,
     weights: np.ndarray,
-    out: np.ndarray,
-) -> None:
-    """out[t] = sum_r weights[r] * y_r[t]**2, y_r: row rows[r] of xt through the two
-    sections ``sos`` (2, 6) with state ``zi`` (len(rows), 2, 2), updated in place.
-    Non-finite samples count as 0."""
-    _need(xt, np.float64, 2, "kweight_power")
-    _need(rows, np.int64, 1, "kweight_power")
-    _need(sos, np.float64, 2, "kweight_power")
-    _need(zi, np.float64, 3, "kweight_power")
-    _need(weights, np.float64, 1, "kweight_power")
-    _need(out, np.float64, 1, "kweight_power")
+    cuts: np.ndarray,
+) -> np.ndarray:
+    """K-weighted power sum_r weights[r] * y_r**2 (y_r: row rows[r] of xt through the two
+    sections ``sos`` (2, 6), state ``zi`` (len(rows), 2, 2) updated in place; non-finite
+    samples count as 0), summed over the pieces [0, cuts[0]), ..., [cuts[-1], n):
+    returns len(cuts) + 1 sums."""
+    _need(xt, np.float64, 2, "kweight_sums")
+    _need(rows, np.int64, 1, "kweight_sums")
+    _need(sos, np.float64, 2, "kweight_sums")
+    _need(zi, np.float64, 3, "kweight_sums")
+    _need(weights, np.float64, 1, "kweight_sums")
     ch, n = xt.shape
     r = rows.size
-    if sos.shape != (2, 6) or zi.shape != (r, 2, 2) or weights.size != r or out.size != n:
+    if sos.shape != (2, 6) or zi.shape != (r, 2, 2) or weights.size != r:
         raise ValueError(
-            f"native.kweight_power: sos {sos.shape}, zi {zi.shape}, weights {weights.shape}, "
-            f"out {out.shape} (expected (2, 6), ({r}, 2, 2), ({r},), ({n},))"
+            f"native.kweight_sums: sos {sos.shape}, zi {zi.shape}, weights {weights.shape} "
+            f"(expected (2, 6), ({r}, 2, 2), ({r},))"
         )
     if r and (rows.min() < 0 or rows.max() >= ch):
-        raise ValueError(f"native.kweight_power: rows {rows.tolist()} (expected 0 to {ch - 1})")
-    _lib.dc_kweight_power(_ptr(xt), n, _ptr(rows), r, _ptr(sos), _ptr(zi), _ptr(weights), _ptr(out))
+        raise ValueError(f"native.kweight_sums: rows {rows.tolist()} (expected 0 to {ch - 1})")
+    _check_cuts(cuts, n, "kweight_sums")
+    out = np.empty(cuts.size + 1)
+    _lib.dc_kweight_sums(
+        _ptr(xt), n, _ptr(rows), r, _ptr(sos), _ptr(zi), _ptr(weights), _ptr(cuts), cuts.size,
+        _ptr(out),
+    )  # fmt: skip
+    return out
 
 
 def _check_cuts(cuts: np.ndarray, n: int, what: str) -> None:
@@ -174,19 +179,10 @@ def _check_cuts(cuts: np.ndarray, n: int, what: str) -> None:
         raise ValueError(f"native.{what}: cuts must rise within 0..{n}")
 
 
-def piece_sums(p: np.ndarray, cuts: np.ndarray) -> np.ndarray:
-    """Sums of p over the pieces [0, cuts[0]), [cuts[0], cuts[1]), ..., [cuts[-1], n)."""
-    _need(p, np.float64, 1, "piece_sums")
-    _check_cuts(cuts, p.size, "piece_sums")
-    out = np.empty(cuts.size + 1)
-    _lib.dc_piece_sums(_ptr(p), p.size, _ptr(cuts), cuts.size, _ptr(out))
-    return out
-
-
 def channel_stats(
     xt: np.ndarray, raw_t: np.ndarray | None, cuts: np.ndarray, *, raw_scaled: bool = False
 ) -> tuple[np.ndarray, ...]:
-    """Per channel of xt (ch, n), n >= 1: max, min, sum; per piece (as piece_sums) and
+    """Per channel of xt (ch, n), n >= 1: max, min, sum; per piece ([0, cuts[0]), ..., [cuts[-1], n)) and
     channel: sum of squares (pieces, ch); per piece: all-channel zero frames; with raw_t
     (ch, n) int32: exact int64 sums and the OR of the codes (else None, None).
     ``raw_scaled``: the caller promises xt == raw_t / 2**31 exactly (as the reader's blocks

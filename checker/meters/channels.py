@@ -31,6 +31,7 @@ from checker.audio import Block, StreamInfo
 from checker.dsp import native
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
+from checker.meters.blockstats import sample_stats, segment_frames
 from checker.meters.levels import channels_first, finite_x
 from checker.units import db_to_amplitude
 
@@ -38,7 +39,6 @@ SILENT_CHANNEL_PEAK_DBFS = -80.0
 MAX_ALL_PAIRS_CHANNELS = 8
 #: Variance below this fraction of the mean square is treated as a constant channel.
 CONSTANT_RELATIVE_VARIANCE = 1e-12
-NO_CUTS = np.empty(0, dtype=np.int64)
 
 
 @dataclass(frozen=True)
@@ -83,15 +83,20 @@ class ChannelsMeter:
         self.identical = np.ones(len(self.pairs), dtype=bool)
         self.inverted = np.ones(len(self.pairs), dtype=bool)
         self.native = native.enabled()
+        self.seg_len = segment_frames(info.sample_rate_hz)
 
     def feed(self, block: Block) -> None:
         if block.frames == 0:
             return
-        xt = channels_first(finite_x(block))  # (channels, frames)
+        x = finite_x(block)
+        xt = channels_first(x)  # (channels, frames)
         self.frames += xt.shape[1]
-        if self.native:
-            hi, lo, sums, squares, _, _, _ = native.channel_stats(xt, None, NO_CUTS)
-            self.squares += squares[0]
+        if self.native:  # shared with the levels meter (one pass per block)
+            rt = channels_first(block.raw) if block.raw is not None else None
+            _, hi, lo, sums, squares, _, _, _ = sample_stats(
+                block, xt, rt, self.seg_len, shared=x is block.x
+            )
+            self.squares += squares.sum(axis=0)
         else:
             hi, lo, sums = xt.max(axis=1), xt.min(axis=1), xt.sum(axis=1)
         self.peak = np.maximum(self.peak, np.maximum(hi, -lo))

@@ -48,9 +48,9 @@ from checker.audio import INT32_SCALE, Block, StreamInfo
 from checker.dsp import native
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
+from checker.meters.blockstats import sample_stats, segment_frames
 from checker.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
 
-SEGMENT_S = 0.1
 NOISE_BLOCK_SEGMENTS = 4  # 400 ms blocks, 100 ms step
 NOISE_FLOOR_PERCENTILE = 10.0
 NOISE_BLOCK_MAX_ZERO_FRACTION = 0.5
@@ -206,7 +206,7 @@ class LevelsMeter:
         # Non-finite samples.
         self.nonfinite: dict[str, list[int]] = {}  # "NaN"/"Inf" -> [count, first frame]
         # 100 ms segments for the noise floor.
-        self.seg_len = max(1, round(self.rate * SEGMENT_S))
+        self.seg_len = segment_frames(self.rate)
         self.seg_sums: list[np.ndarray] = []
         self.seg_zeros: list[np.ndarray] = []
         self.part_sum = np.zeros(ch)
@@ -227,11 +227,9 @@ class LevelsMeter:
             x = finite_x(block)
         xt = channels_first(x)
         rt = channels_first(raw) if raw is not None else None
-        if self.native:
-            cuts = self._segment_cuts(n)
-            # Block contract (checker.audio): x == raw / 2**31 exactly for integer PCM.
-            hi, lo, float_sums, squares, zeros, int_sums, code_or = native.channel_stats(
-                xt, rt, cuts, raw_scaled=True
+        if self.native:  # shared with the channels meter (one pass per block)
+            cuts, hi, lo, float_sums, squares, zeros, int_sums, code_or = sample_stats(
+                block, xt, rt, self.seg_len, shared=x is block.x
             )
         else:
             hi, lo = xt.max(axis=1), xt.min(axis=1)
@@ -301,16 +299,9 @@ class LevelsMeter:
                 self.clip_first, np.concatenate(found), self.options.max_positions
             )
 
-    def _segment_cuts(self, n: int) -> np.ndarray:
-        """Where 100 ms segments end inside a block of n frames: the partial segment first,
-        then every full one (the last piece, after the last cut, is the new partial)."""
-        first = min(n, self.seg_len - self.part_frames)
-        full = (n - first) // self.seg_len
-        return first + self.seg_len * np.arange(full + 1, dtype=np.int64)
-
     def _add_pieces(self, squares: np.ndarray, zeros: np.ndarray, cuts: np.ndarray, n: int) -> None:
         """The compiled twin of _segments: squares (pieces, ch) and zero-frame counts per
-        piece cut at ``cuts`` (see _segment_cuts)."""
+        piece cut at ``cuts`` (checker.meters.blockstats.segment_cuts)."""
         self.sumsq += squares.sum(axis=0)
         self.part_sum = self.part_sum + squares[0]
         self.part_zeros += int(zeros[0])

@@ -62,6 +62,7 @@ MOMENTARY_SUBSTEPS = 400  # 400 ms of 1 ms sub-steps
 SHORT_TERM_SUBSTEPS = 300  # 3 s of 10 ms sub-steps
 #: 100 ms records are joined into one array once this many pieces have piled up.
 COMPACT_AFTER = 64
+NO_CUTS = np.empty(0, dtype=np.int64)
 #: Unit roundoff of float64 (bounds the running-sum estimate's error in _SlidingMax).
 EPS = float(np.finfo(np.float64).eps)
 RELATIVE_GATE_LU = -10.0  # BS.1770-4
@@ -215,7 +216,6 @@ class LoudnessMeter:
         # Compiled K-weighting (checker/dsp/native.py): filters without copying the block.
         self.native = native.enabled() and self.sos.shape == (2, 6)
         self.rows = self.active.astype(np.int64)
-        self.power = np.empty(0)  # reused per-frame power buffer (grows to the block size)
         self.frames = 0  # frames fed so far
         self.sub_count = 0  # 1 ms sub-steps completed
         self.partial = 0.0  # weighted power sum of the current, incomplete 1 ms sub-step
@@ -231,13 +231,19 @@ class LoudnessMeter:
         n = block.frames
         if n == 0:
             return
+        start = self.frames
+        end = start + n
+        self.frames = end
+        # 1 ms sub-steps that end inside (start, end]: j with floor(j * fs / 1000) <= end.
+        last = ((end + 1) * 1000 - 1) // self.rate
+        cuts = NO_CUTS
+        if last > self.sub_count:
+            js = np.arange(self.sub_count + 1, last + 1, dtype=np.int64)
+            cuts = _boundaries(js, self.rate, 1000) - start  # 1 <= cuts, strictly increasing, <= n
         if self.active.size == 0:
-            p = np.zeros(n)
-        elif self.native:
-            if self.power.size < n:
-                self.power = np.empty(n)
-            p = self.power[:n]
-            native.kweight_power(block.xt, self.rows, self.sos, self.zi, self.weights, p)
+            pieces = np.zeros(cuts.size + 1)
+        elif self.native:  # filtered and summed per sub-step in one compiled pass
+            pieces = native.kweight_sums(block.xt, self.rows, self.sos, self.zi, self.weights, cuts)
         else:
             # A channel-major copy of the channels that count, filtered in place.
             xt = block.x.T
@@ -247,29 +253,17 @@ class LoudnessMeter:
             sosfilt_rows(self.sos, y, self.zi)
             np.multiply(y, y, out=y)
             p = self.weights @ y
-        start = self.frames
-        end = start + n
-        self.frames = end
-        # 1 ms sub-steps that end inside (start, end]: j with floor(j * fs / 1000) <= end.
-        last = ((end + 1) * 1000 - 1) // self.rate
-        if last <= self.sub_count:
-            self.partial += float(p.sum())
+            starts = np.concatenate(([0], cuts))  # cuts rise strictly; only the last may be n
+            if starts[-1] == n:
+                pieces = np.append(np.add.reduceat(p, starts[:-1]), 0.0)
+            else:
+                pieces = np.add.reduceat(p, starts)
+        if cuts.size == 0:
+            self.partial += float(pieces[0])
             return
-        js = np.arange(self.sub_count + 1, last + 1, dtype=np.int64)
-        cuts = _boundaries(js, self.rate, 1000) - start  # 1 <= cuts, strictly increasing, <= n
-        if self.native:
-            sums = native.piece_sums(p, cuts)  # the last piece is [cuts[-1], n): 0.0 if empty
-            tail = float(sums[-1])
-            sums = sums[:-1]
-        elif cuts[-1] == n:
-            sums = np.add.reduceat(p, np.concatenate(([0], cuts[:-1])))
-            tail = 0.0
-        else:
-            sums = np.add.reduceat(p, np.concatenate(([0], cuts)))
-            tail = float(sums[-1])
-            sums = sums[:-1]
+        sums = pieces[:-1]  # the last piece [cuts[-1], n) starts the next sub-step
         sums[0] += self.partial
-        self.partial = tail
+        self.partial = float(pieces[-1])
         self.sub_count = last
         self._push_1ms(sums)
 
