@@ -7,11 +7,10 @@
  * compares the two. Built with -ffp-contract=off so that no multiply-add is fused:
  * the K-weighting recursion then gives the same bits as scipy's sosfilt.
  *
- * The module also initialises as an (empty) Python extension module, so that
- * setuptools builds it and importlib finds its file.
+ * Plain C: no Python headers. setuptools builds it as an extension module's file
+ * (checker/dsp/_kernels.<platform suffix>), but nothing imports it as a module;
+ * native.py opens the file with ctypes.
  */
-#define PY_SSIZE_T_CLEAN
-#include <Python.h>
 #include <math.h>
 #include <stdint.h>
 #include <string.h>
@@ -332,13 +331,3 @@ CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, doub
     }
     return zeros;
 }
-
-/* ------------------------------------------------------------------ module shell */
-
-static struct PyModuleDef kernels_module = {
-    PyModuleDef_HEAD_INIT, "_kernels",
-    "Compiled inner loops of deliverycheck, called through ctypes (see checker/dsp/native.py).",
-    -1, NULL,
-};
-
-PyMODINIT_FUNC PyInit__kernels(void) { return PyModule_Create(&kernels_module); }

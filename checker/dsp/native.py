@@ -1,8 +1,9 @@
 """The compiled inner loops (``checker/dsp/kernels.c``), with a numpy path behind every one.
 
-``pip install`` compiles kernels.c into the extension module ``checker.dsp._kernels``
-(setup.py; optional: an install without a C compiler still works). Its functions are
-plain C, loaded here with ctypes, which releases the GIL during each call. Meters ask
+``pip install`` compiles kernels.c into ``checker/dsp/_kernels.<platform suffix>`` (setup.py;
+optional: an install without a C compiler still works; no Python headers needed). Its
+functions are plain C, loaded here with ctypes, which releases the GIL during each call.
+Meters ask
 :func:`enabled` once, when built, and use their numpy code when it says False: when the
 library is missing or from another build (``dc_abi_version``), or when the environment
 sets ``DELIVERYCHECK_KERNELS=numpy``. The two paths agree to rounding (tests/test_native.py).
@@ -19,11 +20,12 @@ Every wrapper checks dtype, shape and contiguity before handing a pointer to C.
 from __future__ import annotations
 
 import ctypes
-import importlib.util
+import importlib.machinery
 import os
 import threading
 from collections.abc import Iterator
 from contextlib import contextmanager
+from pathlib import Path
 
 import numpy as np
 
@@ -48,20 +50,23 @@ def _load() -> tuple[ctypes.CDLL | None, str]:
     """(library, why not) — the library or None with the reason."""
     if os.environ.get(ENV, "").strip().lower() == "numpy":
         return None, f"{ENV}=numpy"
-    spec = importlib.util.find_spec("checker.dsp._kernels")
-    if spec is None or not spec.origin:
-        return None, "checker.dsp._kernels was not built (no C compiler at install?)"
+    here = Path(__file__).parent
+    found = [here / f"_kernels{suffix}" for suffix in importlib.machinery.EXTENSION_SUFFIXES]
+    found = [p for p in found if p.is_file()]
+    if not found:
+        return None, f"{here}/_kernels*.so was not built (no C compiler at install?)"
+    origin = str(found[0])
     try:
-        lib = ctypes.CDLL(spec.origin)
+        lib = ctypes.CDLL(origin)
         for name, (restype, argtypes) in _SIGNATURES.items():
             fn = getattr(lib, name)
             fn.restype = restype
             fn.argtypes = argtypes
     except (OSError, AttributeError) as exc:
-        return None, f"cannot load {spec.origin} ({exc})"
+        return None, f"cannot load {origin} ({exc})"
     version = lib.dc_abi_version()
     if version != ABI_VERSION:
-        return None, f"{spec.origin}: dc_abi_version = {version} (expected {ABI_VERSION}; rebuild)"
+        return None, f"{origin}: dc_abi_version = {version} (expected {ABI_VERSION}; rebuild)"
     return lib, ""
 
 
