@@ -437,10 +437,11 @@ def test_skip_bound_uses_the_taps():
     assert sums[0] == 1.0 and np.all(sums[1:] > 1.0)
 
 
-def test_whole_block_skip_is_bit_identical_and_used():
-    # A loud first second, then 7 s up to 20 dB quieter: most later 9600-frame blocks can
-    # be passed over whole (feed's block-level test). Same result as interpolating every
-    # chunk (skip=False) and as the per-chunk skip alone; same chunks counted.
+def test_block_wide_chunk_skip_is_bit_identical_and_used():
+    # A loud first second, then 7 s up to 20 dB quieter: most later chunks are passed over
+    # by feed's test of all of a block's chunks at once (_skipped_chunks). Same result as
+    # interpolating every chunk (skip=False) and as deciding in _chunk alone; same chunks
+    # counted.
     rate = 48_000
     x = programme(8.0, rate=rate, seed=12, level_dbfs=-30.0)
     x[:rate] *= 10.0
@@ -448,14 +449,14 @@ def test_whole_block_skip_is_bit_identical_and_used():
     fast = meter_for(x, rate, options)
     full = meter_for(x, rate, options, skip=False)
     per_chunk = meter_for(x, rate, options)
-    per_chunk._all_skippable = lambda block, xx: False  # per-chunk decisions only
-    whole_blocks = 0
+    per_chunk._skipped_chunks = lambda chunks: np.zeros(len(chunks), dtype=bool)
+    passed = []
+    real = fast._skipped_chunks
+    fast._skipped_chunks = lambda chunks: passed.append(real(chunks)) or passed[-1]
     for i in range(0, x.shape[0], 9600):
-        block = Block(x=x[i : i + 9600], raw=None, start=i)
-        whole_blocks += fast._all_skippable(block, block.x)
         for m in (fast, full, per_chunk):
             m.feed(Block(x=x[i : i + 9600], raw=None, start=i))
-    assert whole_blocks >= 10  # the block-level path was really taken
+    assert sum(int(p.sum()) for p in passed) >= 40  # the block-wide test really skipped chunks
     assert fast.result().to_dict() == full.result().to_dict() == per_chunk.result().to_dict()
     assert fast.seen == full.seen == per_chunk.seen
     assert fast.computed == per_chunk.computed < full.computed

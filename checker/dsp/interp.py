@@ -251,7 +251,11 @@ class ChunkStream:
     def push(self, x: np.ndarray) -> Iterator[tuple[int, np.ndarray]]:
         """Append a block; yield (chunk index, window (channels, window) float32) when ready."""
         if x.shape[0]:
-            self.buf = np.concatenate([self.buf, x.T.astype(np.float32)], axis=1)
+            kept = self.buf.shape[1]
+            buf = np.empty((self.channels, kept + x.shape[0]), dtype=np.float32)
+            buf[:, :kept] = self.buf
+            np.copyto(buf[:, kept:], x.T, casting="same_kind")  # float64 -> float32 in one pass
+            self.buf = buf
             self.frames_in += x.shape[0]
         end = self.buf_start + self.buf.shape[1]
         while self._chunk_start(self.next_chunk) + self.window + self.holdback <= end:

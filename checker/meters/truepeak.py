@@ -61,7 +61,9 @@ offset (2.54), F = 1.0012 the largest gain of the final sinusoid fit and
 E = 0.05 dB the edge-dominance margin (so a skipped chunk cannot change the
 edge decision either): an exact bound (the margin covers float32 rounding), so
 the result equals the unskipped computation bit for bit
-(``TruePeakMeter(..., skip=False)`` to check).
+(``TruePeakMeter(..., skip=False)`` to check). The test runs for all of a block's
+chunks at once (one reduction over their windows, against the maxima as they stand
+before the block); only chunks that some channel cannot skip reach the per-chunk code.
 """
 
 from __future__ import annotations
@@ -195,35 +197,36 @@ class TruePeakMeter:
         x = block.x
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
-        if self.skip and x.shape[0] and self._all_skippable(block, x):
-            chunks = 0
-            for _ in self.stream.push(x):  # every chunk would be skipped: only count them
-                chunks += 1
-            self.seen += chunks * self.channels
-            if chunks:
+        chunks = list(self.stream.push(x))  # views of one buffer, valid until the next push
+        skipped = self._skipped_chunks(chunks) if self.skip and chunks else None
+        for i, (j, window) in enumerate(chunks):
+            if skipped is not None and skipped[i]:
+                self.seen += self.channels
                 self.state.in_run[:] = False
-            return
-        for j, window in self.stream.push(x):
+                continue
             self._chunk(self.state, j, window, None)
 
-    def _all_skippable(self, block: Block, x: np.ndarray) -> bool:
-        """True when every chunk this block completes would be skipped on every channel.
-
-        Those chunks' windows lie within the stream's kept tail and this block, so the
-        per-channel maximum over both bounds each chunk's own (taken, like the chunks',
-        on the float32 samples: rounding is monotonic), and the skip test below is the
-        one _chunk applies per chunk."""
-        xt = block.xt if x is block.x else np.ascontiguousarray(x.T)
-        peak = np.maximum(xt.max(axis=1), -xt.min(axis=1)).astype(np.float32)
-        tail = self.stream.buf
-        if tail.shape[1]:
-            peak = np.maximum(peak, np.maximum(tail.max(axis=1), -tail.min(axis=1)))
-        reach = peak.astype(np.float64) * (self.tap_bound * (1.0 + BOUND_MARGIN))
-        st = self.state
-        return bool(
-            np.all(reach * self.fine_bound * self.edge_dominance <= st.best)
-            and np.all(reach <= self.ceiling_amp)
+    def _skipped_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> np.ndarray:
+        """Per chunk: True when _chunk would skip it on every channel. Tested for all of a
+        block's chunks at once (one reduction instead of one per chunk), against the running
+        maxima as they stand before the block: they only grow, so every chunk passed here
+        is one _chunk skips too, and the result is the same bit for bit."""
+        first = chunks[0][1]
+        count, width = len(chunks), first.shape[1]
+        size = first.strides[1]
+        hop = self.stream.step * size
+        if chunks[-1][1].ctypes.data != first.ctypes.data + (count - 1) * hop:
+            return np.zeros(count, dtype=bool)  # not evenly spaced views: test per chunk
+        windows = np.lib.stride_tricks.as_strided(
+            first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
         )
+        peaks = np.maximum(windows.max(axis=2), -windows.min(axis=2)).astype(np.float64)
+        reach = peaks * (self.tap_bound * (1.0 + BOUND_MARGIN))
+        st = self.state
+        ok = (reach * self.fine_bound * self.edge_dominance <= st.best[:, None]) & (
+            reach <= self.ceiling_amp
+        )
+        return ok.all(axis=0)
 
     def _edge_masks(
         self, base: int, lo: int, hi: int, last_frame: int | None
