@@ -24,7 +24,7 @@
 #endif
 
 /* Version of the functions' signatures; native.py refuses a library with another one. */
-EXPORT int64_t dc_abi_version(void) { return 6; }
+EXPORT int64_t dc_abi_version(void) { return 7; }
 
 /* ------------------------------------------------------------------------ reading */
 
@@ -261,7 +261,13 @@ CLONES EXPORT void dc_channel_stats(const double *x, const int32_t *raw, int64_t
     int64_t start = 0;
     for (int64_t k = 0; k <= ncuts; k++) {
         int64_t end = k < ncuts ? cuts[k] : n;
-        if (zero[k] > 0 && ch > 1) {
+        if (zero[k] > 0 && ch == 2) {
+            const double *x0 = x, *x1 = x + n;
+            int64_t count = 0;
+            for (int64_t t = start; t < end; t++)
+                count += (x0[t] == 0.0) & (x1[t] == 0.0);
+            zero[k] = count;
+        } else if (zero[k] > 0 && ch > 2) {
             int64_t count = 0;
             for (int64_t t = start; t < end; t++) {
                 int nonzero = 0;
@@ -293,40 +299,55 @@ CLONES EXPORT void dc_pair_products(const double *x, int64_t n, const int64_t *f
 }
 
 /* Frame scan for the silence meter over x (ch x n): a frame's level is its largest |x|; it is
- * loud when level >= threshold, zero when level == 0. out = first loud, last loud, first
- * non-zero, last non-zero frame (-1 when none). level (n doubles) is scratch space; when
- * some frame is zero, zero_mask[t] = 1 for zero frames and 0 otherwise (else untouched).
- * Returns the number of zero frames. */
-CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, double threshold,
-                             int64_t *out, uint8_t *zero_mask, double *level)
+ * loud when level >= threshold, zero when every channel is exactly 0. out = first loud,
+ * last loud, first non-zero, last non-zero frame (-1 when none); found by scanning in from
+ * both ends (they usually stop at once). When some frame is zero, zero_mask[t] = 1 for zero
+ * frames and 0 otherwise (else untouched). Returns the number of zero frames. */
+static inline double frame_level(const double *x, int64_t ch, int64_t n, int64_t t)
 {
-    for (int64_t t = 0; t < n; t++)
-        level[t] = fabs(x[t]);
+    double level = fabs(x[t]);
     for (int64_t c = 1; c < ch; c++) {
-        const double *xc = x + c * n;
-        for (int64_t t = 0; t < n; t++) {
-            double a = fabs(xc[t]);
-            level[t] = a > level[t] ? a : level[t];
-        }
+        double a = fabs(x[c * n + t]);
+        level = a > level ? a : level;
     }
+    return level;
+}
+
+CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, double threshold,
+                                    int64_t *out, uint8_t *zero_mask)
+{
     int64_t zeros = 0;
-    for (int64_t t = 0; t < n; t++)
-        zeros += level[t] == 0.0;
-    if (zeros)
+    if (ch == 1) {
         for (int64_t t = 0; t < n; t++)
-            zero_mask[t] = level[t] == 0.0;
+            zeros += x[t] == 0.0;
+    } else if (ch == 2) {
+        const double *x0 = x, *x1 = x + n;
+        for (int64_t t = 0; t < n; t++)
+            zeros += (x0[t] == 0.0) & (x1[t] == 0.0);
+    } else {
+        for (int64_t t = 0; t < n; t++)
+            zeros += frame_level(x, ch, n, t) == 0.0;
+    }
+    if (zeros && ch == 2) {
+        const double *x0 = x, *x1 = x + n;
+        for (int64_t t = 0; t < n; t++)
+            zero_mask[t] = (x0[t] == 0.0) & (x1[t] == 0.0);
+    } else if (zeros) {
+        for (int64_t t = 0; t < n; t++)
+            zero_mask[t] = frame_level(x, ch, n, t) == 0.0;
+    }
     int64_t t;
     out[0] = out[1] = out[2] = out[3] = -1;
-    for (t = 0; t < n && !(level[t] >= threshold); t++) {}
+    for (t = 0; t < n && !(frame_level(x, ch, n, t) >= threshold); t++) {}
     if (t < n) {
         out[0] = t;
-        for (t = n - 1; !(level[t] >= threshold); t--) {}
+        for (t = n - 1; !(frame_level(x, ch, n, t) >= threshold); t--) {}
         out[1] = t;
     }
-    for (t = 0; t < n && level[t] == 0.0; t++) {}
-    if (t < n) {
+    if (zeros < n) {
+        for (t = 0; frame_level(x, ch, n, t) == 0.0; t++) {}
         out[2] = t;
-        for (t = n - 1; level[t] == 0.0; t--) {}
+        for (t = n - 1; frame_level(x, ch, n, t) == 0.0; t--) {}
         out[3] = t;
     }
     return zeros;

@@ -22,7 +22,6 @@ from __future__ import annotations
 import ctypes
 import importlib.machinery
 import os
-import threading
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -30,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 ENV = "DELIVERYCHECK_KERNELS"
-ABI_VERSION = 6
+ABI_VERSION = 7
 
 _P = ctypes.c_void_p
 _I = ctypes.c_int64
@@ -42,7 +41,7 @@ _SIGNATURES = {
     "dc_kweight_sums": (None, [_P, _I, _P, _I, _P, _P, _P, _P, _I, _P]),
     "dc_channel_stats": (None, [_P, _P, _I, _I, _P, _I, _P, _P, _P, _P, _P, _P, _P, _I]),
     "dc_pair_products": (None, [_P, _I, _P, _P, _I, _P]),
-    "dc_frame_scan": (_I, [_P, _I, _I, _D, _P, _P, _P]),
+    "dc_frame_scan": (_I, [_P, _I, _I, _D, _P, _P]),
 }
 
 
@@ -103,17 +102,6 @@ def _need(a: np.ndarray, dtype: type, ndim: int, what: str) -> None:
             f"native.{what}: got {a.dtype} {a.shape} contiguous={a.flags.c_contiguous} "
             f"(expected C-contiguous {np.dtype(dtype)} with {ndim} dims)"
         )
-
-
-_local = threading.local()
-
-
-def _scratch(n: int) -> np.ndarray:
-    """A per-thread float64 work buffer of at least n values (reused: no page faults per call)."""
-    buf = getattr(_local, "buf", None)
-    if buf is None or buf.size < n:
-        buf = _local.buf = np.empty(max(n, 1))
-    return buf
 
 
 def _ptr(a: np.ndarray | None) -> int | None:
@@ -226,9 +214,7 @@ def frame_scan(
     if zero_mask.size < n:
         raise ValueError(f"native.frame_scan: zero_mask holds {zero_mask.size} < {n} frames")
     out = np.empty(4, dtype=np.int64)
-    zeros = _lib.dc_frame_scan(
-        _ptr(xt), ch, n, threshold, _ptr(out), _ptr(zero_mask), _ptr(_scratch(n))
-    )
+    zeros = _lib.dc_frame_scan(_ptr(xt), ch, n, threshold, _ptr(out), _ptr(zero_mask))
     return int(zeros), int(out[0]), int(out[1]), int(out[2]), int(out[3])
 
 
