@@ -26,7 +26,7 @@ import math
 import os
 import queue
 import threading
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -187,7 +187,11 @@ def auto_block_frames(info: StreamInfo) -> int:
 
 
 def read_blocks(
-    path: str, block_frames: int | None = DEFAULT_BLOCK_FRAMES, *, read_ahead: bool = False
+    path: str,
+    block_frames: int | None = DEFAULT_BLOCK_FRAMES,
+    *,
+    read_ahead: bool = False,
+    prepare: list[Callable[[Block], None]] | None = None,
 ) -> tuple[StreamInfo, Iterator[Block]]:
     """Open ``path`` and return its StreamInfo and an iterator of Blocks.
 
@@ -199,6 +203,10 @@ def read_blocks(
     second thread while the caller works on this one (libsndfile and numpy's
     conversions run without the GIL); for a lone measurement, where a core
     would otherwise sit idle. The blocks and their order are the same.
+
+    ``prepare``: functions called with every block, in order, right after it is
+    decoded (in the read-ahead thread when there is one) and before the caller
+    sees it; the list may be filled after this call, before iterating.
     """
     if block_frames is not None and block_frames < 1:
         raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
@@ -217,9 +225,10 @@ def read_blocks(
         raise
     if block_frames is None:
         block_frames = auto_block_frames(info)
+    hooks = prepare if prepare is not None else []
     if read_ahead:
-        return info, _iterate_ahead(handle, info, block_frames)
-    return info, _iterate(handle, info, block_frames)
+        return info, _iterate_ahead(handle, info, block_frames, hooks)
+    return info, _iterate(handle, info, block_frames, hooks)
 
 
 class _Decoder:
@@ -286,20 +295,26 @@ class _Decoder:
         return block
 
 
-def _iterate(handle: sf.SoundFile, info: StreamInfo, block_frames: int) -> Iterator[Block]:
+def _iterate(
+    handle: sf.SoundFile, info: StreamInfo, block_frames: int, hooks: list
+) -> Iterator[Block]:
     decoder = _Decoder(handle, info, block_frames, slots=1)
     try:
         with handle:
             while (block := decoder.next(0)) is not None:
+                for hook in hooks:
+                    hook(block)
                 yield block
     finally:
         handle.close()
 
 
-def _iterate_ahead(handle: sf.SoundFile, info: StreamInfo, block_frames: int) -> Iterator[Block]:
-    """Two buffer sets: a thread decodes block k + 1 into one while the caller holds
-    block k in the other; it refills a set only once the caller has asked for the
-    block after the one held there."""
+def _iterate_ahead(
+    handle: sf.SoundFile, info: StreamInfo, block_frames: int, hooks: list
+) -> Iterator[Block]:
+    """Two buffer sets: a thread decodes block k + 1 into one (and runs the prepare
+    hooks on it) while the caller holds block k in the other; it refills a set only
+    once the caller has asked for the block after the one held there."""
     decoder = _Decoder(handle, info, block_frames, slots=2)
     ready: queue.Queue = queue.Queue()
     free = threading.Semaphore(0)  # released each time the caller moves past a block
@@ -313,6 +328,9 @@ def _iterate_ahead(handle: sf.SoundFile, info: StreamInfo, block_frames: int) ->
                 if stop.is_set():
                     return
                 block = decoder.next(i % 2)
+                if block is not None:
+                    for hook in hooks:
+                        hook(block)
                 ready.put((block, None))
                 if block is None:
                     return

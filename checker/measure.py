@@ -206,18 +206,25 @@ def measure(
 ) -> Measurement:
     """Measure one file in a single streaming pass. Raises AudioReadError.
 
-    ``read_ahead``: decode in a second thread, overlapping the meters (for a lone
-    measurement with a core to spare; batch workers keep one thread each)."""
+    ``read_ahead``: decode in a second thread, overlapping the meters, and run the
+    meters' prepare steps there (for a lone measurement with a core to spare; batch
+    workers keep one thread each). The values are the same either way."""
     options = options or MeasureOptions()
     before = _stat(str(path))
+    hooks: list = []  # the meters' prepare steps, filled once the meters exist
     try:
-        info, blocks = read_blocks(str(path), options.block_frames, read_ahead=read_ahead)
+        info, blocks = read_blocks(
+            str(path), options.block_frames, read_ahead=read_ahead, prepare=hooks
+        )
     except AudioReadError as exc:  # say what the WAV header reader saw, if anything
         raise open_error(str(path), exc) from None
     header = read_wav_header(str(path))  # header only (seeks past the audio); None if not WAV
     info = check_header(str(path), info, header)
     layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
+    # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
+    # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
+    hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
     # Meters that count NaN/Inf (class attribute sees_nonfinite = True) get the untouched
     # block; every other meter then gets those samples as 0.
     counting = [m for m in meters if getattr(m, "sees_nonfinite", False)]

@@ -20,7 +20,7 @@ import soundfile as sf
 from meterkit import run_meter
 from numpy.testing import assert_allclose, assert_array_equal
 
-from checker.audio import INT32_SCALE, StreamInfo
+from checker.audio import INT32_SCALE, Block, StreamInfo
 from checker.dsp import native
 from checker.dsp.iir import sosfilt_rows
 from checker.dsp.kweighting import k_weighting_sos
@@ -267,7 +267,6 @@ def test_dropout_at_a_block_edge_on_both_paths(gap):
 def test_levels_and_channels_share_one_pass_per_block(monkeypatch):
     # checker.meters.blockstats: the first meter computes the block's statistics, the second
     # reads them from block.memo; a cleaned copy (NaN/Inf zeroed) is never shared.
-    from checker.audio import Block
     from checker.meters import blockstats
 
     calls = []
@@ -289,3 +288,43 @@ def test_levels_and_channels_share_one_pass_per_block(monkeypatch):
     nan_block = Block(f, None, 0)
     levels.feed(nan_block)  # counts the NaN, measures a cleaned copy
     assert nan_block.memo == {}
+
+
+def _run_prepared(meter_cls, info, x, raw, sizes, prepare: bool):
+    """Feed (x, raw) in blocks of the given sizes (cycled), calling prepare() on each block
+    first when asked, as measure() does in its reader."""
+    meter = meter_cls(info, default_layout(info.channels), MeasureOptions())
+    start, i = 0, 0
+    while start < x.shape[0]:
+        stop = min(x.shape[0], start + sizes[i % len(sizes)])
+        block = Block(np.ascontiguousarray(x[start:stop].T).T, None, start)
+        if raw is not None:
+            block = Block(block.x, np.ascontiguousarray(raw[start:stop].T).T, start)
+        if prepare:
+            meter.prepare(block)
+        meter.feed(block)
+        start, i = stop, i + 1
+    return meter.result()
+
+
+@needs_kernels
+@pytest.mark.parametrize("meter_cls", [LoudnessMeter, LevelsMeter, SilenceMeter])
+@pytest.mark.parametrize("sizes", [(48_000,), (4_800, 1_000, 9_999), (100_000, 3)])
+def test_prepare_then_feed_gives_the_same_results(meter_cls, sizes):
+    # measure() runs each meter's prepare() on a block as soon as it is decoded (in the
+    # read-ahead thread when there is one); feed() must then give what it gives alone.
+    raw, x = _programme(6.0, 2, 48_000, seed=11)
+    info = _info(2)
+    with_prepare = _run_prepared(meter_cls, info, x, raw, sizes, prepare=True)
+    alone = _run_prepared(meter_cls, info, x, raw, sizes, prepare=False)
+    _same(with_prepare.to_dict(), alone.to_dict())
+
+
+@needs_kernels
+def test_prepare_fills_the_block_memo():
+    raw, x = _programme(1.0, 2, 48_000, seed=12)
+    block = Block(np.ascontiguousarray(x.T).T, np.ascontiguousarray(raw.T).T, 0)
+    for cls in (LoudnessMeter, LevelsMeter, SilenceMeter):
+        cls(_info(2), default_layout(2), MeasureOptions()).prepare(block)
+    assert {"loudness", "frame_scan"} <= set(block.memo)
+    assert any(key[0] == "sample_stats" for key in block.memo if isinstance(key, tuple))

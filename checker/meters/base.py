@@ -8,6 +8,13 @@ every block in order, and gives one result at the end:
         meter.feed(block)        # Block: x (frames, channels) float64, raw int32|None, start
     result = meter.result()      # has .to_dict() -> flat {unit_suffixed_name: value}
 
+Optional ``prepare(block)``: measure() calls it on every block, in order, as soon as the
+block is decoded, before any feed() of that block; with read-ahead that happens in the
+reader thread, one block ahead of feed(). It may only do work on the block's own samples
+and on state that nothing else touches (e.g. the K-weighting filter state), should be
+GIL-free compiled work (else it only moves time between threads), and leaves its results
+in ``block.memo`` for feed(); feed() must give the same result when prepare() never ran.
+
 Rules every meter follows (tested for each one):
 - feed() accepts any frame count, including 0, and results do not depend on how
   the signal was split into blocks (exact for peaks and counts, ~1e-9 for sums).

@@ -215,6 +215,13 @@ class LevelsMeter:
         self.native = native.enabled()
 
     # ------------------------------------------------------------------ feed
+    def prepare(self, block: Block) -> None:
+        """Compute the block's shared sample statistics (checker.meters.blockstats) as soon as
+        it is decoded (measure() may run this in the read-ahead thread); integer PCM only,
+        whose samples are always finite."""
+        if self.native and block.raw is not None and block.frames:
+            sample_stats(block, block.xt, channels_first(block.raw), self.seg_len, shared=True)
+
     def feed(self, block: Block) -> None:
         n = block.frames
         if n == 0:

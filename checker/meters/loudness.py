@@ -227,45 +227,73 @@ class LoudnessMeter:
 
     # -- streaming -------------------------------------------------------------------------
 
+    def _substeps(self, start: int, n: int, done: int) -> tuple[int, np.ndarray]:
+        """(sub-steps completed by frame start + n, where those after ``done`` end inside the
+        block): 1 ms sub-steps j end at floor(j * fs / 1000)."""
+        last = ((start + n + 1) * 1000 - 1) // self.rate
+        if last <= done:
+            return done, NO_CUTS
+        js = np.arange(done + 1, last + 1, dtype=np.int64)
+        return last, _boundaries(js, self.rate, 1000) - start  # rising, 1 <= cuts <= n
+
+    def prepare(self, block: Block) -> None:
+        """K-weighting and the 1 ms sums of this block, for feed() (compiled path only; run
+        by measure() as each block is decoded, possibly in the read-ahead thread: only this
+        step touches the filter state then)."""
+        n = block.frames
+        if not self.native or n == 0 or self.active.size == 0:
+            return
+        start = block.start
+        last, cuts = self._substeps(start, n, ((start + 1) * 1000 - 1) // self.rate)
+        pieces = native.kweight_sums(block.xt, self.rows, self.sos, self.zi, self.weights, cuts)
+        block.memo["loudness"] = (start, last, cuts, pieces)
+
     def feed(self, block: Block) -> None:
         n = block.frames
         if n == 0:
             return
         start = self.frames
-        end = start + n
-        self.frames = end
-        # 1 ms sub-steps that end inside (start, end]: j with floor(j * fs / 1000) <= end.
-        last = ((end + 1) * 1000 - 1) // self.rate
-        cuts = NO_CUTS
-        if last > self.sub_count:
-            js = np.arange(self.sub_count + 1, last + 1, dtype=np.int64)
-            cuts = _boundaries(js, self.rate, 1000) - start  # 1 <= cuts, strictly increasing, <= n
-        if self.active.size == 0:
-            pieces = np.zeros(cuts.size + 1)
-        elif self.native:  # filtered and summed per sub-step in one compiled pass
-            pieces = native.kweight_sums(block.xt, self.rows, self.sos, self.zi, self.weights, cuts)
+        self.frames = start + n
+        prepared = block.memo.get("loudness")
+        if prepared is not None:
+            if prepared[0] != start:
+                raise RuntimeError(
+                    f"LoudnessMeter: prepared block starts at frame {prepared[0]} "
+                    f"(expected {start}: blocks in file order)"
+                )
+            _, last, cuts, pieces = prepared
         else:
-            # A channel-major copy of the channels that count, filtered in place.
-            xt = block.x.T
-            y = np.array(xt if self.all_active else xt[self.active], dtype=np.float64, order="C")
-            if block.raw is None and not np.isfinite(y).all():
-                y[~np.isfinite(y)] = 0.0  # NaN/Inf in a float file (counted by the levels meter)
-            sosfilt_rows(self.sos, y, self.zi)
-            np.multiply(y, y, out=y)
-            p = self.weights @ y
-            starts = np.concatenate(([0], cuts))  # cuts rise strictly; only the last may be n
-            if starts[-1] == n:
-                pieces = np.append(np.add.reduceat(p, starts[:-1]), 0.0)
-            else:
-                pieces = np.add.reduceat(p, starts)
+            last, cuts = self._substeps(start, n, self.sub_count)
+            pieces = self._pieces(block, cuts)
         if cuts.size == 0:
             self.partial += float(pieces[0])
+            self.sub_count = last
             return
         sums = pieces[:-1]  # the last piece [cuts[-1], n) starts the next sub-step
         sums[0] += self.partial
         self.partial = float(pieces[-1])
         self.sub_count = last
         self._push_1ms(sums)
+
+    def _pieces(self, block: Block, cuts: np.ndarray) -> np.ndarray:
+        """K-weighted power of the block summed over the pieces cut at ``cuts``."""
+        n = block.frames
+        if self.active.size == 0:
+            return np.zeros(cuts.size + 1)
+        if self.native:  # filtered and summed per sub-step in one compiled pass
+            return native.kweight_sums(block.xt, self.rows, self.sos, self.zi, self.weights, cuts)
+        # A channel-major copy of the channels that count, filtered in place.
+        xt = block.x.T
+        y = np.array(xt if self.all_active else xt[self.active], dtype=np.float64, order="C")
+        if block.raw is None and not np.isfinite(y).all():
+            y[~np.isfinite(y)] = 0.0  # NaN/Inf in a float file (counted by the levels meter)
+        sosfilt_rows(self.sos, y, self.zi)
+        np.multiply(y, y, out=y)
+        p = self.weights @ y
+        starts = np.concatenate(([0], cuts))  # cuts rise strictly; only the last may be n
+        if starts[-1] == n:
+            return np.append(np.add.reduceat(p, starts[:-1]), 0.0)
+        return np.add.reduceat(p, starts)
 
     def _push_1ms(self, sums: np.ndarray) -> None:
         self.momentary_max.push(sums)

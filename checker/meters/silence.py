@@ -76,18 +76,30 @@ class SilenceMeter:
         self.native = native.enabled()
         self.mask = np.empty(0, dtype=np.uint8)  # reused zero-frame mask (compiled path)
 
+    def prepare(self, block: Block) -> None:
+        """The frame scan of an integer PCM block (always finite), as soon as it is decoded
+        (measure() may run this in the read-ahead thread, so it gets a mask of its own)."""
+        if self.native and block.raw is not None and block.frames:
+            mask = np.empty(block.frames, dtype=np.uint8)
+            block.memo["frame_scan"] = (native.frame_scan(block.xt, self.threshold, mask), mask)
+
     def feed(self, block: Block) -> None:
         n = block.frames
         if n == 0:
             return
         xt = channels_first(finite_x(block))
         start = block.start
-        if self.native:
-            if self.mask.size < n:
-                self.mask = np.empty(n, dtype=np.uint8)
-            zeros, first, last, first_nz, last_nz = native.frame_scan(xt, self.threshold, self.mask)
+        prepared = block.memo.get("frame_scan") if block.raw is not None else None
+        if prepared is not None or self.native:
+            if prepared is not None:
+                scan, mask = prepared
+            else:
+                if self.mask.size < n:
+                    self.mask = np.empty(n, dtype=np.uint8)
+                scan, mask = native.frame_scan(xt, self.threshold, self.mask), self.mask
+            zeros, first, last, first_nz, last_nz = scan
             # the mask is only written when the block has zero frames
-            zero = self.mask[:n].view(bool) if zeros else np.zeros(n, dtype=bool)
+            zero = mask[:n].view(bool) if zeros else np.zeros(n, dtype=bool)
             loud = (first, last) if first >= 0 else (None, None)
             nonzero = (first_nz, last_nz) if first_nz >= 0 else (None, None)
         else:
