@@ -109,8 +109,7 @@ class ChannelsMeter:
             self.products += native.pair_products(xt, self.first, self.second)
         elif self.channels <= MAX_ALL_PAIRS_CHANNELS:
             gram = xt @ xt.T  # squares on the diagonal, products off it
-            if not self.native:
-                self.squares += np.diagonal(gram)
+            self.squares += np.diagonal(gram)
             self.products += gram[self.first, self.second]
         else:
             self.products += np.einsum("ij,ij->i", xt[self.first], xt[self.second])

@@ -89,25 +89,7 @@ class SilenceMeter:
             return
         xt = channels_first(finite_x(block))
         start = block.start
-        prepared = block.memo.get("frame_scan") if block.raw is not None else None
-        if prepared is not None or self.native:
-            if prepared is not None:
-                scan, mask = prepared
-            else:
-                if self.mask.size < n:
-                    self.mask = np.empty(n, dtype=np.uint8)
-                scan, mask = native.frame_scan(xt, self.threshold, self.mask), self.mask
-            zeros, first, last, first_nz, last_nz = scan
-            # the mask is only written when the block has zero frames
-            zero = mask[:n].view(bool) if zeros else np.zeros(n, dtype=bool)
-            loud = (first, last) if first >= 0 else (None, None)
-            nonzero = (first_nz, last_nz) if first_nz >= 0 else (None, None)
-        else:
-            level = np.abs(xt[0]) if xt.shape[0] == 1 else np.abs(xt).max(axis=0)
-            loud = _first_last(level >= self.threshold)
-            zero = level == 0.0
-            nonzero = _first_last(~zero)
-            zeros = -1  # not counted
+        zeros, loud, nonzero, zero = self._scan(block, xt)
         first, last = loud
         if first is not None:
             if self.first_loud is None:
@@ -132,6 +114,27 @@ class SilenceMeter:
                 self.dropout_first, starts[hit], self.options.max_positions
             )
         self.frames += n
+
+    def _scan(self, block: Block, xt: np.ndarray) -> tuple[int, tuple, tuple, np.ndarray]:
+        """(zero frames, -1 when not counted; (first, last) loud frame; (first, last) non-zero
+        frame, (None, None) when none; (frames,) bool mask of zero frames) of the block,
+        from prepare(), the compiled scan or numpy."""
+        n = xt.shape[1]
+        prepared = block.memo.get("frame_scan")
+        if prepared is None and self.native:
+            if self.mask.size < n:
+                self.mask = np.empty(n, dtype=np.uint8)
+            prepared = (native.frame_scan(xt, self.threshold, self.mask), self.mask)
+        if prepared is None:
+            level = np.abs(xt[0]) if xt.shape[0] == 1 else np.abs(xt).max(axis=0)
+            zero = level == 0.0
+            return -1, _first_last(level >= self.threshold), _first_last(~zero), zero
+        (zeros, first, last, first_nz, last_nz), mask = prepared
+        # the mask is only written when the block has zero frames
+        zero = mask[:n].view(bool) if zeros else np.zeros(n, dtype=bool)
+        loud = (first, last) if first >= 0 else (None, None)
+        nonzero = (first_nz, last_nz) if first_nz >= 0 else (None, None)
+        return zeros, loud, nonzero, zero
 
     def result(self) -> SilenceResult:
         rate = self.rate
