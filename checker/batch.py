@@ -30,7 +30,14 @@ from checker.progress import Progress
 from checker.results import FileResult, RunInfo
 from checker.store import FileIdentity, Store, open_store
 from checker.verdict import ERROR
-from checker.workers import DEFAULT_MEMORY_MB, DaskPool, LocalPool, Task
+from checker.workers import (
+    DEFAULT_MEMORY_MB,
+    DaskPool,
+    LocalPool,
+    Task,
+    usable_cores,
+    worker_measure_fn,
+)
 
 
 class Interrupted(Exception):
@@ -44,10 +51,7 @@ class Interrupted(Exception):
 
 
 def default_jobs() -> int:
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not Linux
-        return max(1, os.cpu_count() or 1)
+    return usable_cores()
 
 
 def measure_options(profile) -> MeasureOptions:
@@ -180,11 +184,11 @@ def run_batch(
         if cluster:
             pool = DaskPool(cluster, memory_mb=memory_mb, measure_fn=measure_fn)
         else:
+            workers = min(jobs, max(1, len(tasks)))
+            if measure_fn is None and workers < jobs:  # fewer files than jobs: cores to spare
+                measure_fn = worker_measure_fn(workers, min(jobs, usable_cores()))
             pool = LocalPool(
-                min(jobs, max(1, len(tasks))),
-                memory_mb=memory_mb,
-                measure_fn=measure_fn,
-                timeout_s=timeout_s,
+                workers, memory_mb=memory_mb, measure_fn=measure_fn, timeout_s=timeout_s
             )
         outcomes = pool.run(tasks, options)
         try:

@@ -208,7 +208,8 @@ def measure(
 
     ``read_ahead``: decode in a second thread, overlapping the meters, and run the
     meters' prepare steps there (for a lone measurement with a core to spare; batch
-    workers keep one thread each). The values are the same either way."""
+    workers keep one thread each unless there are fewer files than jobs). The values are
+    the same either way."""
     options = options or MeasureOptions()
     before = _stat(str(path))
     hooks: list = []  # the meters' prepare steps, filled once the meters exist

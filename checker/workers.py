@@ -19,6 +19,7 @@ Workers never write anything; the parent alone writes the store.
 from __future__ import annotations
 
 import contextlib
+import functools
 import math
 import multiprocessing as mp
 import os
@@ -62,6 +63,23 @@ def time_limit_s(task: Task, duration_s: float | None, fixed_s: float | None = N
     if duration_s is None or not math.isfinite(duration_s):
         duration_s = task.size_bytes * SECONDS_PER_BYTE_UNKNOWN
     return DEFAULT_TIME_BASE_S + DEFAULT_TIME_PER_AUDIO_S * duration_s
+
+
+def usable_cores() -> int:
+    """Cores this process may run on."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def worker_measure_fn(workers: int, cores: int) -> Callable:
+    """What a local worker measures with: with at least two of the ``cores`` it may use per
+    worker, each file uses a second thread (read-ahead and the meters' prepare steps, as
+    ``deliverycheck measure`` does); else one thread each, so workers do not compete."""
+    from checker.measure import measure
+
+    return functools.partial(measure, read_ahead=True) if cores >= 2 * workers else measure
 
 
 def measure_task(path: str, options: MeasureOptions, measure_fn: Callable) -> Outcome:

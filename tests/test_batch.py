@@ -289,3 +289,20 @@ def test_dask_local_cluster_matches_process_pool(tmp_path):
     )
     assert [r.to_dict(timeline=True) for r in dask] == [r.to_dict(timeline=True) for r in local]
     assert {r.status for r in dask} == {PASS, FAIL, ERROR}
+
+
+def test_workers_use_a_second_thread_only_with_cores_to_spare():
+    # run_batch asks for it only when there are fewer files than jobs (a long master checked
+    # alone): two of the cores allowed per worker give read-ahead and the meters' prepare
+    # steps, as `deliverycheck measure` does; fewer: one thread each.
+    import functools
+
+    from checker.measure import measure
+    from checker.workers import worker_measure_fn
+
+    spare = worker_measure_fn(1, cores=2)
+    assert isinstance(spare, functools.partial) and spare.keywords == {"read_ahead": True}
+    assert spare.func is measure
+    assert worker_measure_fn(2, cores=2) is measure
+    assert worker_measure_fn(3, cores=4) is measure
+    assert isinstance(worker_measure_fn(2, cores=4), functools.partial)
