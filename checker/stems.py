@@ -106,6 +106,30 @@ class SetMeasurement(FlatValues):
     stem_paths: tuple[str, ...] = field(default_factory=tuple)
     mix_path: str | None = None
 
+    def to_dict(self) -> dict[str, Any]:
+        """Plain data (for the store); from_dict() reads it back."""
+        return {
+            "path": self.path,
+            "name": self.name,
+            "values": self.values,
+            "findings": list(self.findings),
+            "errors": list(self.errors),
+            "stem_paths": list(self.stem_paths),
+            "mix_path": self.mix_path,
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> SetMeasurement:
+        return cls(
+            path=d["path"],
+            name=d["name"],
+            values=dict(d["values"]),
+            findings=tuple(d.get("findings") or ()),
+            errors=tuple(d.get("errors") or ()),
+            stem_paths=tuple(d.get("stem_paths") or ()),
+            mix_path=d.get("mix_path"),
+        )
+
     def as_measurement(self) -> Measurement:
         """The same values as a Measurement, for rules, the store and the reports."""
         findings = tuple(self.errors) + tuple(self.findings)

@@ -28,7 +28,7 @@ from checker.serial import dumps, from_json_safe
 from checker.timeline import Timeline
 from checker.verdict import Verdict
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2  # 2: stem_sets
 STORE_NAME = "results.sqlite"
 
 _SCHEMA = """
@@ -68,6 +68,12 @@ CREATE TABLE IF NOT EXISTS runs (
     finished_at TEXT,
     profile_name TEXT NOT NULL,
     run_json TEXT NOT NULL
+);
+CREATE TABLE IF NOT EXISTS stem_sets (
+    set_key TEXT PRIMARY KEY,
+    folder TEXT NOT NULL,
+    set_json TEXT NOT NULL,
+    measured_at TEXT NOT NULL
 );
 CREATE TABLE IF NOT EXISTS verdicts (
     run_id TEXT NOT NULL REFERENCES runs(run_id),
@@ -135,9 +141,10 @@ class Store:
             for statement in _SCHEMA.split(";"):
                 if statement.strip():
                     self.db.execute(statement)
+            # A store of an older schema has just gained the newer tables: say so.
             self.db.execute(
                 "INSERT INTO meta(key, value) VALUES ('schema_version', ?) "
-                "ON CONFLICT(key) DO NOTHING",
+                "ON CONFLICT(key) DO UPDATE SET value=excluded.value",
                 (str(SCHEMA_VERSION),),
             )
 
@@ -221,6 +228,26 @@ class Store:
                 ),
             )
             self._delete_error(ident, measurement.engine_version, options_key)
+
+    # -- stem sets ----------------------------------------------------------------------
+
+    def get_stem_set(self, set_key: str) -> dict | None:
+        """A stem set's stored values (SetMeasurement.to_dict()), or None."""
+        row = self.db.execute(
+            "SELECT set_json FROM stem_sets WHERE set_key=?", (set_key,)
+        ).fetchone()
+        return from_json_safe(json.loads(row[0])) if row else None
+
+    def put_stem_set(self, set_key: str, folder: str, data: dict) -> None:
+        """Store (or replace) one stem set's values; ``set_key`` names the files (identity:
+        path, size, modification time), the engine version and the options it came from."""
+        with self._tx():
+            self.db.execute(
+                "INSERT INTO stem_sets(set_key, folder, set_json, measured_at) "
+                "VALUES (?, ?, ?, ?) ON CONFLICT(set_key) DO UPDATE SET "
+                "set_json=excluded.set_json, measured_at=excluded.measured_at",
+                (set_key, folder, dumps(data), _now()),
+            )
 
     def get_error(self, ident: FileIdentity, engine_version: str, options_key: str) -> str | None:
         """A stored error that is not worth retrying (the same bytes fail the same way)."""

@@ -478,3 +478,47 @@ def test_the_set_row_is_judged_by_the_profiles_set_limits(tmp_path):
     # null residual at most -60 dB; arithmetic: m = 0.5 x, s = 2 x, |m - s| / |m| = 1.5 / 0.5 = 3
     assert_allclose(flags["null_residual_max_db"].measured, 20 * math.log10(3), rtol=0, atol=1e-6)
     assert "formats_must_match" not in flags and "length_mismatch_max_frames" not in flags
+
+
+# ------------------------------------------------------------ stored set values
+
+
+def _check_set(folder, mix, out, *extra) -> tuple[int, str]:
+    import io
+
+    from checker.cli import main
+
+    stdout, stderr = io.StringIO(), io.StringIO()
+    argv = ["check", str(folder), "--mix", mix, "--profile", "ebu-r128", "--out", str(out)]
+    code = main([*argv, "--quiet", *extra], out=stdout, err=stderr)
+    return code, stderr.getvalue()
+
+
+def test_set_values_are_stored_and_reused_until_a_file_changes(tmp_path, monkeypatch):
+    # A second check of an unchanged set (e.g. against another profile) reads its values
+    # from results.sqlite instead of the stems; a changed stem, or --fresh, reads them again.
+    import os
+
+    import checker.stems as stems_module
+
+    x = programme(4.0, RATE, channels=2, seed=21)
+    paths, mix = _write_set(tmp_path / "set", _split(x, (0.5, 0.3, 0.2)), x)
+    out = tmp_path / "out"
+    passes = []
+    real = stems_module.check_stem_set
+    monkeypatch.setattr(
+        stems_module, "check_stem_set", lambda *a, **k: passes.append(1) or real(*a, **k)
+    )
+    code, err = _check_set(tmp_path / "set", mix, out)
+    assert code in (0, 1), err
+    first = (out / "report.csv").read_text()
+    assert len(passes) == 1
+    _check_set(tmp_path / "set", mix, out)
+    assert len(passes) == 1  # unchanged: stored values
+    assert (out / "report.csv").read_text().splitlines()[1] == first.splitlines()[1]  # set row
+    _check_set(tmp_path / "set", mix, out, "--fresh")
+    assert len(passes) == 2
+    st = os.stat(paths[1])
+    os.utime(paths[1], ns=(st.st_atime_ns, st.st_mtime_ns + 1_000_000))
+    _check_set(tmp_path / "set", mix, out)
+    assert len(passes) == 3  # a stem's identity changed

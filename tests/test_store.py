@@ -54,8 +54,23 @@ def test_newer_schema_is_refused(tmp_path):
         store.db.execute(
             "UPDATE meta SET value=? WHERE key='schema_version'", (SCHEMA_VERSION + 1,)
         )
-    with pytest.raises(StoreError, match="schema_version = 2 .*expected <= 1"):
+    newer, ours = SCHEMA_VERSION + 1, SCHEMA_VERSION
+    with pytest.raises(StoreError, match=f"schema_version = {newer} .*expected <= {ours}"):
         open_store(tmp_path)
+
+
+def test_a_version_1_store_gains_the_stem_set_table(tmp_path):
+    # Schema 2 added stem_sets; a store written by schema 1 keeps its rows and gains it.
+    with open_store(tmp_path) as store:
+        store.db.execute("DROP TABLE stem_sets")
+        store.db.execute("UPDATE meta SET value='1' WHERE key='schema_version'")
+        store.put_measurement(_ident(tmp_path), OPTS, _measurement("kept"))
+    with open_store(tmp_path) as store:
+        assert store.schema_version() == SCHEMA_VERSION == 2
+        assert store.get_stem_set("no such set") is None
+        store.put_stem_set("k", "folder", {"path": "folder", "values": {"x_db": -math.inf}})
+        assert store.get_stem_set("k") == {"path": "folder", "values": {"x_db": -math.inf}}
+        assert store.counts()["measurements"] == 1
 
 
 def test_not_a_database_is_a_store_error(tmp_path):

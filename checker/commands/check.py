@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import json
 import os
 import shlex
 import sys
@@ -90,22 +91,59 @@ def stem_set_folders(args, profile) -> list[str]:
     return folders if (args.mix or has_set_limits) else []
 
 
-def add_stem_sets(folders: list[str], mix: str | None, profile, results: list) -> list:
+def stem_set_key(stem_set, options) -> str | None:
+    """What a stem set's stored values depend on: every file's identity (resolved path, size,
+    modification time), the engine version and the options; None when a file cannot be
+    stat'ed (then the set is checked again, and says why)."""
+    from checker.batch import options_key
+    from checker.measure import ENGINE_VERSION
+    from checker.store import FileIdentity
+
+    try:
+        files = [FileIdentity.of(p) for p in stem_set.stem_paths]
+        mix = FileIdentity.of(stem_set.mix_path) if stem_set.mix_path else None
+    except OSError:
+        return None
+    parts = [ENGINE_VERSION, options_key(options), stem_set.name, os.path.realpath(stem_set.folder)]
+    parts += [[f.path, f.size_bytes, f.mtime_ns] for f in files]
+    parts.append([mix.path, mix.size_bytes, mix.mtime_ns] if mix else None)
+    return json.dumps(parts)
+
+
+def measure_stem_set(stem_set, options, store=None, fresh: bool = False):
+    """The set's SetMeasurement: from the store when its files are unchanged (a re-check
+    against another profile, a resumed batch), else one lockstep pass, stored when clean."""
+    from checker.stems import SetMeasurement, check_stem_set
+
+    key = stem_set_key(stem_set, options) if store is not None else None
+    if key is not None and not fresh:
+        cached = store.get_stem_set(key)
+        if cached is not None:
+            return SetMeasurement.from_dict(cached)
+    sm = check_stem_set(
+        list(stem_set.stem_paths),
+        stem_set.mix_path,
+        options,
+        name=stem_set.name,
+        folder=stem_set.folder,
+    )
+    if key is not None and not sm.errors:  # read errors may be passing: measure again next run
+        store.put_stem_set(key, stem_set.folder, sm.to_dict())
+    return sm
+
+
+def add_stem_sets(
+    folders: list[str], mix: str | None, profile, results: list, store=None, fresh: bool = False
+) -> list:
     """Set-level rows (one per folder), each followed by its stems' own rows."""
     from checker.batch import measure_options
-    from checker.stems import check_stem_set, evaluate_set, stem_set_from_folder
+    from checker.stems import evaluate_set, stem_set_from_folder
 
     by_path = {os.path.abspath(r.path): r for r in results}
     ordered, used = [], set()
     for folder in folders:
         stem_set = stem_set_from_folder(folder, mix)
-        sm = check_stem_set(
-            list(stem_set.stem_paths),
-            stem_set.mix_path,
-            measure_options(profile),
-            name=stem_set.name,
-            folder=stem_set.folder,
-        )
+        sm = measure_stem_set(stem_set, measure_options(profile), store, fresh)
         ordered.append(evaluate_set(sm, profile))
         for stem in stem_set.stem_paths:
             row = by_path.get(os.path.abspath(stem))
@@ -198,7 +236,10 @@ def run(args, out: TextIO, err: TextIO) -> int:
         print(f"to resume, run again: {again}", file=err)
         return EXIT_INTERRUPTED
     if folders:
-        results = add_stem_sets(folders, args.mix, profile, results)
+        from checker.store import open_store
+
+        with open_store(out_dir) as store:
+            results = add_stem_sets(folders, args.mix, profile, results, store, args.fresh)
     written = write_reports(out_dir, run_info, results)
     written = {"store": out_dir / "results.sqlite", **written}
     for line in summary_lines(run_info, results, written, notes):
