@@ -392,3 +392,18 @@ def test_html_never_carries_file_text_raw(written):
     assert page.count("<script>") == 1  # the report's own script, nothing else executable
     csp = page.split('http-equiv="Content-Security-Policy" content="', 1)[1].split('"', 1)[0]
     assert csp.startswith("default-src 'none';") and "script-src 'sha256-" in csp
+
+
+def test_a_stem_set_row_shows_the_sum_under_the_file_columns(written):
+    # checker.report.html.SET_SUM_CELLS: a set row's loudness and peak cells show what was
+    # measured on the stems' sum (marked in a tooltip), never a per-file value.
+    import re
+
+    out, _, _ = written
+    page = (out / "report.html").read_text(encoding="utf-8")
+    rows = [r for r in re.findall(r"<tr data-i=.*?</tr>", page, re.S) if 'class="tag">set' in r]
+    assert len(rows) == 1
+    sums = re.findall(r"<td class=\"n\" title=\"of the stems' sum\">([^<]*)</td>", rows[0])
+    # integrated (no sum value in this set: empty, not the file default -23.0), true peak
+    # -0.4 dBTP from sum_true_peak_dbtp, sample peak (none: empty)
+    assert sums == ["", "-0.4", ""]

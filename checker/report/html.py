@@ -149,8 +149,25 @@ def common_folder(paths: Sequence[str]) -> str:
     return prefix[: cut + 1]
 
 
-def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str, Any]]:
+#: A stem set's row shows, under the file columns, what was measured on the stems' sum.
+SET_SUM_CELLS: dict[str, str] = {
+    "integrated_lufs": "sum_integrated_lufs",
+    "true_peak_dbtp": "sum_true_peak_dbtp",
+    "sample_peak_dbfs": "sum_sample_peak_dbfs",
+}
+
+
+def cell_values(r: FileResult) -> dict[str, Any]:
+    """The values a table row shows: a file's own; for a stem set, the sum's under the
+    file columns (SET_SUM_CELLS), its other set values as they are."""
     values = r.measurement.values if r.measurement else {}
+    if r.kind != "set":
+        return values
+    return {**values, **{cell: values.get(key) for cell, key in SET_SUM_CELLS.items()}}
+
+
+def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str, Any]]:
+    values = cell_values(r)
     gain = r.verdict.gain if r.verdict else None
     flags = r.verdict.flags if r.verdict else ()
     name, folder = _split_path(r.path)
@@ -183,7 +200,11 @@ def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str,
     ]
     for col in COLUMNS[2:8]:
         signed = col.unit in ("dBTP", "dBFS")
-        cells.append(f'<td class="n">{fmt_level(values.get(col.key), signed=signed)}</td>')
+        text = fmt_level(values.get(col.key), signed=signed)
+        if r.kind == "set" and col.key in SET_SUM_CELLS:
+            cells.append(f'<td class="n" title="of the stems\' sum">{text}</td>')
+        else:
+            cells.append(f'<td class="n">{text}</td>')
     cells.append(f'<td class="n">{fmt_duration(values.get("duration_s"))}</td>')
     first, _, rest = fmt.partition(" \u00b7 ")  # rate on one line, bits and channels below
     fmt_html = escape(first) + (f'<span class="sub">{escape(rest)}</span>' if rest else "")
