@@ -153,9 +153,17 @@ def _read(fh: BinaryIO, file_size: int) -> WavHeader | None:
         raw_id, size = hdr[:4], struct.unpack_from("<I", hdr, 4)[0]
         name = _chunk_name(raw_id)
         if not _plausible_id(raw_id):
-            findings.append(
-                f"unreadable chunk header at byte {pos}: the rest of the file was not read"
-            )
+            if chunks and chunks[-1].chunk_id == "data":
+                findings.append(
+                    f"{file_size - pos} bytes after the 'data' chunk ({chunks[-1].size} bytes "
+                    f"declared) are not a chunk (unreadable chunk header at byte {pos}): "
+                    "probably audio past a 'data' size that is too small; only the declared "
+                    "audio was measured"
+                )
+            else:
+                findings.append(
+                    f"unreadable chunk header at byte {pos}: the rest of the file was not read"
+                )
             break
         body = pos + 8
         if ds64 is not None and size == 0xFFFFFFFF:

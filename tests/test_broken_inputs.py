@@ -212,7 +212,10 @@ def test_data_chunk_claiming_less_is_measured_as_declared(tmp_path):
     m = checked_measure(make("data_claims_less", tmp_path))
     # The data chunk says 96000 bytes = 48000 frames; what follows is not audio by the header.
     assert (m.frames, m.duration_s) == (48_000, 1.0)
-    assert any("unreadable chunk header at byte 96044" in f for f in m.findings), m.findings
+    finding = next(f for f in m.findings if "unreadable chunk header at byte 96044" in f)
+    # It says what the bytes probably are and what was measured (96000 declared + 44 header).
+    assert "bytes after the 'data' chunk (96000 bytes declared) are not a chunk" in finding
+    assert "only the declared audio was measured" in finding
 
 
 def test_riff_size_zero_with_good_data_size_is_measured_with_a_finding(tmp_path):
