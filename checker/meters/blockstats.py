@@ -48,3 +48,25 @@ def sample_stats(
     if shared:
         block.memo[key] = stats
     return stats
+
+
+def piece_squares(
+    xt: np.ndarray, zero: np.ndarray, cuts: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """The numpy twin of the pieces part of sample_stats: per piece of xt (channels, frames)
+    cut at ``cuts`` (segment_cuts), the sums of squares (pieces, channels) and the count of
+    ``zero`` (frames,) frames."""
+    ch, n = xt.shape
+    first, last = int(cuts[0]), int(cuts[-1])
+    full = cuts.size - 1
+    squares = np.empty((cuts.size + 1, ch))
+    zeros = np.empty(cuts.size + 1, dtype=np.int64)
+    for k, part in ((0, slice(0, first)), (cuts.size, slice(last, n))):
+        squares[k] = np.einsum("ij,ij->i", xt[:, part], xt[:, part])
+        zeros[k] = np.count_nonzero(zero[part])
+    if full:
+        seg = (last - first) // full
+        r = xt[:, first:last].reshape(ch, full, seg)
+        squares[1:-1] = np.einsum("csk,csk->cs", r, r).T
+        zeros[1:-1] = zero[first:last].reshape(full, seg).sum(axis=1)
+    return squares, zeros

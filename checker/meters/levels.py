@@ -48,7 +48,7 @@ from checker.audio import INT32_SCALE, Block, StreamInfo
 from checker.dsp import native
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
-from checker.meters.blockstats import sample_stats, segment_frames
+from checker.meters.blockstats import piece_squares, sample_stats, segment_cuts, segment_frames
 from checker.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
 
 NOISE_BLOCK_SEGMENTS = 4  # 400 ms blocks, 100 ms step
@@ -123,11 +123,6 @@ def channels_first(x: np.ndarray) -> np.ndarray:
     """A contiguous (channels, frames) copy: numpy reduces along the last axis far
     faster than across a short first axis (about 10x for stereo)."""
     return np.ascontiguousarray(x.T)
-
-
-def _squares(xt: np.ndarray) -> np.ndarray:
-    """Per row (channel): sum of squares."""
-    return np.einsum("ij,ij->i", xt, xt)
 
 
 def _zero_frames(xt: np.ndarray) -> np.ndarray:
@@ -241,6 +236,8 @@ class LevelsMeter:
         else:
             hi, lo = xt.max(axis=1), xt.min(axis=1)
             float_sums = int_sums = code_or = None
+            cuts = segment_cuts(block.start, n, self.seg_len)
+            squares, zeros = piece_squares(xt, _zero_frames(xt), cuts)
         m = np.maximum(hi, -lo)
         better = m > self.peak
         if better.any():
@@ -268,10 +265,7 @@ class LevelsMeter:
                 if active.any():
                     bits = float_grid_bits(xt[active])
                     self.grid_bits[active] = np.maximum(self.grid_bits[active], bits)
-        if self.native:
-            self._add_pieces(squares, zeros, cuts, n)
-        else:
-            self._segments(xt, _zero_frames(xt))
+        self._add_pieces(squares, zeros, cuts, n)
         self.frames += n
 
     def _count_nonfinite(self, x: np.ndarray, start: int) -> np.ndarray:
@@ -307,8 +301,9 @@ class LevelsMeter:
             )
 
     def _add_pieces(self, squares: np.ndarray, zeros: np.ndarray, cuts: np.ndarray, n: int) -> None:
-        """The compiled twin of _segments: squares (pieces, ch) and zero-frame counts per
-        piece cut at ``cuts`` (checker.meters.blockstats.segment_cuts)."""
+        """Sums of squares per 100 ms segment (and in total, from the same sums) from the
+        squares (pieces, ch) and zero-frame counts per piece cut at ``cuts``
+        (checker.meters.blockstats.segment_cuts)."""
         self.sumsq += squares.sum(axis=0)
         self.part_sum = self.part_sum + squares[0]
         self.part_zeros += int(zeros[0])
@@ -328,42 +323,6 @@ class LevelsMeter:
         self.part_sum = self.part_sum + squares[-1]
         self.part_zeros += int(zeros[-1])
         self.part_frames += n - int(cuts[-1])
-
-    def _segments(self, xt: np.ndarray, zero: np.ndarray) -> None:
-        """xt: (channels, frames) samples; zero: (frames,) all-channel digital zero.
-        Sums of squares per 100 ms segment (and in total, from the same sums)."""
-        seg = self.seg_len
-        ch, n = xt.shape
-        first = min(n, seg - self.part_frames)
-        head = _squares(xt[:, :first])
-        self.sumsq += head
-        self.part_sum = self.part_sum + head
-        self.part_zeros += int(np.count_nonzero(zero[:first]))
-        self.part_frames += first
-        if self.part_frames == seg:
-            self.seg_sums.append(self.part_sum[None, :])
-            self.seg_zeros.append(np.array([self.part_zeros]))
-            self.part_sum = np.zeros_like(self.part_sum)
-            self.part_zeros = 0
-            self.part_frames = 0
-        full = (n - first) // seg
-        if full:
-            body = slice(first, first + full * seg)
-            r = xt[:, body].reshape(ch, full, seg)
-            sums = np.einsum("csk,csk->cs", r, r)
-            self.sumsq += sums.sum(axis=1)
-            self.seg_sums.append(sums.T)
-            self.seg_zeros.append(zero[body].reshape(full, seg).sum(axis=1))
-        if len(self.seg_sums) > COMPACT_AFTER:  # one array, not thousands of small ones
-            self.seg_sums = [np.concatenate(self.seg_sums)]
-            self.seg_zeros = [np.concatenate(self.seg_zeros)]
-        tail = slice(first + full * seg, n)
-        if tail.stop > tail.start:
-            rest = _squares(xt[:, tail])
-            self.sumsq += rest
-            self.part_sum = self.part_sum + rest
-            self.part_zeros += int(np.count_nonzero(zero[tail]))
-            self.part_frames += tail.stop - tail.start
 
     # ---------------------------------------------------------------- result
     def result(self) -> LevelsResult:

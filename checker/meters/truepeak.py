@@ -220,13 +220,14 @@ class TruePeakMeter:
         windows = np.lib.stride_tricks.as_strided(
             first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
         )
-        peaks = np.maximum(windows.max(axis=2), -windows.min(axis=2)).astype(np.float64)
-        reach = peaks * (self.tap_bound * (1.0 + BOUND_MARGIN))
-        st = self.state
-        ok = (reach * self.fine_bound * self.edge_dominance <= st.best[:, None]) & (
-            reach <= self.ceiling_amp
-        )
-        return ok.all(axis=0)
+        peaks = np.maximum(windows.max(axis=2), -windows.min(axis=2))
+        return self._skippable(peaks, self.state.best[:, None]).all(axis=0)
+
+    def _skippable(self, peaks: np.ndarray, best: np.ndarray) -> np.ndarray:
+        """Where a window whose samples peak at ``peaks`` cannot beat the running maxima
+        ``best`` nor reach the ceiling (the exact bound in the module docstring)."""
+        reach = peaks.astype(np.float64) * (self.tap_bound * (1.0 + BOUND_MARGIN))
+        return (reach * self.fine_bound * self.edge_dominance <= best) & (reach <= self.ceiling_amp)
 
     def _edge_masks(
         self, base: int, lo: int, hi: int, last_frame: int | None
@@ -263,16 +264,12 @@ class TruePeakMeter:
             hi = lo + (last_frame - j * CHUNK_FRAMES) * factor + 1
         base = (j * CHUNK_FRAMES - ROW_POSITIONS) * factor  # grid index of window grid 0
         masks = self._edge_masks(base, lo, hi, last_frame)
-        peaks = np.maximum(window.max(axis=1), -window.min(axis=1)).astype(np.float64)
-        reach = peaks * (self.tap_bound * (1.0 + BOUND_MARGIN))
+        peaks = np.maximum(window.max(axis=1), -window.min(axis=1))
+        skippable = self._skippable(peaks, st.best) if self.skip else None
         events: list[tuple[int, int]] = []
         for c in range(self.channels):
             self.seen += 1
-            if (
-                self.skip
-                and reach[c] * self.fine_bound * self.edge_dominance <= st.best[c]
-                and reach[c] <= self.ceiling_amp
-            ):
+            if skippable is not None and skippable[c]:
                 st.in_run[c] = False
                 continue
             self.computed += 1
