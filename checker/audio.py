@@ -27,6 +27,7 @@ import os
 import queue
 import threading
 from collections.abc import Callable, Iterator
+from typing import BinaryIO
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -192,6 +193,7 @@ def read_blocks(
     *,
     read_ahead: bool = False,
     prepare: list[Callable[[Block], None]] | None = None,
+    source: BinaryIO | None = None,
 ) -> tuple[StreamInfo, Iterator[Block]]:
     """Open ``path`` and return its StreamInfo and an iterator of Blocks.
 
@@ -207,12 +209,16 @@ def read_blocks(
     ``prepare``: functions called with every block, in order, right after it is
     decoded (in the read-ahead thread when there is one) and before the caller
     sees it; the list may be filled after this call, before iterating.
+
+    ``source``: a file-like view of ``path`` to decode instead of the file itself (a FLAC
+    whose STREAMINFO understates its length, read with the total marked unknown:
+    checker.streamlength.FlacUnknownLength); it is closed with the iterator.
     """
     if block_frames is not None and block_frames < 1:
         raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
     check_file(path)
     try:
-        handle = sf.SoundFile(path)
+        handle = sf.SoundFile(path if source is None else source)
     except Exception as exc:
         reason = _clean(exc)
         if "does not exist" in reason:  # libsndfile's words for a codec stream it cannot start

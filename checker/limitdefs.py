@@ -125,6 +125,11 @@ CATALOGUE: tuple[LimitDef, ...] = (
        "number of frames the header promises but the file lacks", "format", item="int",
        none_means_ok=True,
        hint="the file was cut off (an interrupted copy or upload): send it again"),
+    _d("container_intact_required", MUST_BE_TRUE, "container_intact", "",
+       "file complete by its container (no chunk or page cut off, no audio past the "
+       "declared length)", "format", item="bool", none_means_ok=True,
+       hint="the file was cut off, or its header misstates its length (players that trust "
+            "it stop early): export or copy it again"),
     # loudness
     _d("integrated_target_lufs", TARGET, "integrated_lufs", "LUFS", "integrated loudness",
        "loudness", hint="apply the gain in the advice"),

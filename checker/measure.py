@@ -10,11 +10,13 @@ import numpy as np
 
 from checker import __version__
 from checker.audio import Block, StreamInfo, read_blocks
+from checker.containers import ContainerLength, length_values, read_container_length, with_declared
 from checker.errors import AudioReadError, UnsupportedAudioError
 from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
+from checker.streamlength import FlacUnknownLength
 from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
@@ -99,6 +101,10 @@ def stream_values(info: StreamInfo, frames: int, layout: Layout) -> dict[str, An
     }
 
 
+#: What a file with no frames is called, in its findings and in every undefined value's note.
+NO_AUDIO = "no audio (0 frames)"
+
+
 def stream_findings(info: StreamInfo, frames: int) -> list[str]:
     findings = []
     declared = info.frames_declared
@@ -112,7 +118,7 @@ def stream_findings(info: StreamInfo, frames: int) -> list[str]:
     if declared is None:
         findings.append(f"header gives no length; {frames / rate:.3f} s ({frames} frames) decoded")
     if frames == 0:
-        findings.append("no audio: 0 frames decoded")
+        findings.append(NO_AUDIO)
     return findings
 
 
@@ -170,7 +176,11 @@ def check_header(path: str, info: StreamInfo, header: WavHeader | None) -> Strea
 
 
 def open_error(path: str, exc: AudioReadError) -> AudioReadError:
-    """The open failure, naming an undecodable WAV format tag, plus the header's findings."""
+    """The open failure, naming an undecodable WAV format tag, plus the header's findings
+    (the WAV header's, or another container's length findings)."""
+    length = read_container_length(path)
+    if length is not None and length.findings:
+        return type(exc)(f"{exc}; header: {'; '.join(length.findings)}")
     header = read_wav_header(path)
     tag = _wav_tag(header) if header is not None else None
     if tag is not None and tag not in DECODABLE_TAGS and not isinstance(exc, UnsupportedAudioError):
@@ -188,6 +198,14 @@ def _stat(path: str) -> tuple[int, int]:
     except OSError:
         return (-1, -1)
     return (st.st_size, st.st_mtime_ns)
+
+
+def name_no_audio(values: dict[str, Any]) -> None:
+    """A file without frames: every undefined value's note says so, instead of the meter's
+    reason for a short file ("shorter than one 400 ms block")."""
+    for key, value in values.items():
+        if key.endswith("_note") and value and key != "container_intact_note":
+            values[key] = NO_AUDIO
 
 
 def has_nonfinite(block: Block) -> bool:
@@ -212,20 +230,30 @@ def measure(
     the same either way."""
     options = options or MeasureOptions()
     before = _stat(str(path))
-    hooks: list = []  # the meters' prepare steps, filled once the meters exist
+    length = read_container_length(str(path))  # AIFF, W64, AU, CAF, FLAC, Ogg; else None
+    source = _unknown_length_view(str(path), length)
     try:
-        info, blocks = read_blocks(
-            str(path), options.block_frames, read_ahead=read_ahead, prepare=hooks
-        )
-    except AudioReadError as exc:  # say what the WAV header reader saw, if anything
-        raise open_error(str(path), exc) from None
-    header = read_wav_header(str(path))  # header only (seeks past the audio); None if not WAV
-    info = check_header(str(path), info, header)
-    layout = resolve_layout(info, options, header)
-    meters = [cls(info, layout, options) for cls in meter_classes()]
-    # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
-    # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
-    hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
+        return _measure(str(path), options, read_ahead, before, length, source)
+    finally:
+        if source is not None:
+            source.close()
+
+
+def _unknown_length_view(path: str, length: ContainerLength | None) -> FlacUnknownLength | None:
+    """A FLAC whose last frame header shows more frames than STREAMINFO declares is read
+    with the total marked unknown: libsndfile stops at the declared total otherwise."""
+    if length is None or length.kind != "FLAC" or length.frames_declared is None:
+        return None
+    if length.frames_held is None or length.frames_held <= length.frames_declared:
+        return None
+    try:
+        return FlacUnknownLength(path)
+    except OSError:
+        return None
+
+
+def _feed_all(blocks, meters: list) -> int:
+    """Feed every block to every meter; the frames decoded."""
     # Meters that count NaN/Inf (class attribute sees_nonfinite = True) get the untouched
     # block; every other meter then gets those samples as 0.
     counting = [m for m in meters if getattr(m, "sees_nonfinite", False)]
@@ -242,10 +270,44 @@ def measure(
         else:
             for meter in meters:
                 meter.feed(block)
+    return frames
+
+
+def _measure(
+    path: str,
+    options: MeasureOptions,
+    read_ahead: bool,
+    before: tuple[int, int],
+    length: ContainerLength | None,
+    source: FlacUnknownLength | None,
+) -> Measurement:
+    hooks: list = []  # the meters' prepare steps, filled once the meters exist
+    try:
+        info, blocks = read_blocks(
+            path, options.block_frames, read_ahead=read_ahead, prepare=hooks, source=source
+        )
+    except AudioReadError as exc:  # say what the header readers saw, if anything
+        raise open_error(path, exc) from None
+    header = read_wav_header(path)  # header only (seeks past the audio); None if not WAV
+    info = with_declared(check_header(path, info, header), length)
+    layout = resolve_layout(info, options, header)
+    meters = [cls(info, layout, options) for cls in meter_classes()]
+    # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
+    # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
+    hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
+    try:
+        frames = _feed_all(blocks, meters)
+    except AudioReadError as exc:  # a cut FLAC loses sync at its end: say so
+        if length is None or not length.findings:
+            raise
+        raise type(exc)(f"{exc}; header: {'; '.join(length.findings)}") from None
     values = stream_values(info, frames, layout)
     values.update(header.values() if header else empty_values())
     findings = stream_findings(info, frames)
-    after = _stat(str(path))
+    container, container_findings = length_values(info, frames, length, header)
+    values.update(container)
+    findings.extend(container_findings)
+    after = _stat(path)
     if after != before:
         findings.append(
             f"file changed while it was read (size {before[0]} -> {after[0]} bytes): "
@@ -259,8 +321,10 @@ def measure(
         findings.extend(getattr(result, "findings", ()) or ())
         if hasattr(meter, "series"):
             series.update(meter.series())
+    if frames == 0:
+        name_no_audio(values)
     return Measurement(
-        path=str(path),
+        path=path,
         values=plain(values),  # plain data; NaN would become None (plain maps it)
         timeline=build_timeline(series),
         findings=tuple(findings),

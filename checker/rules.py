@@ -299,6 +299,8 @@ def _check_true(lim: Limit, values, profile) -> Flag | None:
     d = lim.definition
     m = values.get(d.measure)
     if not _present(m):
+        if d.none_means_ok and d.measure in values:
+            return None  # e.g. a container whose length this reader does not check
         return unmeasured(lim, values, d.measure)
     if not lim.value or m is True:
         return None

@@ -75,6 +75,10 @@ CASES = [
     ("truncation_max_frames", 0, {}, {"frames_declared": 480000}, {"frames": 480000},
      {"frames": 47999}, "Number of frames the header promises but the file lacks is 432001, "
      "above the limit of 0: the file was cut off", None),
+    ("container_intact_required", True, {}, {}, {"container_intact": True},
+     {"container_intact": False}, "File complete by its container (no chunk or page cut off, "
+     "no audio past the declared length): no: the file was cut off, or its header misstates "
+     "its length", None),
     ("unused_low_bits_max", 0, {}, {"subtype": "PCM_24", "format_bits": 24},
      {"effective_bits": 24}, {"effective_bits": 16}, "Number of unused low bits (file bit depth "
      "minus effective bits) is 8 bits, above the limit of 0 bits", None),
@@ -324,6 +328,7 @@ def test_status_is_the_worst_flag_and_every_violation_is_flagged():
         "sample_rate_hz": 44100,  # warn in ebu-r128
         "frames": 441000,
         "frames_declared": 441000,
+        "container_intact": True,
         "integrated_lufs": -23.0,
         "true_peak_dbtp": -0.5,  # fail
         "clipped_runs": 0,
@@ -363,6 +368,7 @@ def test_set_limits_and_file_limits_do_not_mix():
         "effective_bits": 24,
         "frames": 480000,
         "frames_declared": 480000,
+        "container_intact": True,
         "sample_peak_dbfs": -6.0,
         "clipped_runs": 0,
         "over_full_scale_samples": 0,
