@@ -65,6 +65,11 @@ UNKNOWN_FRAMES = 2**62
 
 INT32_SCALE = 1.0 / 2**31
 
+#: Float samples larger than this in magnitude (2**100, about +602 dBFS) are not audio but
+#: damage: squares and sums of them overflow float64 and the true-peak filter's float32 path.
+#: They are counted and treated as 0, like NaN and Inf (docs/standards.md#sample-domain).
+MAX_SAMPLE_MAGNITUDE = 2.0**100
+
 
 @dataclass(frozen=True)
 class StreamInfo:
@@ -117,6 +122,21 @@ class Block:
         them; for other blocks it is a copy, made on every call."""
         t = self.x.T
         return t if t.flags.c_contiguous else np.ascontiguousarray(t)
+
+
+def out_of_range(block: Block) -> bool:
+    """True when a float block holds NaN, Inf or a sample beyond MAX_SAMPLE_MAGNITUDE
+    (integer PCM never does). Kept in ``block.memo``: measure() and the meters' prepare
+    steps both ask."""
+    if block.raw is not None or block.frames == 0:
+        return False
+    found = block.memo.get("out_of_range")
+    if found is None:
+        x = block.x
+        # NaN makes max() NaN, and a comparison with NaN is False: caught without a mask.
+        found = not (x.max() <= MAX_SAMPLE_MAGNITUDE and x.min() >= -MAX_SAMPLE_MAGNITUDE)
+        block.memo["out_of_range"] = found
+    return found
 
 
 def open_info(path: str) -> StreamInfo:

@@ -157,7 +157,7 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("over_full_scale_samples_max", MAX, "over_full_scale_samples", "",
        "number of samples beyond full scale", "peaks", item="int",
        hint="float samples above 1.0 clip when converted to fixed point: lower the level"),
-    _d("nonfinite_samples_max", MAX, "nonfinite_samples", "", "number of NaN/Inf samples",
+    _d("nonfinite_samples_max", MAX, "nonfinite_samples", "", "number of NaN, Inf or out-of-range samples",
        "peaks", item="int", hint="the file holds invalid samples: re-export it"),
     # levels
     _d("dc_offset_max_dbfs", MAX, "dc_offset_dbfs", "dBFS", "DC offset", "levels",

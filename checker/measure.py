@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import os
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -9,9 +10,10 @@ from typing import Any
 import numpy as np
 
 from checker import __version__
-from checker.audio import Block, StreamInfo, read_blocks
+from checker.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range, read_blocks
 from checker.containers import ContainerLength, length_values, read_container_length, with_declared
 from checker.errors import AudioReadError, UnsupportedAudioError
+from checker.limitdefs import UNIT_SUFFIXES
 from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
@@ -21,7 +23,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine4"
+ENGINE_VERSION = f"{__version__}+engine5"
 
 
 class FlatValues:
@@ -100,6 +102,9 @@ def stream_values(info: StreamInfo, frames: int, layout: Layout) -> dict[str, An
         "layout_source": layout.source,
     }
 
+
+#: The note of a value that came out NaN or +inf (a guard: the meters should not produce one).
+NOT_MEASURABLE = "not measurable: the arithmetic overflowed on these samples"
 
 #: What a file with no frames is called, in its findings and in every undefined value's note.
 NO_AUDIO = "no audio (0 frames)"
@@ -209,14 +214,32 @@ def name_no_audio(values: dict[str, Any]) -> None:
 
 
 def has_nonfinite(block: Block) -> bool:
-    """True when a float block holds NaN or Inf (integer PCM never does)."""
-    return block.raw is None and not np.isfinite(block.x).all()
+    """True when a float block holds NaN, Inf or an out-of-range sample."""
+    return out_of_range(block)
 
 
 def zero_nonfinite(block: Block) -> None:
-    """Set NaN/Inf samples to 0 in place (the buffer is the reader's own, refilled on the
-    next read), once, so every meter after the levels meter sees finite samples."""
-    np.copyto(block.x, 0.0, where=~np.isfinite(block.x))
+    """Set NaN/Inf and out-of-range samples to 0 in place (the buffer is the reader's own,
+    refilled on the next read), once, so every meter after the levels meter sees finite
+    samples whose squares and sums cannot overflow."""
+    np.copyto(block.x, 0.0, where=~(np.abs(block.x) <= MAX_SAMPLE_MAGNITUDE))
+
+
+def guard_values(values: dict[str, Any]) -> None:
+    """The last line of defence before values leave: true peak is never below sample peak
+    (the interpolated signal passes through every sample), and no number is NaN or +inf
+    (None with a note instead; -inf stays: digital silence)."""
+    tp, sp = values.get("true_peak_dbtp"), values.get("sample_peak_dbfs")
+    if isinstance(tp, float) and isinstance(sp, float) and math.isfinite(sp) and tp < sp:
+        values["true_peak_dbtp"] = sp
+        if "true_peak_time_s" in values and "sample_peak_time_s" in values:
+            values["true_peak_time_s"] = values["sample_peak_time_s"]
+    for key, value in list(values.items()):
+        if isinstance(value, float) and (math.isnan(value) or value == math.inf):
+            values[key] = None
+            stem = key.rsplit("_", 1)[0] if key.rsplit("_", 1)[-1] in UNIT_SUFFIXES else key
+            values.setdefault(f"{stem}_note", None)
+            values[f"{stem}_note"] = values[f"{stem}_note"] or NOT_MEASURABLE
 
 
 def measure(
@@ -323,6 +346,7 @@ def _measure(
             series.update(meter.series())
     if frames == 0:
         name_no_audio(values)
+    guard_values(values)
     return Measurement(
         path=path,
         values=plain(values),  # plain data; NaN would become None (plain maps it)

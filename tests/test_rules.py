@@ -110,7 +110,7 @@ CASES = [
      {"over_full_scale_samples": 5}, "Number of samples beyond full scale is 5, above the "
      "limit of 0", None),
     ("nonfinite_samples_max", 0, {}, {}, {"nonfinite_samples": 0}, {"nonfinite_samples": 1},
-     "Number of NaN/Inf samples is 1, above the limit of 0", None),
+     "Number of NaN, Inf or out-of-range samples is 1, above the limit of 0", None),
     ("dc_offset_max_dbfs", -40.0, {}, {}, {"dc_offset_dbfs": -40.0}, {"dc_offset_dbfs": -39.99},
      "DC offset is -39.99 dBFS, above the limit of -40.00 dBFS", None),
     ("effective_bits_min", 20, {}, {}, {"effective_bits": 20}, {"effective_bits": 19},
