@@ -146,9 +146,7 @@ def _read_aiff(fh: BinaryIO, file_size: int) -> ContainerLength:
         body = pos + 8
         present = max(0, min(size, file_size - body))
         if size > present:
-            findings.append(
-                f"'{name}' chunk claims {size} bytes, {present} present: {TRUNCATED}"
-            )
+            findings.append(f"'{name}' chunk claims {size} bytes, {present} present: {TRUNCATED}")
         if name == "COMM" and frames is None and present >= 18:
             body_raw = fh.read(min(present, 22))
             channels, frames, sample_bits = struct.unpack_from(">hIh", body_raw, 0)
@@ -215,8 +213,7 @@ def _read_w64(fh: BinaryIO, file_size: int) -> ContainerLength:
         body_size = size - W64_HEADER
         if body_size > present:
             findings.append(
-                f"'{name}' chunk claims {body_size} bytes, {max(present, 0)} present: "
-                f"{TRUNCATED}"
+                f"'{name}' chunk claims {body_size} bytes, {max(present, 0)} present: {TRUNCATED}"
             )
         if name == "fmt " and tag is None and present >= 16:
             tag, _channels, _rate, _byte_rate, align = struct.unpack_from("<HHIIH", fh.read(14))
@@ -254,9 +251,7 @@ def _read_au(fh: BinaryIO, file_size: int) -> ContainerLength:
         return ContainerLength("AU", None, ("AU header gives no data size",))
     present = file_size - offset
     if data_size > present:
-        findings.append(
-            f"AU data size claims {data_size} bytes, {present} present: {TRUNCATED}"
-        )
+        findings.append(f"AU data size claims {data_size} bytes, {present} present: {TRUNCATED}")
     elif data_size < present:
         findings.append(f"{present - data_size} bytes follow the declared AU data")
     width = AU_SAMPLE_BYTES.get(encoding)
@@ -290,9 +285,7 @@ def _read_caf(fh: BinaryIO, file_size: int) -> ContainerLength:
             break
         present = min(size, available)
         if size > present:
-            findings.append(
-                f"'{name}' chunk claims {size} bytes, {present} present: {TRUNCATED}"
-            )
+            findings.append(f"'{name}' chunk claims {size} bytes, {present} present: {TRUNCATED}")
         if name == "desc" and present >= 32:
             desc = struct.unpack(">d4s5I", fh.read(32))
         elif name == "data":

@@ -87,8 +87,15 @@ def checked_measure(path: Path, options: MeasureOptions | None = None) -> Measur
 def comparable(m: Measurement) -> dict:
     """Values that depend on the decoded samples only (not on path, header or notes)."""
     d = m.to_dict(timeline=True)
-    for key in ("path", "frames_declared", "findings", "header_findings", "nonfinite_samples",
-                "container_intact", "undeclared_frames"):
+    for key in (
+        "path",
+        "frames_declared",
+        "findings",
+        "header_findings",
+        "nonfinite_samples",
+        "container_intact",
+        "undeclared_frames",
+    ):
         d.pop(key)
     return d
 

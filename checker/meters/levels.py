@@ -65,6 +65,8 @@ _KINDS = ("NaN", "Inf", OUT_OF_RANGE)
 
 def _kind_order(item: tuple[str, Any]) -> int:
     return _KINDS.index(item[0])
+
+
 #: Per-segment records are joined into one array once this many pieces have piled up
 #: (a numpy array costs ~100 bytes of bookkeeping: 3 hours of 1 s blocks would add ~20 MB).
 COMPACT_AFTER = 64
