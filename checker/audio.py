@@ -27,8 +27,8 @@ import os
 import queue
 import threading
 from collections.abc import Callable, Iterator
-from typing import BinaryIO
 from dataclasses import dataclass, field
+from typing import BinaryIO
 
 import numpy as np
 import soundfile as sf

@@ -13,8 +13,8 @@ from checker import __version__
 from checker.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range, read_blocks
 from checker.containers import ContainerLength, length_values, read_container_length, with_declared
 from checker.errors import AudioReadError, UnsupportedAudioError
-from checker.limitdefs import UNIT_SUFFIXES
 from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
+from checker.limitdefs import UNIT_SUFFIXES
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
