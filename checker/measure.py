@@ -106,6 +106,10 @@ def stream_values(info: StreamInfo, frames: int, layout: Layout) -> dict[str, An
 #: The note of a value that came out NaN or +inf (a guard: the meters should not produce one).
 NOT_MEASURABLE = "not measurable: the arithmetic overflowed on these samples"
 
+#: Values whose +inf has a meaning: the headroom of digital silence (the mirror of its
+#: -inf sample peak, checker/meters/levels.py).
+UNBOUNDED_OK = ("headroom_db",)
+
 #: What a file with no frames is called, in its findings and in every undefined value's note.
 NO_AUDIO = "no audio (0 frames)"
 
@@ -228,13 +232,15 @@ def zero_nonfinite(block: Block) -> None:
 def guard_values(values: dict[str, Any]) -> None:
     """The last line of defence before values leave: true peak is never below sample peak
     (the interpolated signal passes through every sample), and no number is NaN or +inf
-    (None with a note instead; -inf stays: digital silence)."""
+    (None with a note instead; -inf stays: digital silence; so does UNBOUNDED_OK's +inf)."""
     tp, sp = values.get("true_peak_dbtp"), values.get("sample_peak_dbfs")
     if isinstance(tp, float) and isinstance(sp, float) and math.isfinite(sp) and tp < sp:
         values["true_peak_dbtp"] = sp
         if "true_peak_time_s" in values and "sample_peak_time_s" in values:
             values["true_peak_time_s"] = values["sample_peak_time_s"]
     for key, value in list(values.items()):
+        if key in UNBOUNDED_OK:
+            continue
         if isinstance(value, float) and (math.isnan(value) or value == math.inf):
             values[key] = None
             stem = key.rsplit("_", 1)[0] if key.rsplit("_", 1)[-1] in UNIT_SUFFIXES else key
