@@ -136,6 +136,7 @@ def _read_aiff(fh: BinaryIO, file_size: int) -> ContainerLength:
     frames = channels = sample_bits = None
     frame_bytes = None
     ssnd_frames = None
+    comm_seen = False
     pos, count = 12, 0
     while pos + 8 <= file_size and count < MAX_CHUNKS:
         count += 1
@@ -147,11 +148,14 @@ def _read_aiff(fh: BinaryIO, file_size: int) -> ContainerLength:
         present = max(0, min(size, file_size - body))
         if size > present:
             findings.append(f"'{name}' chunk claims {size} bytes, {present} present: {TRUNCATED}")
-        if name == "COMM" and frames is None and present >= 18:
+        if name == "COMM" and not comm_seen and present >= 18:
+            comm_seen = True
             body_raw = fh.read(min(present, 22))
             channels, frames, sample_bits = struct.unpack_from(">hIh", body_raw, 0)
             compression = body_raw[18:22] if aifc and len(body_raw) >= 22 else b"NONE"
-            if compression in AIFC_PLAIN and channels > 0 and sample_bits > 0:
+            if compression not in AIFC_PLAIN:
+                frames = None  # a codec's packets: numSampleFrames may not count frames
+            elif channels > 0 and sample_bits > 0:
                 width = AIFC_PLAIN[compression] or (sample_bits + 7) // 8
                 frame_bytes = channels * width
         elif name == "SSND" and ssnd_frames is None and present >= 8:
@@ -162,7 +166,7 @@ def _read_aiff(fh: BinaryIO, file_size: int) -> ContainerLength:
         pos = body + size + (size % 2)
     if count >= MAX_CHUNKS:
         findings.append(f"more than {MAX_CHUNKS} chunks: the rest of the header was not read")
-    if frames is None:
+    if not comm_seen:
         findings.append("no readable 'COMM' chunk: the declared length is unknown")
     elif frame_bytes and ssnd_frames is not None:
         declared_bytes = max(ssnd_frames[0], 0)
@@ -220,7 +224,7 @@ def _read_w64(fh: BinaryIO, file_size: int) -> ContainerLength:
         elif name == "data" and frames is None:
             if tag in PLAIN_TAGS and align:
                 frames = body_size // align
-            else:
+            elif tag is None:
                 findings.append("'data' before a usable 'fmt ' chunk: the length is unknown")
         if body_size > present:
             break

@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import io
 import struct
+import zlib
 from typing import BinaryIO
 
 from checker.containers import CUT_SHORT, TRUNCATED, ContainerLength
@@ -43,7 +44,7 @@ OGG_MAX_PAGE = 27 + 255 + 255 * 255
 TOTAL_OFFSET = 4 + 4 + 13  # marker, block header, 13 bytes before the total's low nibble
 
 
-def _crc8(data: bytes) -> int:
+def crc8(data: bytes) -> int:
     crc = 0
     for byte in data:
         crc ^= byte
@@ -163,7 +164,7 @@ def _frame_end(buf: bytes, i: int, max_block: int, channels: int) -> int | None:
     else:
         block = _BLOCK_CODES.get(size_code) or 256 << (size_code - 8)
     j += {12: 1, 13: 2, 14: 2}.get(rate_code, 0)
-    if j >= len(buf) or _crc8(buf[i:j]) != buf[j]:
+    if j >= len(buf) or crc8(buf[i:j]) != buf[j]:
         return None
     if not variable and block > max_block:
         return None
@@ -230,25 +231,21 @@ class FlacUnknownLength(io.RawIOBase):
 # --- Ogg ----------------------------------------------------------------------------------
 
 
-def _crc32_table() -> list[int]:
-    table = []
-    for i in range(256):
-        r = i << 24
-        for _ in range(8):
-            r = ((r << 1) ^ 0x04C11DB7) & 0xFFFFFFFF if r & 0x80000000 else (r << 1) & 0xFFFFFFFF
-        table.append(r)
-    return table
-
-
-_OGG_TABLE = _crc32_table()
+#: Each byte with its bits in reverse order (for the Ogg CRC through zlib, below).
+_REVERSED_BITS = bytes(int(f"{i:08b}"[::-1], 2) for i in range(256))
 
 
 def _ogg_crc(page: bytes) -> int:
-    crc = 0
-    table = _OGG_TABLE
-    for byte in page[:22] + b"\0\0\0\0" + page[26:]:
-        crc = ((crc << 8) & 0xFFFFFFFF) ^ table[((crc >> 24) ^ byte) & 0xFF]
-    return crc
+    """Ogg's CRC-32 (polynomial 0x04C11DB7, not reflected, initial value 0, no final xor)
+    over ``page`` with its CRC field zeroed, computed by zlib: a CRC over bit-reversed
+    bytes with the reflected polynomial is the bit-reversed CRC (zlib's initial and final
+    inversions are undone by starting from 0xFFFFFFFF and inverting the result)."""
+    return crc32_ogg(page[:22] + b"\0\0\0\0" + page[26:])
+
+
+def crc32_ogg(data: bytes) -> int:
+    reflected = zlib.crc32(data.translate(_REVERSED_BITS), 0xFFFFFFFF) ^ 0xFFFFFFFF
+    return int(f"{reflected:032b}"[::-1], 2)
 
 
 def _page_at(buf: bytes, i: int) -> tuple[int, int, int, int] | None:

@@ -225,3 +225,39 @@ def test_guard_keeps_true_peak_at_or_above_sample_peak():
     assert values["true_peak_dbtp"] == 4000.0 and values["true_peak_time_s"] == 0.5
     assert values["rms_dbfs"] is None and values["rms_note"].startswith("not measurable")
     assert values["x_db"] is None and values["x_note"].startswith("not measurable")
+
+
+def test_checksums_match_their_published_check_values():
+    from checker.streamlength import crc8, crc32_ogg
+
+    # Check values over b"123456789" (the CRC catalogue's convention; from memory):
+    # CRC-8 with polynomial 0x07, initial 0 (FLAC frame headers): 0xF4.
+    assert crc8(b"123456789") == 0xF4
+    # CRC-32 with polynomial 0x04C11DB7, initial 0, not reflected: POSIX cksum's register
+    # before its final inversion, 0x765E7680 ^ 0xFFFFFFFF (Ogg pages, RFC 3533).
+    assert crc32_ogg(b"123456789") == 0x765E7680 ^ 0xFFFFFFFF
+    # The same by the textbook bitwise loop, over arbitrary bytes.
+    data = bytes(range(256)) * 3
+    crc = 0
+    for byte in data:
+        crc ^= byte << 24
+        for _ in range(8):
+            crc = ((crc << 1) ^ 0x04C11DB7) & 0xFFFFFFFF if crc & 0x80000000 else crc << 1
+    assert crc32_ogg(data) == crc
+
+
+def test_flac_unknown_length_view_zeroes_only_the_total(tmp_path):
+    from checker.streamlength import FlacUnknownLength
+
+    path = CORPUS["flac_half_length"](tmp_path)
+    raw = path.read_bytes()
+    view = FlacUnknownLength(str(path))
+    try:
+        seen = view.read()
+        view.seek(20)
+        assert view.read(7) == raw[20:21] + bytes([raw[21] & 0xF0]) + b"\0\0\0\0" + raw[26:27]
+    finally:
+        view.close()
+    # FLAC format: the 36-bit total is the low nibble of byte 21 and bytes 22-25.
+    assert len(seen) == len(raw) and seen[:21] == raw[:21] and seen[26:] == raw[26:]
+    assert seen[21] == raw[21] & 0xF0 and seen[22:26] == b"\0\0\0\0"
