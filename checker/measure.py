@@ -350,9 +350,9 @@ def _measure(
         findings.extend(getattr(result, "findings", ()) or ())
         if hasattr(meter, "series"):
             series.update(meter.series())
+    guard_values(values)
     if frames == 0:
         name_no_audio(values)
-    guard_values(values)
     return Measurement(
         path=path,
         values=plain(values),  # plain data; NaN would become None (plain maps it)
