@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import re
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -261,3 +262,37 @@ def test_flac_unknown_length_view_zeroes_only_the_total(tmp_path):
     # FLAC format: the 36-bit total is the low nibble of byte 21 and bytes 22-25.
     assert len(seen) == len(raw) and seen[:21] == raw[:21] and seen[26:] == raw[26:]
     assert seen[21] == raw[21] & 0xF0 and seen[22:26] == b"\0\0\0\0"
+
+
+def test_check_names_every_cut_or_lying_file_among_good_ones(tmp_path):
+    import csv
+
+    from corpus import good_wav
+    from test_check_cli import cli
+
+    from checker.errors import EXIT_UNCHECKED
+
+    src = tmp_path / "in"
+    src.mkdir()
+    good = good_wav(src / "good.wav")
+    names = ["aiff_cut", "au_cut", "w64_cut", "ogg_cut", "flac_half_length", "float_extreme",
+             "caf_cut", "flac_cut"]  # fmt: skip
+    paths = {name: CORPUS[name](src) for name in names}
+    profile = tmp_path / "p.toml"
+    profile.write_text(
+        'name = "p"\n[format]\n'
+        'truncation_max_frames = { value = 0, severity = "fail", source = "test input" }\n'
+        'container_intact_required = { value = true, severity = "fail", source = "test input" }\n'
+        '[peaks]\nnonfinite_samples_max = { value = 0, severity = "fail", source = "test input" }\n'
+    )
+    out = tmp_path / "out"
+    code, text, err = cli("check", str(src), "--profile", str(profile), "--out", str(out))
+    # errors.py: 3 (a file could not be checked: the cut CAF and FLAC) wins over 1 (failed).
+    assert code == EXIT_UNCHECKED, err
+    with open(out / "report.csv", newline="", encoding="utf-8") as fh:
+        rows = {Path(r["path"]).name: r for r in csv.DictReader(fh) if r.get("path")}
+    assert rows[good.name]["status"] == "pass"
+    for name, path in paths.items():
+        expected = "error" if name in ("caf_cut", "flac_cut") else "fail"
+        assert rows[path.name]["status"] == expected, (name, rows[path.name])
+    assert "Traceback" not in err and "internal error" not in err
