@@ -125,7 +125,7 @@ CATALOGUE: tuple[LimitDef, ...] = (
        "number of frames the header promises but the file lacks", "format", item="int",
        none_means_ok=True,
        hint="the file was cut off (an interrupted copy or upload): send it again"),
-    _d("container_intact_required", MUST_BE_TRUE, "container_intact", "",
+    _d("container_intact_required", MUST_BE_TRUE, "container_ok", "",
        "file complete by its container (no chunk or page cut off, no audio past the "
        "declared length)", "format", item="bool", none_means_ok=True,
        hint="the file was cut off, or its header misstates its length (players that trust "
@@ -273,11 +273,21 @@ def _missing_frames(v: Mapping[str, Any]) -> int | None:
     return None
 
 
+def _container_ok(v: Mapping[str, Any]) -> bool | None:
+    """The container is intact, or its only damage is frames missing from the end, which
+    truncation_max_frames counts (so a cut-short file is not flagged twice)."""
+    intact = v.get("container_intact")
+    if intact is None:
+        return None
+    return intact or bool(_missing_frames(v))
+
+
 #: Values computed from other measured values, for limits: key -> (inputs, function).
 #: Added only when absent and when every input key is present in the values.
 DERIVED: dict[str, tuple[tuple[str, ...], Callable[[Mapping[str, Any]], Any]]] = {
     "unused_low_bits": (("subtype", "format_bits", "effective_bits"), _unused_low_bits),
     "missing_frames": (("frames_declared", "frames"), _missing_frames),
+    "container_ok": (("container_intact", "frames_declared", "frames"), _container_ok),
 }
 
 

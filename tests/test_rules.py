@@ -75,8 +75,8 @@ CASES = [
     ("truncation_max_frames", 0, {}, {"frames_declared": 480000}, {"frames": 480000},
      {"frames": 47999}, "Number of frames the header promises but the file lacks is 432001, "
      "above the limit of 0: the file was cut off", None),
-    ("container_intact_required", True, {}, {}, {"container_intact": True},
-     {"container_intact": False}, "File complete by its container (no chunk or page cut off, "
+    ("container_intact_required", True, {}, {"frames_declared": 48000, "frames": 48000},
+     {"container_intact": True}, {"container_intact": False}, "File complete by its container (no chunk or page cut off, "
      "no audio past the declared length): no: the file was cut off, or its header misstates "
      "its length", None),
     ("unused_low_bits_max", 0, {}, {"subtype": "PCM_24", "format_bits": 24},
