@@ -13,7 +13,14 @@ from checker import __version__
 from checker.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range, read_blocks
 from checker.containers import ContainerLength, length_values, read_container_length, with_declared
 from checker.errors import AudioReadError, UnsupportedAudioError
-from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
+from checker.layout import (
+    Layout,
+    default_layout,
+    layout_count,
+    layout_from_mask,
+    mask_disagreement,
+    parse_layout,
+)
 from checker.limitdefs import UNIT_SUFFIXES
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
@@ -23,7 +30,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine5"
+ENGINE_VERSION = f"{__version__}+engine6"
 
 
 class FlatValues:
@@ -78,8 +85,11 @@ class Measurement(FlatValues):
 def resolve_layout(
     info: StreamInfo, options: MeasureOptions, header: WavHeader | None = None
 ) -> Layout:
-    """Given layout, else the WAV channel mask (when usable), else the default map."""
-    if options.layout:
+    """Given layout, else the WAV channel mask (when usable), else the default map.
+
+    A given layout with another channel count than the file is a usage error when
+    ``options.layout_strict``; in a batch it applies only to files of its own count."""
+    if options.layout and (options.layout_strict or layout_count(options.layout) == info.channels):
         return parse_layout(options.layout, info.channels)
     if header is not None and header.channel_mask:
         layout = layout_from_mask(header.channel_mask, info.channels)
@@ -109,6 +119,12 @@ NOT_MEASURABLE = "not measurable: the arithmetic overflowed on these samples"
 #: Values whose +inf has a meaning: the headroom of digital silence (the mirror of its
 #: -inf sample peak, checker/meters/levels.py).
 UNBOUNDED_OK = ("headroom_db",)
+
+#: (true peak, sample peak, their time keys) of the same signal: the file and its downmix.
+PEAK_PAIRS = (
+    ("true_peak_dbtp", "sample_peak_dbfs", "true_peak_time_s", "sample_peak_time_s"),
+    ("downmix_true_peak_dbtp", "downmix_sample_peak_dbfs", "", ""),
+)
 
 #: What a file with no frames is called, in its findings and in every undefined value's note.
 NO_AUDIO = "no audio (0 frames)"
@@ -233,11 +249,12 @@ def guard_values(values: dict[str, Any]) -> None:
     """The last line of defence before values leave: true peak is never below sample peak
     (the interpolated signal passes through every sample), and no number is NaN or +inf
     (None with a note instead; -inf stays: digital silence; so does UNBOUNDED_OK's +inf)."""
-    tp, sp = values.get("true_peak_dbtp"), values.get("sample_peak_dbfs")
-    if isinstance(tp, float) and isinstance(sp, float) and math.isfinite(sp) and tp < sp:
-        values["true_peak_dbtp"] = sp
-        if "true_peak_time_s" in values and "sample_peak_time_s" in values:
-            values["true_peak_time_s"] = values["sample_peak_time_s"]
+    for tp_key, sp_key, tp_time, sp_time in PEAK_PAIRS:
+        tp, sp = values.get(tp_key), values.get(sp_key)
+        if isinstance(tp, float) and isinstance(sp, float) and math.isfinite(sp) and tp < sp:
+            values[tp_key] = sp
+            if tp_time in values and sp_time in values:
+                values[tp_time] = values[sp_time]
     for key, value in list(values.items()):
         if key in UNBOUNDED_OK:
             continue
@@ -343,6 +360,8 @@ def _measure(
             "measure it again once it is complete"
         )
     findings.extend(header.findings if header else ())
+    if header is not None and layout.source == "given":
+        findings.extend(mask_disagreement(header.channel_mask, layout))
     series: dict[str, Any] = {}
     for meter in meters:
         result = meter.result()
