@@ -241,11 +241,15 @@ class LoudnessMeter:
         by measure() as each block is decoded, possibly in the read-ahead thread: only this
         step touches the filter state then)."""
         n = block.frames
-        if not self.native or n == 0 or self.active.size == 0 or out_of_range(block):
-            return  # out of range: feed() filters the block measure() has set to 0 there
+        if not self.native or n == 0 or self.active.size == 0:
+            return
         start = block.start
         last, cuts = self._substeps(start, n, ((start + 1) * 1000 - 1) // self.rate)
-        pieces = native.kweight_sums(block.xt, self.rows, self.sos, self.zi, self.weights, cuts)
+        xt = block.xt
+        if out_of_range(block):  # NaN/Inf/huge (counted by the levels meter) filtered as 0;
+            # here, not in feed(): with read-ahead the next block's prepare may already run
+            xt = np.where(np.abs(xt) <= MAX_SAMPLE_MAGNITUDE, xt, 0.0)
+        pieces = native.kweight_sums(xt, self.rows, self.sos, self.zi, self.weights, cuts)
         block.memo["loudness"] = (start, last, cuts, pieces)
 
     def feed(self, block: Block) -> None:
