@@ -52,8 +52,8 @@ from collections.abc import Iterator
 
 import numpy as np
 
-DEFAULT_TAPS_PER_PHASE = 32
-DEFAULT_KAISER_BETA = 5.0
+DEFAULT_TAPS_PER_PHASE = 64
+DEFAULT_KAISER_BETA = 4.5
 #: Outputs (input-sample positions) per row of the block-Toeplitz product.
 ROW_POSITIONS = 8
 #: Fixed chunk length in input frames (a multiple of ROW_POSITIONS).
@@ -119,6 +119,25 @@ def design_phases(
 def phase_abs_sums(phases: np.ndarray) -> np.ndarray:
     """Sum of |taps| of each phase: |y_p| <= this * max |x| over the window."""
     return np.abs(phases).sum(axis=0)
+
+
+def step_weights(taps: np.ndarray) -> np.ndarray:
+    """Per row of ``taps`` (rows, T; tap q at ``m + q - (T // 2 - 1)``): the sum of |w_i|
+    in ``y = x[m] * sum(taps) + sum_i w_i * (x[m + i + 1] - x[m + i])``.
+
+    Abel summation: with ``d_i = x[m + i + 1] - x[m + i]``, a sample ``r`` ahead of m is
+    ``x[m] + d_0 + ... + d_(r-1)`` and one ``r`` behind is ``x[m] - d_(-1) - ... - d_(-r)``,
+    so ``w_i`` is the sum of the taps beyond ``i`` (i >= 0) or minus the sum of the taps
+    at or before ``i`` (i < 0). Hence ``|y| <= |sum(taps)| * max|x| + result * max|d|``
+    over the filter's window: a bound far below ``sum|taps| * max|x|`` for content whose
+    neighbouring samples are close (most programme).
+    """
+    taps = np.asarray(taps, dtype=np.float64)
+    back = taps.shape[1] // 2 - 1
+    ahead = np.cumsum(taps[:, ::-1], axis=1)[:, ::-1]  # ahead[:, q] = sum of taps q..T-1
+    behind = np.cumsum(taps, axis=1)  # behind[:, q] = sum of taps 0..q
+    # i >= 0: taps beyond i are q >= back + i + 1; i < 0: taps at or before i are q <= back + i
+    return np.abs(ahead[:, back + 1 :]).sum(axis=1) + np.abs(behind[:, :back]).sum(axis=1)
 
 
 def refine_gain_bound(omega_max: float) -> float:

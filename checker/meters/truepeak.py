@@ -76,6 +76,7 @@ from typing import Any
 import numpy as np
 
 from checker.audio import Block, StreamInfo
+from checker.dsp import native
 from checker.dsp.interp import (
     CHUNK_FRAMES,
     ROW_POSITIONS,
@@ -88,6 +89,7 @@ from checker.dsp.interp import (
     phase_abs_sums,
     refine_gain_bound,
     refine_peaks,
+    step_weights,
 )
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
@@ -164,10 +166,19 @@ class TruePeakMeter:
         phases = design_phases(factor)
         self.interp_taps = phases.shape[0]
         self.interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
-        self.fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS)
-        self.tap_bound = max(
-            float(phase_abs_sums(phases.astype(np.float32)).max()),
-            float(phase_abs_sums(self.fine_taps.T).max()),
+        #: Phases 1..factor-1 as rows (float32), for the compiled grid.
+        self.phase_rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
+        self.fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS, self.interp_taps)
+        # Skip bound over every grid phase (as the float32 product uses them) and fine offset.
+        rows = np.concatenate([phases.T.astype(np.float32).astype(np.float64), self.fine_taps])
+        self.tap_bound = float(phase_abs_sums(rows.T).max())
+        self.bound = np.array(
+            [
+                self.tap_bound,
+                float(np.abs(rows.sum(axis=1)).max()),
+                float(step_weights(rows).max()),
+                BOUND_MARGIN,
+            ]
         )
         self.fine_omega = math.pi / FINE_STEPS
         self.fine_bound = refine_gain_bound(self.fine_omega)
@@ -183,6 +194,9 @@ class TruePeakMeter:
             holdback=math.ceil(EDGE_S * self.rate_hz) + 1,  # the last 5 ms wait for result()
         )
         self.edge_dominance = 10.0 ** (EDGE_DOMINANCE_DB / 20.0)
+        #: Largest gain from a grid value to the reading that can change the result.
+        self.fine_gain = self.fine_bound * self.edge_dominance
+        self.native = native.enabled()
         self.state = _State(
             best=np.zeros(self.channels),
             best_index=np.full(self.channels, -1, dtype=np.int64),
@@ -198,13 +212,70 @@ class TruePeakMeter:
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
         chunks = list(self.stream.push(x))  # views of one buffer, valid until the next push
-        skipped = self._skipped_chunks(chunks) if self.skip and chunks else None
+        if chunks and chunks[0][0] == 0:  # the file's start: edge rule, per chunk below
+            self._chunk(self.state, 0, chunks[0][1], None)
+            chunks = chunks[1:]
+        if not chunks:
+            return
+        if self.native and self.skip and self._evenly_spaced(chunks):
+            self._native_chunks(chunks)
+            return
+        skipped = self._skipped_chunks(chunks) if self.skip else None
         for i, (j, window) in enumerate(chunks):
             if skipped is not None and skipped[i]:
                 self.seen += self.channels
                 self.state.in_run[:] = False
                 continue
             self._chunk(self.state, j, window, None)
+
+    def _evenly_spaced(self, chunks: list[tuple[int, np.ndarray]]) -> bool:
+        first = chunks[0][1]
+        hop = self.stream.step * first.strides[1]
+        return chunks[-1][1].ctypes.data == first.ctypes.data + (len(chunks) - 1) * hop
+
+    def _native_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
+        """Compiled twin of the numpy path below (kernels.c, dc_tp_chunks): skip test,
+        grid, maxima and overs of all of a block's chunks in one call; the refinement of
+        chunks that could raise a maximum stays here, in chunk order."""
+        st = self.state
+        first = chunks[0][1]  # (channels, window) view; the others follow it evenly
+        step = self.stream.step
+        span = (len(chunks) - 1) * step + first.shape[1]
+        buf = np.lib.stride_tricks.as_strided(
+            first, (self.channels, span), first.strides, writeable=False
+        )
+        cap = max(self.max_positions - len(st.over_index), 0)
+        in_run = st.in_run.astype(np.uint8)
+        computed, top, overs, starts = native.tp_chunks(
+            buf, step, len(chunks), self.interp.window_frames,
+            self.interp.history + ROW_POSITIONS, CHUNK_FRAMES, self.phase_rows, self.factor,
+            self.bound, self.fine_gain, self.ceiling_amp, st.best.copy(), in_run, cap,
+        )  # fmt: skip
+        self.seen += len(chunks) * self.channels
+        self.computed += computed
+        st.in_run[:] = in_run.astype(bool)
+        st.overs += overs
+        origin = chunks[0][0] * CHUNK_FRAMES * self.factor  # grid index of the first centre
+        events = sorted((origin + k, c) for c, ks in enumerate(starts) for k in ks)
+        st.over_index.extend(k for k, _ in events[:cap])
+        lo = ROW_POSITIONS * self.factor
+        for i, (j, window) in enumerate(chunks):
+            for c in np.flatnonzero(top[i] * self.refine_bound > st.best):
+                if top[i, c] > 0.0 and top[i, c] * self.refine_bound > st.best[c]:
+                    y = self._grid(window[c])
+                    a = np.abs(y)
+                    centres = a[lo : lo + CHUNK_FRAMES * self.factor]
+                    base = (j * CHUNK_FRAMES - ROW_POSITIONS) * self.factor
+                    self._refine(st, c, window[c], y, a, centres, lo, float(top[i, c]), base)
+
+    def _grid(self, window: np.ndarray) -> np.ndarray:
+        """Oversampled grid of one chunk-channel window (compiled or numpy)."""
+        if not self.native or self.factor == 1:
+            return self.interp.grid(window)
+        back = self.interp_taps // 2 - 1
+        lo = self.interp.history - back
+        w = window[lo : lo + self.interp.positions + self.interp_taps - 1]
+        return native.tp_grid(w, self.interp.positions, self.phase_rows, self.factor)
 
     def _skipped_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> np.ndarray:
         """Per chunk: True when _chunk would skip it on every channel. Tested for all of a
@@ -215,19 +286,23 @@ class TruePeakMeter:
         count, width = len(chunks), first.shape[1]
         size = first.strides[1]
         hop = self.stream.step * size
-        if chunks[-1][1].ctypes.data != first.ctypes.data + (count - 1) * hop:
+        if not self._evenly_spaced(chunks):
             return np.zeros(count, dtype=bool)  # not evenly spaced views: test per chunk
         windows = np.lib.stride_tricks.as_strided(
             first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
         )
         peaks = np.maximum(windows.max(axis=2), -windows.min(axis=2))
-        return self._skippable(peaks, self.state.best[:, None]).all(axis=0)
+        steps = np.abs(np.diff(windows, axis=2)).max(axis=2)
+        return self._skippable(peaks, steps, self.state.best[:, None]).all(axis=0)
 
-    def _skippable(self, peaks: np.ndarray, best: np.ndarray) -> np.ndarray:
-        """Where a window whose samples peak at ``peaks`` cannot beat the running maxima
-        ``best`` nor reach the ceiling (the exact bound in the module docstring)."""
-        reach = peaks.astype(np.float64) * (self.tap_bound * (1.0 + BOUND_MARGIN))
-        return (reach * self.fine_bound * self.edge_dominance <= best) & (reach <= self.ceiling_amp)
+    def _skippable(self, peaks: np.ndarray, steps: np.ndarray, best: np.ndarray) -> np.ndarray:
+        """Where a window whose samples peak at ``peaks`` and step by at most ``steps``
+        cannot beat the running maxima ``best`` nor reach the ceiling (the exact bound in
+        the module docstring; kernels.c tp_reach does the same arithmetic)."""
+        b = self.bound
+        p = peaks.astype(np.float64)
+        reach = np.minimum(b[0] * p, b[1] * p + b[2] * steps.astype(np.float64)) * (1.0 + b[3])
+        return (reach * self.fine_gain <= best) & (reach <= self.ceiling_amp)
 
     def _edge_masks(
         self, base: int, lo: int, hi: int, last_frame: int | None
@@ -264,8 +339,11 @@ class TruePeakMeter:
             hi = lo + (last_frame - j * CHUNK_FRAMES) * factor + 1
         base = (j * CHUNK_FRAMES - ROW_POSITIONS) * factor  # grid index of window grid 0
         masks = self._edge_masks(base, lo, hi, last_frame)
-        peaks = np.maximum(window.max(axis=1), -window.min(axis=1))
-        skippable = self._skippable(peaks, st.best) if self.skip else None
+        skippable = None
+        if self.skip:
+            peaks = np.maximum(window.max(axis=1), -window.min(axis=1))
+            steps = np.abs(np.diff(window, axis=1)).max(axis=1)
+            skippable = self._skippable(peaks, steps, st.best)
         events: list[tuple[int, int]] = []
         for c in range(self.channels):
             self.seen += 1
@@ -273,7 +351,7 @@ class TruePeakMeter:
                 st.in_run[c] = False
                 continue
             self.computed += 1
-            y = self.interp.grid(window[c])
+            y = self._grid(window[c])
             a = np.abs(y)
             centres = a[lo:hi] if masks is None else a[lo:hi] * masks[0]
             top = float(centres.max())
@@ -297,7 +375,7 @@ class TruePeakMeter:
             events.sort()
             st.over_index.extend(k for k, _ in events[: self.max_positions - len(st.over_index)])
 
-    def _refine(self, st, c, win, y, a, centres, lo, top, base, masks, last_frame) -> None:
+    def _refine(self, st, c, win, y, a, centres, lo, top, base, masks=None, last_frame=None):
         """Update channel c's maximum from this chunk: grid values, plus a fine evaluation
         of the filter around the FINE_CANDIDATES local maxima with the largest
         sinusoid-fit estimates among those that could beat the running maximum."""
