@@ -4,8 +4,10 @@ Method
 ------
 - Oversampling reaching at least 192 kHz: 4x below 96 kHz, 2x from 96 kHz,
   1x from 192 kHz (``true_peak_oversampling``). Our own filter
-  (checker/dsp/interp.py): Kaiser-windowed sinc, 32 taps per phase, cutoff at
-  the input Nyquist, so phase 0 is the input sample itself. All channels
+  (checker/dsp/interp.py): Kaiser-windowed sinc, 64 taps per phase, beta 4.5,
+  cutoff at the input Nyquist, so phase 0 is the input sample itself; flat to
+  0.47 fs (gain of every phase within -0.035 / +0.042 dB), down to -0.29 dB at
+  0.48 fs, falling to 0 at Nyquist for the half-sample phase. All channels
   (LFE included) are measured.
 - Between the oversampled points: around the local maxima that could beat the
   running maximum, the 4 with the largest three-point sinusoid-fit estimates
@@ -13,12 +15,17 @@ Method
   per input sample over +-1 grid step, and the largest of those is refined once
   more by the sinusoid fit (at most +0.01 dB at that spacing). The reading is
   the filter's own band-limited reconstruction, not a model of it.
-- Bound reached by the default, measured on sines of amplitude A, 0.005-0.45 fs,
-  24 phases each, at 44.1 / 48 / 96 kHz away from file edges (tests assert
-  0.02 dB low and 0.05 dB high): at most 0.002 dB below 20 log10(A), at most
-  0.04 dB above (the filter's passband ripple near 0.45 fs). At 192 kHz and up
-  (1x: the grid is the samples, the fine evaluation still interpolates) the
-  same bound is tested for tones up to fs / 4 only.
+- Accuracy (measured; tests/test_truepeak.py, tests/test_truepeak_transients.py;
+  the README's accuracy table): sines of amplitude A, 0.01-0.45 fs, 12 phases,
+  44.1 / 48 / 96 kHz, away from file edges: 0.002 dB below to 0.032 dB above
+  20 log10(A) (tests assert 0.02 / 0.05). Gaussian-envelope bursts (1.5 and 3
+  periods) and noise band-limited to 0.45 or 0.48 fs, against FFT interpolation:
+  0.004 dB low to 0.010 dB high (bursts), 0.07 dB low at worst (noise in
+  0.46-0.48 fs). Above 0.48 fs the transition band reads low: band-pass noise
+  0.48-0.49 fs up to 0.3 dB, 0.49-0.5 fs up to 2 dB; full-band white noise from
+  0.15 dB low to 0.22 dB high. At 192 kHz and up (1x: the grid is the samples,
+  the fine evaluation still interpolates) the sine bound is tested for tones up
+  to fs / 4 only.
 - Samples are converted to float32 before interpolation (exact for 8-24 bit
   PCM; about 1e-6 dB for 32-bit and float data). Non-finite samples of float
   files (NaN, Inf; counted by the levels meter) are taken as 0 here.
@@ -26,13 +33,13 @@ Method
 Edges (decision)
 ----------------
 Outside the file the signal is zero, and an interpolated point counts only when
-the filter's whole window (16 samples back, 16 ahead) lies inside the file; in
-the first and last 16 samples (0.33 ms at 48 kHz) only the samples themselves
+the filter's whole window (32 samples back, 32 ahead) lies inside the file; in
+the first and last 32 samples (0.67 ms at 48 kHz) only the samples themselves
 count. Reason: a file that starts or stops mid-waveform (as the published EBU
 Tech 3341 test tones do) is a step, and any interpolator rings on it; with zero
 padding this filter read cases 17 and 18 0.43 and 0.73 dB high, outside the
-document's +0.2 dB. With the rule they read within 0.01 dB. The price: a real
-inter-sample peak within 0.33 ms of either end is read as its sample value.
+document's +0.2 dB. With the rule they read within 0.03 dB. The price: a real
+inter-sample peak within 0.67 ms of either end is read as its sample value.
 ``true_peak_at_edge`` is set when the maximum lies within the first or last
 5 ms AND exceeds every point in between by more than 0.05 dB (our over-read
 bound): a steady tone, whose maximum recurs all through the file, is not an
@@ -54,16 +61,32 @@ Speed: skipping chunks
 ----------------------
 The input is processed in fixed chunks of 4096 frames aligned to file positions
 (so any block split gives bit-identical results). A chunk of a channel is not
-interpolated when ``E * F * B * max|x over its window| * (1 + 1e-4)`` cannot
-exceed the channel's running maximum and ``B * max|x| * (1 + 1e-4)`` cannot
-exceed the ceiling, with B the largest sum of |taps| of any grid phase or fine
-offset (2.54), F = 1.0012 the largest gain of the final sinusoid fit and
-E = 0.05 dB the edge-dominance margin (so a skipped chunk cannot change the
-edge decision either): an exact bound (the margin covers float32 rounding), so
-the result equals the unskipped computation bit for bit
-(``TruePeakMeter(..., skip=False)`` to check). The test runs for all of a block's
-chunks at once (one reduction over their windows, against the maxima as they stand
-before the block); only chunks that some channel cannot skip reach the per-chunk code.
+interpolated when ``E * F * R`` cannot exceed the channel's running maximum and
+``R`` cannot exceed the ceiling, where R bounds every interpolated value in the
+chunk from its window's largest sample P and largest step between neighbouring
+samples D (both float32, exact maxima):
+``R = min(B * P, S * P + C * D) * (1 + 1e-4)``, with, over every grid phase and
+fine offset, B the largest sum of |taps| (3.02), S the largest |sum of taps|
+(1, the DC gain) and C the largest sum of |w_i| of the step form
+``y = x[m] * sum(taps) + sum_i w_i (x[m+i+1] - x[m+i])`` (1.58;
+interp.step_weights). The step form makes the bound follow the content: a
+chunk of low-pass programme whose samples step by a tenth of its peak reaches
+at most 1.16 P instead of 3.02 P. F = 1.0012 is the largest gain of the final
+sinusoid fit and E = 0.05 dB the edge-dominance margin (so a skipped chunk
+cannot change the edge decision either); the margin covers float32 rounding
+(sums of 64 products err below 2e-5 of the bound). The bound is exact, so the
+result equals the unskipped computation bit for bit
+(``TruePeakMeter(..., skip=False)`` to check).
+
+With the compiled kernels (checker/dsp/kernels.c, true-peak section) one call
+per block does, for every chunk and channel, the skip test, the grid, its
+largest value and the overs (``dc_tp_chunks``; its numpy twin is the per-chunk
+code here); maxima found earlier in the same call tighten the test for later
+chunks. Only chunk-channels whose grid could raise the running maximum come
+back to Python for the refinement (their grid recomputed by ``dc_tp_grid``,
+the same bits). The numpy path tests all of a block's chunks at once (one
+reduction over their windows, against the maxima as they stand before the
+block) and sends the rest to the per-chunk code.
 """
 
 from __future__ import annotations
