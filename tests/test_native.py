@@ -381,9 +381,9 @@ def test_truepeak_meter_gives_the_same_results_on_both_paths(rate, channels):
     # Compiled block routine (dc_tp_chunks, dc_tp_grid) against the numpy twin: equal up
     # to float32 summation order (1e-5 dB); over counts and times equal (no grid value
     # lies within rounding of the ceiling in this signal).
-    _, x = _programme(3.0, channels, rate, seed=rate + channels)
+    _, x = _programme(1.5 if channels > 2 else 3.0, channels, rate, seed=rate + channels)
     x = x * 2.5  # peaks above the -1 dBTP ceiling: overs on both paths
-    for block in (4_800, 1_000, 30_000):
+    for block in (4_800, 1_000) if channels > 2 else (4_800, 1_000, 30_000):
         compiled = _tp_result(x, rate, block)
         with native.disabled():
             plain = _tp_result(x, rate, block)
