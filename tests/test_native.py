@@ -376,7 +376,7 @@ def _tp_result(x: np.ndarray, rate: int, block: int, **kw) -> dict:
 
 
 @needs_kernels
-@pytest.mark.parametrize("rate,channels", [(48_000, 2), (44_100, 1), (96_000, 6)])
+@pytest.mark.parametrize("rate,channels", [(48_000, 2), (44_100, 1), (96_000, 6), (192_000, 2)])
 def test_truepeak_meter_gives_the_same_results_on_both_paths(rate, channels):
     # Compiled block routine (dc_tp_chunks, dc_tp_grid) against the numpy twin: equal up
     # to float32 summation order (1e-5 dB); over counts and times equal (no grid value
