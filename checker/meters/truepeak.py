@@ -314,17 +314,21 @@ class TruePeakMeter:
         windows = np.lib.stride_tricks.as_strided(
             first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
         )
-        peaks = np.maximum(windows.max(axis=2), -windows.min(axis=2))
-        steps = np.abs(np.diff(windows, axis=2)).max(axis=2)
-        return self._skippable(peaks, steps, self.state.best[:, None]).all(axis=0)
+        return self._skippable(windows, self.state.best[:, None]).all(axis=0)
 
-    def _skippable(self, peaks: np.ndarray, steps: np.ndarray, best: np.ndarray) -> np.ndarray:
-        """Where a window whose samples peak at ``peaks`` and step by at most ``steps``
-        cannot beat the running maxima ``best`` nor reach the ceiling (the exact bound in
-        the module docstring; kernels.c tp_reach does the same arithmetic)."""
+    def _skippable(self, windows: np.ndarray, best: np.ndarray) -> np.ndarray:
+        """Where a window (last axis: samples) cannot beat the running maxima ``best`` nor
+        reach the ceiling: the exact bound of the module docstring, from the window's
+        largest sample and largest step (kernels.c tp_reach does the same arithmetic).
+        The steps are only looked at when the samples alone leave the question open
+        (``S * P`` is a lower bound of the reach, as B >= S)."""
         b = self.bound
-        p = peaks.astype(np.float64)
-        reach = np.minimum(b[0] * p, b[1] * p + b[2] * steps.astype(np.float64)) * (1.0 + b[3])
+        p = np.maximum(windows.max(axis=-1), -windows.min(axis=-1)).astype(np.float64)
+        floor = b[1] * p * (1.0 + b[3])
+        if not ((floor * self.fine_gain <= best) & (floor <= self.ceiling_amp)).any():
+            return np.zeros(np.broadcast_shapes(p.shape, np.shape(best)), dtype=bool)
+        d = np.abs(np.diff(windows, axis=-1)).max(axis=-1).astype(np.float64)
+        reach = np.minimum(b[0] * p, b[1] * p + b[2] * d) * (1.0 + b[3])
         return (reach * self.fine_gain <= best) & (reach <= self.ceiling_amp)
 
     def _edge_masks(
@@ -362,11 +366,7 @@ class TruePeakMeter:
             hi = lo + (last_frame - j * CHUNK_FRAMES) * factor + 1
         base = (j * CHUNK_FRAMES - ROW_POSITIONS) * factor  # grid index of window grid 0
         masks = self._edge_masks(base, lo, hi, last_frame)
-        skippable = None
-        if self.skip:
-            peaks = np.maximum(window.max(axis=1), -window.min(axis=1))
-            steps = np.abs(np.diff(window, axis=1)).max(axis=1)
-            skippable = self._skippable(peaks, steps, st.best)
+        skippable = self._skippable(window, st.best) if self.skip else None
         events: list[tuple[int, int]] = []
         for c in range(self.channels):
             self.seen += 1
