@@ -103,8 +103,8 @@ def capped_jobs(jobs: int | None, on_note: Callable[[str], Any] | None = None) -
     if jobs > cores:
         if on_note:
             on_note(
-                f"jobs = {jobs} capped to {cores}, the cores this process may use "
-                "(one worker process per core is the most that helps)"
+                f"jobs = {jobs} capped to {cores}, the usable cores "
+                "(more worker processes than cores do not help)"
             )
         return cores
     return jobs

@@ -250,6 +250,9 @@ def classify(path: str, named: bool = False, head: bytes | None = None) -> Intak
             f"unfinished transfer ('{partial}') of {_article(found.name)}",
             found.name,
         )
+    system = _system_file(base)
+    if system and not found.audio and not named:  # '._take.wav' is no take
+        return Intake(path, NOT_CHECKED, system, found.name)
     if found.kind == READABLE:
         return Intake(path, MEASURE, _name_remark(base, ext, found), found.name, True)
     if found.kind == UNSUPPORTED:
@@ -331,17 +334,25 @@ def _name_remark(base: str, ext: str, found: Sniffed) -> str:
 
 def _not_deliverable(base: str, ext: str, found: Sniffed) -> str | None:
     """Why a file is clearly not a deliverable, or None when that is not clear."""
-    lower = base.lower()
-    if lower.startswith("._"):
-        return "macOS resource fork ('._' file written beside a copied file)"
-    if lower in SYSTEM_FILES:
-        return "folder settings of the operating system"
+    system = _system_file(base)
+    if system:
+        return system
     if found.kind == NOT_AUDIO:
         return found.name
     if found.kind == EMPTY:
         return "empty file (0 bytes)"
     if ext in SIDECAR_EXTENSIONS:
         return SIDECAR_EXTENSIONS[ext]
+    return None
+
+
+def _system_file(base: str) -> str | None:
+    """Why a file the operating system leaves behind is not a deliverable, or None."""
+    lower = base.lower()
+    if lower.startswith("._"):
+        return "macOS resource fork ('._' file written beside a copied file)"
+    if lower in SYSTEM_FILES:
+        return "folder settings of the operating system"
     return None
 
 

@@ -16,6 +16,7 @@ raise on it. Two views of a name:
 
 from __future__ import annotations
 
+import os
 import re
 from typing import Any
 
@@ -42,6 +43,14 @@ def readable(text: str) -> str:
 def for_terminal(text: str) -> str:
     """``readable(text)`` with control and bidi characters made visible; see module doc."""
     return _CONTROL.sub(_escape_control, readable(str(text)))
+
+
+def for_libsndfile(path: str) -> str | bytes:
+    """``path`` as soundfile should be given it: the str itself, or its bytes when the name
+    is not valid UTF-8 (soundfile encodes a str strictly, which fails on such a name)."""
+    if _SURROGATE.search(path) is None:
+        return path
+    return os.fsencode(path)
 
 
 def readable_data(value: Any) -> Any:

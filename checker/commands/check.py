@@ -218,15 +218,14 @@ def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> lis
 def intake_lines(results, not_checked) -> list[str]:
     """What happened to every file found: measured / error (not measured) / not checked,
     then the files not checked with their reasons (the first WORST_SHOWN)."""
-    if not not_checked:
-        return []
     files = [r for r in results if r.kind != "set"]
     measured = sum(1 for r in files if r.measurement is not None)
     lines = [
         f"files found: {len(files) + len(not_checked)}: {measured} measured, "
         f"{len(files) - measured} error (not measured), {len(not_checked)} not checked"
     ]
-    lines.append("not checked (not deliverables):")
+    if not_checked:
+        lines.append("not checked (not deliverables):")
     for item in not_checked[:WORST_SHOWN]:
         lines.append(_one_line(f"  {item['path']}: {item['reason']}"))
     if len(not_checked) > WORST_SHOWN:
