@@ -294,12 +294,7 @@ def run_batch(
             store.store.close()
     ordered = sorted(results.values(), key=lambda r: (os.path.normcase(r.path), r.path))
     if store.failure is not None:
-        raise StoreFailed(
-            f"{store.failure} (this run's {len(ordered)} results are in the reports, "
-            "not in the store)",
-            run,
-            ordered,
-        )
+        raise StoreFailed(str(store.failure), run, ordered)
     return run, ordered
 
 

@@ -296,7 +296,7 @@ def _with_stem_sets(folders, args, profile, results, out_dir):
         return add_stem_sets(folders, args.mix, profile, results, None, args.fresh), exc
 
 
-def _report(out_dir: Path, run_info, results, notes, out, err) -> int:
+def _report(out_dir: Path, run_info, results, notes, out, err, stored: bool = True) -> int:
     """Write the reports and print the summary; the run's exit code, or EXIT_OUTPUT (with a
     one-line message) when the reports cannot be written."""
     from checker.report import write_reports
@@ -306,10 +306,14 @@ def _report(out_dir: Path, run_info, results, notes, out, err) -> int:
     except OSError as exc:
         what, todo = os_cause(exc)
         where = exc.filename or out_dir
+        kept = (
+            "the measurements are kept in the results store, so nothing is measured twice"
+            if stored
+            else "files finished before the store failed are kept in it"
+        )
         raise OutputError(
             f"reports: cannot write {where}: {what} ({exc.strerror or exc}); {todo}, then run "
-            "the same command again: the measurements are kept in the results store, so "
-            "nothing is measured twice"
+            f"the same command again: {kept}"
         ) from None
     written = {"store": out_dir / "results.sqlite", **written}
     for line in summary_lines(run_info, results, written, notes):
@@ -324,8 +328,10 @@ def _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err) 
     if folders:
         results = add_stem_sets(folders, args.mix, profile, results, None, args.fresh)
     try:
-        _report(out_dir, exc.run, results, notes, out, err)
+        _report(out_dir, exc.run, results, notes, out, err, stored=False)
+        where = f"the reports in {out_dir} hold all {len(exc.results)} files of this run"
     except OutputError as report_failure:
         print(for_terminal(f"deliverycheck: {report_failure}"), file=err)
-    print(for_terminal(f"deliverycheck: {exc}"), file=err)
+        where = "the reports could not be written either"
+    print(for_terminal(f"deliverycheck: {exc} ({where})"), file=err)
     return EXIT_OUTPUT
