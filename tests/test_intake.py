@@ -376,3 +376,17 @@ def test_a_schema_2_store_gains_ctime_and_measures_its_files_once_more(tmp_path)
         assert store.schema_version() == 3
         assert store.measurement_attempts() == {str(src / "a.wav"): 2}
         assert store.counts()["runs"] == 3
+
+
+def test_measure_prints_odd_names_readable_and_inert(tmp_path):
+    odd = INTAKE["wav_non_utf8_name"](tmp_path)
+    esc = INTAKE["wav_escape_sequence_name"](tmp_path)
+    stdout, stderr = io.StringIO(), io.StringIO()
+    assert main(["measure", str(odd), str(esc)], out=stdout, err=stderr) == 0, stderr.getvalue()
+    lines = stdout.getvalue().splitlines()
+    assert f"{tmp_path}/caf\\xe9-latin1.wav" in lines
+    assert f"{tmp_path}/x\\x1b[2K\\x1b[32mok\\x1b[0m.wav" in lines
+    assert "\x1b" not in stdout.getvalue()
+    stdout = io.StringIO()
+    assert main(["measure", "--json", str(odd)], out=stdout, err=stderr) == 0
+    assert json.loads(stdout.getvalue())["path"] == f"{tmp_path}/caf\\xe9-latin1.wav"
