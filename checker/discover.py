@@ -30,7 +30,17 @@ from dataclasses import dataclass, field
 
 import soundfile as sf
 
-from checker.sniff import EMPTY, HEAD_BYTES, NOT_AUDIO, READABLE, UNSUPPORTED, Sniffed, sniff
+from checker.sniff import (
+    EMPTY,
+    HEAD_BYTES,
+    ID3_MAX_BYTES,
+    NOT_AUDIO,
+    READABLE,
+    UNSUPPORTED,
+    Sniffed,
+    id3_end,
+    sniff,
+)
 
 MEASURE = "measure"
 REFUSE = "refuse"
@@ -211,8 +221,14 @@ def _extension(name: str) -> str:
 
 
 def _read_head(path: str) -> bytes:
+    """The first HEAD_BYTES of the file; past a leading ID3 tag when it is longer (up to
+    ID3_MAX_BYTES), so what follows the tag can be recognised."""
     with open(path, "rb") as fh:
-        return fh.read(HEAD_BYTES)
+        head = fh.read(HEAD_BYTES)
+        end = id3_end(head)
+        if end is not None and len(head) < end + 16 <= ID3_MAX_BYTES:
+            head += fh.read(end + 16 - len(head))
+        return head
 
 
 def classify(path: str, named: bool = False, head: bytes | None = None) -> Intake:

@@ -12,8 +12,20 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-#: How many leading bytes sniff() looks at (an ID3v2 tag is skipped when it fits in them).
-HEAD_BYTES = 64 * 1024
+#: How many leading bytes sniff() needs for every signature (and a fair sample of text).
+HEAD_BYTES = 4096
+#: The most read to look past an ID3v2 tag (cover art can make it large): see id3_end().
+ID3_MAX_BYTES = 1024 * 1024
+
+
+def id3_end(head: bytes) -> int | None:
+    """Where the audio after a leading ID3v2 tag starts (10-byte header, syncsafe size,
+    optional 10-byte footer), or None when ``head`` has no tag."""
+    if len(head) < 10 or head[:3] != b"ID3":
+        return None
+    size = (head[6] << 21) | (head[7] << 14) | (head[8] << 7) | head[9]
+    return 10 + size + (10 if head[5] & 0x10 else 0)
+
 
 READABLE = "readable"  # a container libsndfile reads
 UNSUPPORTED = "unsupported"  # audio (or audio-video), but not a container libsndfile reads
@@ -141,10 +153,9 @@ def sniff(head: bytes) -> Sniffed:
 def _after_id3(head: bytes) -> Sniffed:
     """An ID3v2 tag (10-byte header, syncsafe size, optional 10-byte footer) precedes
     MPEG audio, and now and then FLAC or AAC: look past it when it fits in ``head``."""
-    if len(head) < 10:
+    end = id3_end(head)
+    if end is None:
         return Sniffed(READABLE, "MP3 (ID3 tag)")
-    size = (head[6] << 21) | (head[7] << 14) | (head[8] << 7) | head[9]
-    end = 10 + size + (10 if head[5] & 0x10 else 0)
     rest = head[end:]
     if rest.startswith(b"fLaC"):
         return Sniffed(READABLE, "FLAC (after an ID3 tag)")

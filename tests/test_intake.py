@@ -390,3 +390,15 @@ def test_measure_prints_odd_names_readable_and_inert(tmp_path):
     stdout = io.StringIO()
     assert main(["measure", "--json", str(odd)], out=stdout, err=stderr) == 0
     assert json.loads(stdout.getvalue())["path"] == f"{tmp_path}/caf\\xe9-latin1.wav"
+
+
+def test_audio_after_a_long_id3_tag_is_still_recognised(tmp_path):
+    # ID3v2: "ID3", version 4.0, flags 0, size 20000 as four 7-bit syncsafe bytes, then the
+    # tag body (cover art makes it large), then the first frame (here: "fLaC").
+    size = 20_000
+    header = b"ID3\x04\x00\x00" + bytes(
+        (size >> 21 & 0x7F, size >> 14 & 0x7F, size >> 7 & 0x7F, size & 0x7F)
+    )
+    (tmp_path / "cover.flac").write_bytes(header + bytes(size) + b"fLaC" + bytes(60))
+    intake = classify(str(tmp_path / "cover.flac"))
+    assert (intake.outcome, intake.content) == (MEASURE, "FLAC (after an ID3 tag)")
