@@ -22,6 +22,7 @@ from checker.errors import (
     UsageError,
     os_cause,
 )
+from checker.layout import check_layout_text
 from checker.names import for_terminal
 from checker.progress import Progress
 from checker.verdict import ERROR, FAIL, PASS, STATUS_ORDER, WARN
@@ -74,6 +75,12 @@ def add_parser(sub) -> argparse.ArgumentParser:
         metavar="FILE",
         help="reference mix for a stem set: the stems must rebuild it (null test); "
         "takes one folder PATH",
+    )
+    p.add_argument(
+        "--layout",
+        metavar="LABELS",
+        help='channel order of the files with as many channels, e.g. "L C R Ls Rs LFE" '
+        "(overrides the profile's; other files keep their own)",
     )
     p.add_argument(
         "--worker-memory-mb",
@@ -150,7 +157,13 @@ def measure_stem_set(stem_set, options, store=None, fresh: bool = False):
 
 
 def add_stem_sets(
-    folders: list[str], mix: str | None, profile, results: list, store=None, fresh: bool = False
+    folders: list[str],
+    mix: str | None,
+    profile,
+    results: list,
+    store=None,
+    fresh: bool = False,
+    layout: str | None = None,
 ) -> list:
     """Set-level rows (one per folder), each followed by its stems' own rows."""
     from checker.batch import measure_options
@@ -160,7 +173,7 @@ def add_stem_sets(
     ordered, used = [], set()
     for folder in folders:
         stem_set = stem_set_from_folder(folder, mix)
-        sm = measure_stem_set(stem_set, measure_options(profile), store, fresh)
+        sm = measure_stem_set(stem_set, measure_options(profile, layout), store, fresh)
         ordered.append(evaluate_set(sm, profile))
         for stem in stem_set.stem_paths:
             row = by_path.get(os.path.abspath(stem))
@@ -242,6 +255,8 @@ def run(args, out: TextIO, err: TextIO) -> int:
     if args.worker_memory_mb is not None and args.worker_memory_mb < 0:
         raise UsageError(f"--worker-memory-mb: {args.worker_memory_mb} (expected >= 0)")
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    if args.layout is not None:
+        check_layout_text(args.layout)
     folders = stem_set_folders(args, profile)
     out_dir = Path(args.out)
     notes: list[str] = []
@@ -258,6 +273,7 @@ def run(args, out: TextIO, err: TextIO) -> int:
             progress=progress,
             memory_mb=args.worker_memory_mb or None,
             on_note=notes.append,
+            layout=args.layout,
         )
     except StoreFailed as exc:  # the store failed part-way: report what was measured
         return _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err)
@@ -291,9 +307,13 @@ def _with_stem_sets(folders, args, profile, results, out_dir):
 
     try:
         with open_store(out_dir) as store:
-            return add_stem_sets(folders, args.mix, profile, results, store, args.fresh), None
+            rows = add_stem_sets(
+                folders, args.mix, profile, results, store, args.fresh, args.layout
+            )
+            return rows, None
     except StoreError as exc:
-        return add_stem_sets(folders, args.mix, profile, results, None, args.fresh), exc
+        rows = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
+        return rows, exc
 
 
 def _report(out_dir: Path, run_info, results, notes, out, err, stored: bool = True) -> int:
@@ -326,7 +346,7 @@ def _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err) 
     failed. Exit EXIT_OUTPUT either way."""
     results = exc.results
     if folders:
-        results = add_stem_sets(folders, args.mix, profile, results, None, args.fresh)
+        results = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
     try:
         _report(out_dir, exc.run, results, notes, out, err, stored=False)
         where = f"the reports in {out_dir} hold all {len(exc.results)} files of this run"
