@@ -11,7 +11,8 @@ Kinds:
   target         |measured - value| <= tolerance_lu (integrated loudness)
   one_of         measured is one of a list (format)
   allowed        value = false: the measured list (e.g. silent channels) must be empty
-  declared       |declared - measured| <= value (bext loudness vs measurement)
+  declared       |declared - measured| <= value, for every carrier's declared key (all
+                 keys but the last; the last is the measured one)
   required       value = true: every listed measured key must be present (not None)
   must_be_true   value = true: the measured flag must be True (stem sets)
   no_cutoff_below  a steep cutoff, if found, must not lie below value
@@ -103,6 +104,13 @@ def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
 
 
 _LOWER = "lower the level or use a true-peak limiter"
+_REWRITE = "rewrite the declared loudness from the measurement"
+
+
+def _carriers(quantity: str) -> tuple[str, ...]:
+    """The declared_* keys of one quantity: bext's, then iXML's and axml's."""
+    return tuple(f"declared_{c}{quantity}" for c in ("", "ixml_", "axml_"))
+
 
 # fmt: off
 CATALOGUE: tuple[LimitDef, ...] = (
@@ -199,24 +207,27 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("steep_cutoff_min_hz", NO_CUTOFF_BELOW, "steep_cutoff_hz", "Hz", "steep cutoff",
        "bandwidth", none_means_ok=True, lead="bandwidth_note",
        hint="a brick-wall cutoff is typical of a lossy source or a resampler"),
-    # metadata (Broadcast WAV bext, EBU Tech 3285 v2)
+    # metadata: declared loudness in bext (EBU Tech 3285 v2), iXML and axml (ADM
+    # loudnessMetadata), each carrier checked; gain tags (R128 in Opus, ReplayGain)
     _d("declared_integrated_tolerance_lu", DECLARED,
-       ("declared_integrated_lufs", "integrated_lufs"), "LU", "declared integrated loudness",
-       "metadata", hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("integrated_lufs"), "integrated_lufs"), "LU",
+       "declared integrated loudness", "metadata", hint=_REWRITE),
     _d("declared_loudness_range_tolerance_lu", DECLARED,
-       ("declared_loudness_range_lu", "loudness_range_lu"), "LU", "declared loudness range",
-       "metadata", hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("loudness_range_lu"), "loudness_range_lu"), "LU", "declared loudness range",
+       "metadata", hint=_REWRITE),
     _d("declared_true_peak_tolerance_db", DECLARED,
-       ("declared_true_peak_dbtp", "true_peak_dbtp"), "dB", "declared true peak", "metadata",
-       hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("true_peak_dbtp"), "true_peak_dbtp"), "dB", "declared true peak", "metadata",
+       hint=_REWRITE),
     _d("declared_momentary_tolerance_lu", DECLARED,
-       ("declared_max_momentary_lufs", "max_momentary_lufs"), "LU",
-       "declared maximum momentary loudness", "metadata",
-       hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("max_momentary_lufs"), "max_momentary_lufs"), "LU",
+       "declared maximum momentary loudness", "metadata", hint=_REWRITE),
     _d("declared_short_term_tolerance_lu", DECLARED,
-       ("declared_max_short_term_lufs", "max_short_term_lufs"), "LU",
-       "declared maximum short-term loudness", "metadata",
-       hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("max_short_term_lufs"), "max_short_term_lufs"), "LU",
+       "declared maximum short-term loudness", "metadata", hint=_REWRITE),
+    _d("gain_tag_tolerance_lu", DECLARED,
+       ("declared_gain_tag_integrated_lufs", "integrated_lufs"), "LU",
+       "integrated loudness implied by the track gain tag", "metadata",
+       hint="rewrite the gain tag from the measurement: players apply it as it is"),
     _d("declared_loudness_required", REQUIRED, DECLARED_KEYS, "", "bext loudness fields",
        "metadata", item="bool", hint="write a version 2 bext chunk with all five loudness values"),
     # stem sets (issue 8): judged on the set-level values, not on each stem

@@ -10,6 +10,7 @@ import numpy as np
 
 from checker import __version__
 from checker.audio import Block, StreamInfo, read_blocks
+from checker.carriers import add_player_loudness, read_carriers
 from checker.errors import AudioReadError, UnsupportedAudioError
 from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
 from checker.meters import meter_classes
@@ -19,7 +20,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine4"
+ENGINE_VERSION = f"{__version__}+engine5"
 
 
 class FlatValues:
@@ -244,6 +245,7 @@ def measure(
                 meter.feed(block)
     values = stream_values(info, frames, layout)
     values.update(header.values() if header else empty_values())
+    values.update(read_carriers(str(path), header))  # iXML, axml, Vorbis/Opus gain tags
     findings = stream_findings(info, frames)
     after = _stat(str(path))
     if after != before:
@@ -259,6 +261,8 @@ def measure(
         findings.extend(getattr(result, "findings", ()) or ())
         if hasattr(meter, "series"):
             series.update(meter.series())
+    add_player_loudness(values)
+    findings.extend(values["metadata_findings"])
     return Measurement(
         path=str(path),
         values=plain(values),  # plain data; NaN would become None (plain maps it)

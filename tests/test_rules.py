@@ -148,21 +148,25 @@ CASES = [
      None),
     ("declared_integrated_tolerance_lu", 1.0, {}, {"integrated_lufs": -23.0},
      {"declared_integrated_lufs": -24.0}, {"declared_integrated_lufs": -24.01},
-     "Declared integrated loudness is -24.01 LUFS but -23.00 LUFS was measured "
+     "Declared integrated loudness (bext) is -24.01 LUFS but -23.00 LUFS was measured "
      "(1.01 LU apart, tolerance 1.00 LU)", None),
     ("declared_loudness_range_tolerance_lu", 1.0, {}, {"loudness_range_lu": 8.0},
      {"declared_loudness_range_lu": 9.0}, {"declared_loudness_range_lu": 9.01},
-     "Declared loudness range is 9.01 LU but 8.00 LU was measured", None),
+     "Declared loudness range (bext) is 9.01 LU but 8.00 LU was measured", None),
     ("declared_true_peak_tolerance_db", 0.5, {}, {"true_peak_dbtp": -1.5},
      {"declared_true_peak_dbtp": -1.0}, {"declared_true_peak_dbtp": -0.99},
-     "Declared true peak is -0.99 dBTP but -1.50 dBTP was measured (0.51 dB apart, "
+     "Declared true peak (bext) is -0.99 dBTP but -1.50 dBTP was measured (0.51 dB apart, "
      "tolerance 0.50 dB)", None),
     ("declared_momentary_tolerance_lu", 1.0, {}, {"max_momentary_lufs": -15.0},
      {"declared_max_momentary_lufs": -16.0}, {"declared_max_momentary_lufs": -16.01},
-     "Declared maximum momentary loudness is -16.01 LUFS but -15.00 LUFS was measured", None),
+     "Declared maximum momentary loudness (bext) is -16.01 LUFS but -15.00 LUFS was measured", None),
     ("declared_short_term_tolerance_lu", 1.0, {}, {"max_short_term_lufs": -18.0},
      {"declared_max_short_term_lufs": -17.0}, {"declared_max_short_term_lufs": -16.99},
-     "Declared maximum short-term loudness is -16.99 LUFS but -18.00 LUFS was measured", None),
+     "Declared maximum short-term loudness (bext) is -16.99 LUFS but -18.00 LUFS was measured", None),
+    ("gain_tag_tolerance_lu", 1.0, {}, {"integrated_lufs": -16.0},
+     {"declared_gain_tag_integrated_lufs": -17.0}, {"declared_gain_tag_integrated_lufs": -17.01},
+     "Integrated loudness implied by the track gain tag (gain tag) is -17.01 LUFS but -16.00 "
+     "LUFS was measured (1.01 LU apart", None),
     ("declared_loudness_required", True, {}, {k: -20.0 for k in DECLARED_KEYS}, {},
      {"declared_loudness_range_lu": None},
      "Bext loudness fields missing: declared_loudness_range_lu", None),
@@ -231,7 +235,7 @@ def test_unmeasured_value_is_flagged_never_passed(tmp_path, case):
     d = next(d for d in CATALOGUE if d.key == key)
     if d.kind == "declared":  # a declared value with nothing measured to compare it to
         values = {**base, **at_limit}
-        values[d.measure[1]] = None
+        values[d.measure[-1]] = None
     elif d.none_means_ok:  # None means "no steep cutoff found"; a missing key is unmeasured
         values = dict(base)
     else:
