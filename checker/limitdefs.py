@@ -66,6 +66,7 @@ UNIT_SUFFIXES = {
     "s": "s",
     "hz": "Hz",
     "frames": "frames",
+    "kbps": "kbit/s",
 }
 
 DECLARED_KEYS = (
@@ -125,6 +126,11 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="re-export with an allowed channel count"),
     _d("containers", ONE_OF, "container", "", "file type", "format", item="str",
        hint="re-export in an allowed file type"),
+    _d("codecs", ONE_OF, "codec", "", "codec", "format", item="str",
+       hint="encode again from the master with an allowed codec"),
+    _d("bit_rate_min_kbps", MIN, "bit_rate_kbps", "kbit/s", "bit rate", "format",
+       none_means_ok=True,  # None: a lossless file (FLAC) has no nominal bit rate
+       hint="encode again from the master (never from a lossy file) at a higher bit rate"),
     _d("duration_min_s", MIN, "duration_s", "s", "duration", "format",
        hint="check the export range: the file is too short"),
     _d("duration_max_s", MAX, "duration_s", "s", "duration", "format",

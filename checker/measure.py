@@ -13,6 +13,7 @@ from checker.audio import Block, StreamInfo, read_blocks
 from checker.carriers import add_player_loudness, read_carriers
 from checker.errors import AudioReadError, UnsupportedAudioError
 from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
+from checker.lossy import finish_lossy, read_lossy
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
@@ -246,6 +247,17 @@ def measure(
     values = stream_values(info, frames, layout)
     values.update(header.values() if header else empty_values())
     values.update(read_carriers(str(path), header))  # iXML, axml, Vorbis/Opus gain tags
+    values.update(
+        read_lossy(
+            str(path),
+            info.subtype,
+            info.container,
+            info.sample_rate_hz,
+            info.channels,
+            info.format_bits,
+        )
+    )  # codec, bit rate, gapless
+    finish_lossy(values, frames)
     findings = stream_findings(info, frames)
     after = _stat(str(path))
     if after != before:
@@ -263,6 +275,7 @@ def measure(
             series.update(meter.series())
     add_player_loudness(values)
     findings.extend(values["metadata_findings"])
+    findings.extend(values["lossy_findings"])
     return Measurement(
         path=str(path),
         values=plain(values),  # plain data; NaN would become None (plain maps it)
