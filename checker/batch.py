@@ -60,14 +60,15 @@ def measure_options(profile) -> MeasureOptions:
     reference in MeasureOptions (recorded with each measurement as
     ``true_peak_ceiling_dbtp``), while rules judge ``true_peak_dbtp`` against the
     profile's own ceiling."""
-    del profile
-    return MeasureOptions()
+    return MeasureOptions(encode=getattr(profile, "encode", None))  # the round trip asked for
 
 
 def options_key(options: MeasureOptions) -> str:
     """The measurement options that change values (block size does not)."""
     d = dataclasses.asdict(options)
     d.pop("block_frames", None)
+    if d.get("encode") is None:
+        d.pop("encode", None)  # no round trip: the key of every earlier measurement
     return json.dumps(d, sort_keys=True)
 
 

@@ -27,6 +27,7 @@ missing from the values is still "could not be measured".
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -54,7 +55,13 @@ SECTIONS = (
     "bandwidth",
     "metadata",
     "stems",
+    "encode",
 )
+
+#: The encode round trip a profile may ask for ([encode] codec, bit_rate_kbps): the
+#: codecs libsndfile writes and the bit rates offered (kbit/s).
+ENCODE_CODECS = ("mp3", "vorbis", "opus")
+ENCODE_BIT_RATES = (32, 48, 64, 80, 96, 112, 128, 160, 192, 224, 256, 320)
 
 #: Unit suffix of a key -> the unit shown to people.
 UNIT_SUFFIXES = {
@@ -98,6 +105,8 @@ class LimitDef:
     #: (bool key, words): when the measured flag is False the value is unreliable, so a
     #: violation is at most a warning and the words say why
     caveat: tuple[str, str] | None = None
+    #: (values, measured, limit) -> words appended to a max/min violation (gain advice)
+    advice: Callable[[Mapping[str, Any], float, float], str] | None = None
 
 
 def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
@@ -106,6 +115,23 @@ def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
 
 _LOWER = "lower the level or use a true-peak limiter"
 _REWRITE = "rewrite the declared loudness from the measurement"
+
+
+def _encode_advice(values: Mapping[str, Any], measured: float, limit: float) -> str:
+    """ "lower by 0.8 dB to keep -1.0 dBTP after 128 kbit/s MP3" (the encoded true peak
+    moves with the master's gain, so the excess is the gain to take off)."""
+    excess = math.ceil((measured - limit) * 10 - 1e-9) / 10
+    codec = {"mp3": "MP3", "vorbis": "Ogg Vorbis", "opus": "Opus"}.get(
+        str(values.get("encoded_codec")), str(values.get("encoded_codec"))
+    )
+    rate = values.get("encoded_bit_rate_kbps")
+    after = f"{rate:g} kbit/s {codec}" if isinstance(rate, (int, float)) else codec
+    encoder = values.get("encoded_encoder") or "libsndfile's encoder"
+    return (
+        f" (lower the master by {excess:.1f} dB, or limit its true peak that much lower, "
+        f"to keep {limit:.1f} dBTP after {after}; measured with {encoder} through "
+        "libsndfile: one encoder's behaviour, an estimate for others)"
+    )
 
 
 def _carriers(quantity: str) -> tuple[str, ...]:
@@ -236,6 +262,10 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="rewrite the gain tag from the measurement: players apply it as it is"),
     _d("declared_loudness_required", REQUIRED, DECLARED_KEYS, "", "bext loudness fields",
        "metadata", item="bool", hint="write a version 2 bext chunk with all five loudness values"),
+    # encode round trip (only measured when the profile's [encode] section asks for it)
+    _d("encoded_true_peak_max_dbtp", MAX, "encoded_true_peak_dbtp", "dBTP",
+       "true peak after the encode round trip", "encode", advice=_encode_advice,
+       hint="leave more headroom for the codec"),
     # stem sets (issue 8): judged on the set-level values, not on each stem
     _d("formats_must_match", MUST_BE_TRUE, "set_formats_match", "", "stem formats match",
        "stems", item="bool", scope=SET,

@@ -16,6 +16,7 @@ from checker.layout import Layout, default_layout, layout_from_mask, parse_layou
 from checker.lossy import finish_lossy, read_lossy
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
+from checker.roundtrip import add_shifts, round_trip_meters
 from checker.serial import plain
 from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
@@ -225,6 +226,7 @@ def measure(
     info = check_header(str(path), info, header)
     layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
+    meters += round_trip_meters(info, layout, options)  # only when a profile asks for one
     # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
     # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
     hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
@@ -274,6 +276,7 @@ def measure(
         if hasattr(meter, "series"):
             series.update(meter.series())
     add_player_loudness(values)
+    add_shifts(values)
     findings.extend(values["metadata_findings"])
     findings.extend(values["lossy_findings"])
     return Measurement(

@@ -193,6 +193,8 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
         items = values[d.detail[0]]
         items = items if isinstance(items, list) else [items]
         detail = f" ({d.detail[1]}: {', '.join(str(i) for i in items)})"
+    if d.advice is not None and severity == lim.severity:
+        detail += d.advice(values, m, limit)
     if d.caveat is not None and values.get(d.caveat[0]) is False:
         severity = "warn"
         detail += f" ({d.caveat[1]}: at most a warning)"

@@ -43,7 +43,10 @@ def one_limit_profile(tmp_path, key, value, severity="fail", **extra):
     section = next(d.section for d in CATALOGUE if d.key == key)
     fields = {"value": value, **extra, "severity": severity, "source": "test value"}
     inline = ", ".join(f"{k} = {toml_value(v)}" for k, v in fields.items())
-    return load_profile(str(write_profile(tmp_path, f"[{section}]\n{key} = {{ {inline} }}")))
+    # an encode limit needs the round trip it judges ([encode] codec and bit rate)
+    asks = 'codec = "mp3"\nbit_rate_kbps = 128\n' if section == "encode" else ""
+    body = f"[{section}]\n{asks}{key} = {{ {inline} }}"
+    return load_profile(str(write_profile(tmp_path, body)))
 
 
 def m(values: dict) -> Measurement:
@@ -174,6 +177,13 @@ CASES = [
     ("declared_loudness_required", True, {}, {k: -20.0 for k in DECLARED_KEYS}, {},
      {"declared_loudness_range_lu": None},
      "Bext loudness fields missing: declared_loudness_range_lu", None),
+    ("encoded_true_peak_max_dbtp", -1.0, {},
+     {"encoded_codec": "mp3", "encoded_bit_rate_kbps": 128.0, "encoded_encoder": "LAME3.100"},
+     {"encoded_true_peak_dbtp": -1.0}, {"encoded_true_peak_dbtp": -0.2},
+     "True peak after the encode round trip is -0.20 dBTP, above the limit of -1.00 dBTP "
+     "(lower the master by 0.8 dB, or limit its true peak that much lower, to keep -1.0 dBTP "
+     "after 128 kbit/s MP3; measured with LAME3.100 through libsndfile: one encoder's "
+     "behaviour, an estimate for others): leave more headroom", None),
     ("formats_must_match", True, {}, SET_BASE, {"set_formats_match": True},
      {"set_formats_match": False}, "Stem formats match: no: re-export every stem", None),
     ("length_mismatch_max_frames", 0, {}, SET_BASE, {"set_length_mismatch_frames": 0},
