@@ -171,3 +171,15 @@ def test_encode_section_is_validated(tmp_path, body, expected):
     with pytest.raises(ProfileError) as info:
         load_profile(str(write_profile(tmp_path, body)))
     assert expected in str(info.value)
+
+
+def test_readme_encode_example_validates(tmp_path):
+    """The README's round-trip profile example loads and asks for 128 kbit/s MP3."""
+    import re
+    from pathlib import Path
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    block = next(b for b in re.findall(r"```toml\n(.*?)```", readme, re.S) if "[encode]" in b)
+    path = tmp_path / "podcast-mp3-check.toml"
+    path.write_text(block)
+    assert load_profile(str(path)).encode == ("mp3", 128.0)
