@@ -4,7 +4,8 @@
   ``LOUDNESS`` block ``LOUDNESS_VALUE`` ...).
 - WAV ``axml`` chunk: ADM ``loudnessMetadata`` (ITU-R BS.2076): integratedLoudness,
   loudnessRange, maxTruePeak, maxMomentary, maxShortTerm, dialogLoudness.
-- Vorbis comments (Ogg Vorbis, FLAC): ``REPLAYGAIN_TRACK_GAIN`` / ``_ALBUM_GAIN`` / ``_PEAK``.
+- Vorbis comments (Ogg Vorbis, FLAC) and ID3v2 ``TXXX`` frames (MP3):
+  ``REPLAYGAIN_TRACK_GAIN`` / ``_ALBUM_GAIN`` / ``_PEAK``.
 - Opus (RFC 7845): the identification header's output gain and the ``R128_TRACK_GAIN`` /
   ``R128_ALBUM_GAIN`` comments (Q7.8 dB relative to -23 LUFS).
 
@@ -138,6 +139,8 @@ def read_carriers(path: str, header: WavHeader | None) -> dict[str, Any]:
                     _ogg(fh, size, out, carriers, findings)
                 elif magic == b"fLaC":
                     _flac(fh, size, out, carriers, findings)
+                elif magic[:3] == b"ID3":
+                    _id3(fh, size, out, carriers, findings)
     except OSError as exc:  # the audio reader reports an unreadable file on its own
         findings.append(f"metadata not read: {exc.strerror or exc}")
     _derive_tag_loudness(out)
@@ -447,3 +450,92 @@ def _derive_tag_loudness(out: dict[str, Any]) -> None:
         opus = out.get("gain_tag_carrier") == "OpusTags"
         ref = R128_REFERENCE_LUFS if opus else REPLAYGAIN_REFERENCE_LUFS
         out["declared_gain_tag_integrated_lufs"] = round(ref - gain, 4)
+
+
+# ---------------------------------------------------------------- ID3v2 (MP3)
+
+
+def _id3(fh: BinaryIO, size: int, out, carriers, findings) -> None:
+    """TXXX frames of an ID3v2.3 / 2.4 tag (ID3v2.4.0 structure 3.1 and 4; frames 4.2.6):
+    header "ID3", version, flags, syncsafe size; frames of 4-byte id, size (syncsafe in
+    2.4), 2 flag bytes; TXXX = encoding byte, description, value."""
+    fh.seek(0)
+    head = fh.read(10)
+    if len(head) < 10 or any(b & 0x80 for b in head[6:10]):
+        findings.append("ID3v2 tag header: size is not syncsafe (tag not read)")
+        return
+    version, flags = head[3], head[5]
+    tag_size = _syncsafe(head[6:10])
+    if version not in (3, 4):
+        return  # ID3v2.2 (3-character frame ids) is not read
+    if 10 + tag_size > size:
+        findings.append(f"ID3v2 tag claims {tag_size} bytes, {size - 10} present (tag not read)")
+        return
+    if tag_size > MAX_XML_BYTES:
+        findings.append(f"ID3v2 tag of {tag_size} bytes (over {MAX_XML_BYTES}): not read")
+        return
+    body = fh.read(tag_size)
+    if flags & 0x80 and version == 3:
+        body = body.replace(b"\xff\x00", b"\xff")  # whole-tag unsynchronisation (2.3)
+    pos = 0
+    if flags & 0x40 and len(body) >= 4:  # extended header
+        ext = struct.unpack_from(">I", body, 0)[0]
+        pos = _syncsafe(body[0:4]) if version == 4 else ext + 4
+    where = "ID3v2 TXXX"
+    seen: set[str] = set()
+    while pos + 10 <= len(body) and body[pos] != 0:
+        fid, raw_size, fflags = (
+            body[pos : pos + 4],
+            body[pos + 4 : pos + 8],
+            body[pos + 8 : pos + 10],
+        )
+        fsize = _syncsafe(raw_size) if version == 4 else int.from_bytes(raw_size, "big")
+        start = pos + 10
+        if start + fsize > len(body):
+            findings.append(
+                f"ID3v2 frame {_printable(fid)} at byte {10 + pos} claims {fsize} bytes, "
+                f"{len(body) - start} left in the tag"
+            )
+            break
+        if fid == b"TXXX" and not (version == 4 and fflags[1] & 0x0F):
+            text = _txxx(body[start : start + fsize])
+            if text is not None:
+                _one_comment(text.encode("utf-8"), where, seen, out, findings)
+        pos = start + fsize
+    if seen:
+        if "id3v2 txxx" not in carriers:
+            carriers.append("id3v2 txxx")
+        out["gain_tag_carrier"] = where
+
+
+def _syncsafe(b: bytes) -> int:
+    """A syncsafe integer: 7 bits per byte, most significant first (ID3v2.4.0 6.2)."""
+    n = 0
+    for x in b:
+        n = (n << 7) | (x & 0x7F)
+    return n
+
+
+def _printable(b: bytes) -> str:
+    return "".join(chr(x) if 0x20 <= x < 0x7F else "?" for x in b)
+
+
+def _txxx(data: bytes) -> str | None:
+    """'DESCRIPTION=value' of a TXXX frame body, or None when unreadable."""
+    if not data:
+        return None
+    enc, rest = data[0], data[1:]
+    codec = {0: "latin-1", 1: "utf-16", 2: "utf-16-be", 3: "utf-8"}.get(enc)
+    if codec is None:
+        return None
+    if enc in (1, 2):
+        cut = next((i for i in range(0, len(rest) - 1, 2) if rest[i : i + 2] == b"\0\0"), -1)
+        desc, value = (rest[:cut], rest[cut + 2 :]) if cut >= 0 else (rest, b"")
+        vcodec = "utf-16" if enc == 1 else codec
+    else:
+        desc, _, value = rest.partition(b"\0")
+        vcodec = codec
+    try:
+        return f"{desc.decode(codec)}={value.decode(vcodec).strip(chr(0))}"
+    except UnicodeDecodeError:
+        return None

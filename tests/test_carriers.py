@@ -405,3 +405,57 @@ def test_every_file_has_every_carrier_key(tmp_path):
         assert key in m.values
     assert m.declared_carriers == []
     assert m.metadata_findings == []
+
+
+# ---------------------------------------------------------------- ID3v2 TXXX in MP3
+
+
+def id3v24(frames: list[tuple[bytes, bytes]]) -> bytes:
+    """ID3v2.4.0 structure 3.1 (header: 'ID3', 4, 0, flags 0, syncsafe size) and 4.1
+    (frame: id, syncsafe size, two flag bytes)."""
+
+    def syncsafe(n: int) -> bytes:
+        return bytes([(n >> 21) & 0x7F, (n >> 14) & 0x7F, (n >> 7) & 0x7F, n & 0x7F])
+
+    body = b"".join(fid + syncsafe(len(data)) + b"\0\0" + data for fid, data in frames)
+    return b"ID3\x04\x00\x00" + syncsafe(len(body)) + body
+
+
+def txxx(desc: str, value: str, enc: int = 3) -> bytes:
+    """ID3v2.4.0 frames 4.2.6: encoding byte, description, terminator, value."""
+    if enc == 1:
+        return b"\x01" + desc.encode("utf-16") + b"\0\0" + value.encode("utf-16")
+    return bytes([enc]) + desc.encode() + b"\0" + value.encode()
+
+
+def test_id3v2_replaygain_on_a_real_mp3(tmp_path):
+    src = tmp_path / "src.mp3"
+    t = np.arange(44100 * 2) / 44100
+    x = 0.1 * np.sin(2 * np.pi * 997 * t)
+    sf.write(src, np.c_[x, x], 44100, format="MP3", subtype="MPEG_LAYER_III")
+    tag = id3v24(
+        [
+            (b"TIT2", b"\x03An invented episode"),
+            (b"TXXX", txxx("REPLAYGAIN_TRACK_GAIN", "+2.50 dB")),
+            (b"TXXX", txxx("replaygain_album_gain", "-1.00 dB", enc=1)),
+        ]
+    )
+    tagged = tmp_path / "tagged.mp3"
+    tagged.write_bytes(tag + src.read_bytes())
+    m = measure(str(tagged))
+    assert m.replaygain_track_gain_db == 2.5 and m.replaygain_album_gain_db == -1.0
+    assert m.gain_tag_carrier == "ID3v2 TXXX" and "id3v2 txxx" in m.declared_carriers
+    # a player applying the track gain plays the measured loudness + 2.5 dB
+    assert_allclose(m.player_track_integrated_lufs, m.integrated_lufs + 2.5, rtol=0, atol=0.006)
+    assert m.declared_gain_tag_integrated_lufs == -20.5  # -18 - 2.5 (ReplayGain reference)
+    assert m.gapless_mismatch_frames == 0  # the lossy reader skipped the tag too
+
+
+def test_id3v2_frame_past_the_tag_is_a_finding(tmp_path):
+    tag = bytearray(id3v24([(b"TXXX", txxx("REPLAYGAIN_TRACK_GAIN", "-3 dB"))]))
+    tag[17] = 0x7F  # the frame's size now runs past the tag
+    v = carriers_of(tmp_path, bytes(tag) + bytes(100), "t.mp3")
+    assert any("ID3v2 frame TXXX at byte 10 claims" in f for f in v["metadata_findings"])
+    big = b"ID3\x04\x00\x00\x00\x00\x7f\x7f"  # 16383 bytes claimed, none present
+    v = carriers_of(tmp_path, big, "t.mp3")
+    assert any("ID3v2 tag claims 16383 bytes" in f for f in v["metadata_findings"])
