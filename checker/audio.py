@@ -35,6 +35,7 @@ from soundfile import _ffi, _snd  # libsndfile's C functions (see the loop)
 
 from checker.dsp import native
 from checker.errors import AudioReadError, UnsupportedAudioError
+from checker.names import for_libsndfile
 
 MIN_SAMPLE_RATE_HZ = 8_000
 MAX_SAMPLE_RATE_HZ = 768_000
@@ -122,7 +123,7 @@ def open_info(path: str) -> StreamInfo:
     """Read the header only. Raises AudioReadError with a one-line message."""
     check_file(path)
     try:
-        info = sf.info(path)
+        info = sf.info(for_libsndfile(path))
     except Exception as exc:  # soundfile raises several types (LibsndfileError, RuntimeError)
         raise AudioReadError(f"{path}: cannot open as audio ({_clean(exc)})") from None
     return _check_info(path, info)
@@ -212,7 +213,7 @@ def read_blocks(
         raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
     check_file(path)
     try:
-        handle = sf.SoundFile(path)
+        handle = sf.SoundFile(for_libsndfile(path))
     except Exception as exc:
         reason = _clean(exc)
         if "does not exist" in reason:  # libsndfile's words for a codec stream it cannot start

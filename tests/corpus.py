@@ -308,3 +308,54 @@ NAMED_FILES: dict[str, str] = {
 
 def named_file(d: Path, key: str) -> Path:
     return good_wav(d / NAMED_FILES[key])
+
+
+# --- Intake: what a batch finds in a delivery folder -------------------------------------------
+# Each maker writes one file into a folder and returns its path. tests/test_intake.py holds the
+# expected outcome of each (measured / error row / not checked) and the batch that mixes them.
+
+#: ISO base media (MP4/M4A) starts with a box: uint32 size, "ftyp", major brand (ISO/IEC 14496-12).
+M4A_HEAD = struct.pack(">I", 24) + b"ftypM4A " + struct.pack(">I", 0) + b"M4A isom"
+#: AppleDouble header: magic 0x00051607, version 0x00020000 (RFC 1740), then filler and no entries.
+APPLEDOUBLE = b"\x00\x05\x16\x07\x00\x02\x00\x00" + b"Mac OS X        " + b"\x00\x00"
+#: A Finder .DS_Store begins with 00 00 00 01 "Bud1" (from memory: its buddy-allocator header).
+DS_STORE = b"\x00\x00\x00\x01Bud1" + bytes(24)
+
+
+def _wav_named(d: Path, name: str | bytes) -> Path:
+    data = wav_bytes(sine_pcm16(0.5))
+    if isinstance(name, bytes):  # a name that is not valid UTF-8: write it through the OS bytes
+        raw = os.path.join(os.fsencode(d), name)
+        with open(raw, "wb") as fh:
+            fh.write(data)
+        return Path(os.fsdecode(raw))
+    p = d / name
+    p.write_bytes(data)
+    return p
+
+
+INTAKE: dict[str, Callable[[Path], Path]] = {
+    "wav_no_extension": lambda d: _wav_named(d, "episode-12"),
+    "wav_trailing_space": lambda d: _wav_named(d, "final.wav "),
+    "wav_wrong_extension": lambda d: _wav_named(d, "take.dat"),
+    "wav_bwf_extension": lambda d: _wav_named(d, "scene.bwf"),
+    "wav_part": lambda d: _wav_named(d, "episode.wav.part"),
+    "wav_crdownload": lambda d: _wav_named(d, "promo.wav.crdownload"),
+    "wav_non_utf8_name": lambda d: _wav_named(d, b"caf\xe9-latin1.wav"),
+    "wav_escape_sequence_name": lambda d: _wav_named(d, "x\x1b[2K\x1b[32mok\x1b[0m.wav"),
+    "m4a": lambda d: _write(d / "episode.m4a", M4A_HEAD + bytes(200)),
+    "m4a_renamed_wav": lambda d: _write(d / "interview.wav", M4A_HEAD + bytes(200)),
+    "text_as_wav": text_as_wav,
+    "unknown_binary": lambda d: _write(d / "data.bin", bytes(range(1, 200))),
+    "text": lambda d: _write(d / "notes.txt", b"Deliver by Friday.\n"),
+    "image": lambda d: _write(d / "cover.png", png_bytes()),
+    "resource_fork": lambda d: _write(d / "._final.wav", APPLEDOUBLE + bytes(64)),
+    "ds_store": lambda d: _write(d / ".DS_Store", DS_STORE),
+    "peak_sidecar": lambda d: _write(d / "final.wav.reapeaks", bytes(range(1, 100))),
+    "empty_no_extension": lambda d: _write(d / "placeholder", b""),
+}
+
+
+def _write(p: Path, data: bytes) -> Path:
+    p.write_bytes(data)
+    return p

@@ -25,7 +25,7 @@ import pandas as pd
 
 from checker.carriers import CARRIER_KEYS
 from checker.lossy import LOSSY_KEYS
-from checker.results import FileResult
+from checker.results import NOT_CHECKED, FileResult, RunInfo
 from checker.verdict import STATUS_ORDER
 
 GAIN_COLUMNS: tuple[str, ...] = (
@@ -262,6 +262,22 @@ def results_frame(results: Sequence[FileResult]) -> pd.DataFrame:
     """One row per file (worst first), columns in the documented order."""
     ordered = sorted_results(results)
     return _frame([file_row(r) for r in ordered], file_columns(ordered))
+
+
+def not_checked_frame(run: RunInfo, columns: Sequence[str]) -> pd.DataFrame:
+    """One row per file that was not checked (``RunInfo.not_checked``), status "not checked",
+    the reason in ``findings``; the other columns empty. Appended after the checked files."""
+    rows = [
+        {
+            "path": x["path"],
+            "kind": "file",
+            "status": NOT_CHECKED,
+            "flag_count": 0,
+            "findings": x["reason"],
+        }
+        for x in run.not_checked
+    ]
+    return _frame(rows, columns)
 
 
 def flags_frame(results: Sequence[FileResult]) -> pd.DataFrame:
