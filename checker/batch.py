@@ -115,17 +115,23 @@ def measure_options(profile, layout: str | None = None) -> MeasureOptions:
     stored measurements serve every profile: true-peak overs are counted against the fixed
     reference in MeasureOptions (recorded with each measurement as
     ``true_peak_ceiling_dbtp``), while rules judge ``true_peak_dbtp`` against the
-    profile's own ceiling. The one input they take is the files' channel order: ``layout``
+    profile's own ceiling. The inputs they take are the files' channel order: ``layout``
     (the command line's), else the profile's ``[format] channel_layout``; it applies to the
-    files with as many channels as it names."""
+    files with as many channels as it names; and the encode round trip a profile's
+    ``[encode]`` section asks for (a measurement option, part of the cache key)."""
     given = layout or getattr(profile, "channel_layout", None)
-    return MeasureOptions(layout=given, layout_strict=False) if given else MeasureOptions()
+    encode = getattr(profile, "encode", None)  # the round trip asked for, or None
+    if given:
+        return MeasureOptions(layout=given, layout_strict=False, encode=encode)
+    return MeasureOptions(encode=encode)
 
 
 def options_key(options: MeasureOptions) -> str:
     """The measurement options that change values (block size does not)."""
     d = dataclasses.asdict(options)
     d.pop("block_frames", None)
+    if d.get("encode") is None:
+        d.pop("encode", None)  # no round trip: the key of every earlier measurement
     return json.dumps(d, sort_keys=True)
 
 

@@ -11,6 +11,7 @@ import numpy as np
 
 from checker import __version__
 from checker.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range, read_blocks
+from checker.carriers import add_player_loudness, read_carriers
 from checker.containers import ContainerLength, length_values, read_container_length, with_declared
 from checker.errors import AudioReadError, UnsupportedAudioError
 from checker.layout import (
@@ -22,15 +23,17 @@ from checker.layout import (
     parse_layout,
 )
 from checker.limitdefs import UNIT_SUFFIXES
+from checker.lossy import finish_lossy, read_lossy
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
+from checker.roundtrip import add_shifts, round_trip_meters
 from checker.serial import plain
 from checker.streamlength import FlacUnknownLength
 from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine7"
+ENGINE_VERSION = f"{__version__}+engine8"  # 7: containers, extremes; 8: carriers, lossy
 
 
 class FlatValues:
@@ -338,6 +341,7 @@ def _measure(
     info = with_declared(check_header(path, info, header), length)
     layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
+    meters += round_trip_meters(info, layout, options)  # only when a profile asks for one
     # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
     # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
     hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
@@ -349,6 +353,13 @@ def _measure(
         raise type(exc)(f"{exc}; header: {'; '.join(length.findings)}") from None
     values = stream_values(info, frames, layout)
     values.update(header.values() if header else empty_values())
+    values.update(read_carriers(path, header))  # iXML, axml, Vorbis/Opus gain tags
+    values.update(
+        read_lossy(
+            path, info.subtype, info.container, info.sample_rate_hz, info.channels, info.format_bits
+        )
+    )  # codec, bit rate, gapless
+    finish_lossy(values, frames)
     findings = stream_findings(info, frames)
     container, container_findings = length_values(info, frames, length, header)
     values.update(container)
@@ -369,6 +380,10 @@ def _measure(
         findings.extend(getattr(result, "findings", ()) or ())
         if hasattr(meter, "series"):
             series.update(meter.series())
+    add_player_loudness(values)
+    add_shifts(values)
+    findings.extend(values["metadata_findings"])
+    findings.extend(values["lossy_findings"])
     guard_values(values)
     if frames == 0:
         name_no_audio(values)

@@ -19,6 +19,8 @@ from checker.limitdefs import (
     ALLOWED,
     BY_KEY,
     DECLARED,
+    ENCODE_BIT_RATES,
+    ENCODE_CODECS,
     MAX,
     MIN,
     MUST_BE_TRUE,
@@ -34,7 +36,11 @@ META_KEYS = ("name", "title", "version", "description", "extends")
 SEVERITIES = ("fail", "warn")
 MONO_CONVENTIONS = ("single_channel", "dual_mono")
 #: Settings that are not limits: (section, key) -> allowed values.
-SETTINGS = {("loudness", "mono_loudness"): MONO_CONVENTIONS}
+SETTINGS = {
+    ("loudness", "mono_loudness"): MONO_CONVENTIONS,
+    ("encode", "codec"): ENCODE_CODECS,
+    ("encode", "bit_rate_kbps"): ENCODE_BIT_RATES,
+}
 #: The channel order of the delivery's files (a setting, not a limit): "L C R Ls Rs LFE".
 LAYOUT_SETTING = ("format", "channel_layout")
 #: An entry that drops a limit inherited from the parent.

@@ -105,6 +105,8 @@ class Profile:
     #: Channel order of the delivery's files with as many channels ("L C R Ls Rs LFE"), or None.
     channel_layout: str | None = None
     lineage: tuple[str, ...] = field(default_factory=tuple)  # root ancestor first, self last
+    #: The encode round trip asked for ([encode] codec, bit_rate_kbps), or None.
+    encode: tuple[str, float] | None = None
 
     def limit(self, key: str) -> Limit | None:
         for lim in self.limits:
@@ -313,7 +315,22 @@ def _load_path(path: Path) -> Profile:
         mono_loudness=settings.get("mono_loudness", "single_channel"),
         channel_layout=settings.get("channel_layout"),
         lineage=lineage,
+        encode=_encode_request(path, settings, limits),
     )
+
+
+def _encode_request(path: Path, settings: dict, limits: dict) -> tuple[str, float] | None:
+    codec, rate = settings.get("codec"), settings.get("bit_rate_kbps")
+    if (codec is None) != (rate is None):
+        raise ProfileError(
+            f"{path}: encode = codec {codec!r}, bit_rate_kbps {rate!r} (expected both or neither)"
+        )
+    if codec is None and "encoded_true_peak_max_dbtp" in limits:
+        raise ProfileError(
+            f"{path}: encode.encoded_true_peak_max_dbtp without a round trip (expected "
+            '[encode] codec = "mp3" and bit_rate_kbps = 128, for example)'
+        )
+    return None if codec is None else (str(codec), float(rate))
 
 
 def _typed(d: LimitDef, v: Any) -> Any:

@@ -86,6 +86,8 @@ PUBLISHED = [
     # podcast: about -16 LUFS stereo / -19 mono, about +-1 LU, -1 dBTP (common practice)
     ("podcast-stereo", "integrated_target_lufs", -16.0, 1.0, "common practice"),
     ("podcast-stereo", "true_peak_max_dbtp", -1.0, None, "common practice"),
+    ("podcast-stereo-mp3", "integrated_target_lufs", -16.0, 1.0, "common practice"),
+    ("podcast-stereo-mp3", "encoded_true_peak_max_dbtp", -1.0, None, "common practice"),
     ("podcast-mono", "integrated_target_lufs", -19.0, 1.0, "common practice"),
     ("podcast-mono", "true_peak_max_dbtp", -1.0, None, "common practice"),
     # audiobook chapter: RMS -23 to -18 dBFS, sample peak <= -3 dBFS, noise floor <= -60 dBFS,

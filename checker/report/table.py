@@ -7,7 +7,7 @@ Column order of the per-file table (``file_columns``):
    plain_gain_enough, advice), error, findings;
 2. ``MEASUREMENT_COLUMNS``: every measurement key of the shared vocabulary, always present
    (empty when a file has no value), grouped as loudness, true peak, sample levels, silence,
-   channels, bandwidth, stream format, WAV metadata;
+   channels, bandwidth, stream format, WAV metadata, other loudness carriers, lossy stream;
 3. any other measurement key (for example stem-set ``set_`` / ``sum_`` keys), sorted by name.
 
 Cells keep plain Python values: numbers stay numbers, ``None`` stays ``None`` (an empty
@@ -23,6 +23,8 @@ from typing import Any
 
 import pandas as pd
 
+from checker.carriers import CARRIER_KEYS
+from checker.lossy import LOSSY_KEYS
 from checker.results import NOT_CHECKED, FileResult, RunInfo
 from checker.verdict import STATUS_ORDER
 
@@ -140,6 +142,9 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "declared_max_momentary_lufs",
     "declared_max_short_term_lufs",
     "header_findings",
+    # other loudness carriers and lossy stream facts (checker.carriers, checker.lossy)
+    *CARRIER_KEYS,
+    *LOSSY_KEYS,
 )
 
 FLAG_COLUMNS: tuple[str, ...] = (
