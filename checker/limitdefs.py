@@ -230,7 +230,7 @@ CATALOGUE: tuple[LimitDef, ...] = (
        "spread of the stems' content starts", "stems", scope=SET,
        hint="the stems start at different points (a late entry can be arrangement)"),
     _d("slip_max_s", MAX, "set_slip_max_s", "s", "largest stem slip", "stems", scope=SET,
-       detail=("set_slipped_stems", "slipped"),
+       detail=("set_slip_details", "slipped"),
        hint="a stem slipped against the others: re-export it from the session start"),
     _d("sum_clipped_samples_max", MAX, "sum_clipped_samples", "",
        "number of summed samples at or above full scale", "stems", item="int", scope=SET,

@@ -111,4 +111,6 @@ def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):
     assert "profile mastering-stems: 4 files and 1 stem set: 4 pass, 0 warn, 1 fail" in summary
     # The slipped stem is named in the set row's slip flag.
     slip = [f for f in results["stems (set row)"]["verdict"]["flags"] if f["rule"] == "slip_max_s"]
-    assert re.search(r"theme-vocal\.wav", slip[0]["message"])
+    assert re.search(r"theme-vocal\.wav 480 samples \(10\.00 ms\) late", slip[0]["message"])
+    # ... and only that stem (offsets from the signal, not from the first non-zero sample)
+    assert not re.search(r"theme-(drums|bass|keys)", slip[0]["message"])
