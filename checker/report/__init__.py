@@ -1,4 +1,4 @@
-"""Reports: report.csv, flags.csv, results.jsonl and a self-contained report.html.
+"""Reports: report.csv, flags.csv, fixes.csv, results.jsonl and a self-contained report.html.
 
 The one entry point the batch runner calls is :func:`write_reports`; every file is
 written atomically (temporary file in the same directory, fsync, rename).
@@ -12,6 +12,7 @@ from pathlib import Path
 
 from checker.report.atomic import write_text_atomic
 from checker.report.csv_out import write_csv
+from checker.report.fixes import fixes_frame
 from checker.report.html import render_html
 from checker.report.jsonl import write_jsonl
 from checker.report.table import flags_frame, results_frame, sorted_results
@@ -20,19 +21,21 @@ from checker.results import FileResult, RunInfo
 REPORT_FILES = {
     "csv": "report.csv",
     "flags": "flags.csv",
+    "fixes": "fixes.csv",
     "html": "report.html",
     "jsonl": "results.jsonl",
 }
 
 
 def write_reports(out_dir: Path, run: RunInfo, results: Sequence[FileResult]) -> dict[str, Path]:
-    """Write the four reports into ``out_dir`` (created if missing); returns name -> path."""
+    """Write the five reports into ``out_dir`` (created if missing); returns name -> path."""
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     ordered = sorted_results(results)
     paths = {name: out_dir / file for name, file in REPORT_FILES.items()}
     write_csv(results_frame(ordered), paths["csv"])
     write_csv(flags_frame(ordered), paths["flags"])
+    write_csv(fixes_frame(ordered), paths["fixes"])
     write_jsonl(ordered, paths["jsonl"])
     generated_at = datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     write_text_atomic(paths["html"], render_html(run, ordered, generated_at=generated_at))

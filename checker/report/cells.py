@@ -125,7 +125,9 @@ def channel_cells(key: str, value: Any, count: int) -> dict[str, Any]:
     }
 
 
-_TARGET_TEXT = re.compile(r"\s*([-+]?\d+(?:\.\d+)?)\s*\+-\s*(\d+(?:\.\d+)?)\s*")
+_TARGET_TEXT = re.compile(
+    r"\s*(?:target\s+)?([-+]?\d+(?:\.\d+)?)(?:\s*[A-Za-z]+)?\s*\+-\s*(\d+(?:\.\d+)?)(?:\s*LU)?\s*"
+)
 
 
 def limit_cells(rule: str, limit: Any, unit: str) -> dict[str, Any]:

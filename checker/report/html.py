@@ -21,6 +21,7 @@ from html import escape
 from importlib import resources
 from typing import Any
 
+from checker.report.fixes import fixes_html
 from checker.report.htmldata import embed_json, file_detail, profile_limits_for_graph
 from checker.report.table import list_text, sorted_results
 from checker.results import FileResult, RunInfo
@@ -346,6 +347,7 @@ def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) 
             else ""
         ),
         "limits": _profile_table(run),
+        "fixes": fixes_html(ordered, prefix),
         "limit_count": str(len(run.profile_limits)),
         "tiles": tiles,
         "filters": filters,

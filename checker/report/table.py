@@ -286,7 +286,7 @@ def file_row(result: FileResult) -> dict[str, Any]:
     return row
 
 
-def _frame(rows: list[dict[str, Any]], columns: Sequence[str]) -> pd.DataFrame:
+def object_frame(rows: list[dict[str, Any]], columns: Sequence[str]) -> pd.DataFrame:
     # object dtype everywhere: None stays None (never NaN), ints stay ints.
     data = {c: pd.Series([row.get(c) for row in rows], dtype=object) for c in columns}
     return pd.DataFrame(data, columns=list(columns))
@@ -296,7 +296,7 @@ def results_frame(results: Sequence[FileResult]) -> pd.DataFrame:
     """One row per file (worst first), columns in the documented order (report.csv cells)."""
     ordered = sorted_results(results)
     channels = channel_count(ordered)
-    return _frame([csv_file_row(r, channels) for r in ordered], file_columns(ordered))
+    return object_frame([csv_file_row(r, channels) for r in ordered], file_columns(ordered))
 
 
 #: The rule name of a flags.csv row for a file that could not be checked.
@@ -340,4 +340,4 @@ def flags_frame(results: Sequence[FileResult]) -> pd.DataFrame:
                     "source": f.source,
                 }
             )
-    return _frame(rows, FLAG_COLUMNS)
+    return object_frame(rows, FLAG_COLUMNS)
