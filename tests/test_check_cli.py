@@ -157,6 +157,30 @@ def test_exit_codes(tmp_path):
     assert cli("check", str(good))[0] == EXIT_USAGE  # --profile is required
 
 
+def test_strict_makes_warnings_fail_and_a_mistyped_path_is_a_usage_error(tmp_path):
+    (tmp_path / "in").mkdir()
+    take = write(tmp_path / "in" / "a.wav", sine(1000.0, -6.0, 1.0, channels=2))
+    warn = tmp_path / "warn.toml"
+    # a -6 dBFS sine's sample peak is -6 dBFS (module doc): above the -10 dBFS warning level
+    text = PROFILE_TEMPLATE.format(name="w", limit=-10.0, tp=3.0)
+    warn.write_text(text.replace('"fail"', '"warn"', 1))  # the sample-peak limit only warns
+    base = ["check", str(take), "--profile", str(warn), "--quiet"]
+    code, out, _ = cli(*base, "--out", str(tmp_path / "o"))
+    assert code == EXIT_OK and "1 warn" in out  # warnings pass by default
+    code, out, _ = cli(*base, "--out", str(tmp_path / "o"), "--strict")
+    assert code == EXIT_FAILED and "1 warn" in out
+    # A PATH that names nothing: usage error, nothing checked or written.
+    typo = tmp_path / "in" / "a.wvа"
+    code, _, err = cli("check", str(typo), "--profile", str(warn), "--out", str(tmp_path / "t"))
+    assert code == EXIT_USAGE and str(typo) in err and "nothing checked" in err
+    assert not (tmp_path / "t").exists()
+    # A file that exists but cannot be read stays an error row (exit 3).
+    (tmp_path / "in" / "b.wav").write_bytes(b"RIFF\x00\x00\x00\x00WAVE")
+    code, out, _ = cli("check", str(tmp_path / "in"), "--profile", str(warn), "--quiet",
+                       "--out", str(tmp_path / "u"))  # fmt: skip
+    assert code == EXIT_UNCHECKED and "1 error" in out
+
+
 # -- re-check with another profile -------------------------------------------------------
 
 

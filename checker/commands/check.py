@@ -42,6 +42,11 @@ def add_parser(sub) -> argparse.ArgumentParser:
     p.add_argument("--fresh", action="store_true", help="measure every file again (ignore store)")
     p.add_argument("--quiet", action="store_true", help="no progress line")
     p.add_argument(
+        "--strict",
+        action="store_true",
+        help="warnings fail too (exit 1): for pipelines that accept only clean passes",
+    )
+    p.add_argument(
         "--cluster",
         metavar="ADDRESS",
         help="measure on a Dask scheduler (tcp://host:8786) or local:N for N local workers",
@@ -68,13 +73,22 @@ def add_parser(sub) -> argparse.ArgumentParser:
     return p
 
 
-def exit_code(results) -> int:
+def exit_code(results, strict: bool = False) -> int:
+    """3 when a file could not be checked, 1 when one failed (or warned, with --strict), else 0."""
     statuses = {r.status for r in results}
     if ERROR in statuses:
         return EXIT_UNCHECKED
-    if FAIL in statuses:
+    if FAIL in statuses or (strict and WARN in statuses):
         return EXIT_FAILED
     return EXIT_OK
+
+
+def missing_paths(paths) -> list[str]:
+    """PATH arguments that name nothing at all (a typo): a usage error, nothing is checked.
+
+    A dangling symlink exists as a name and stays a per-file error row.
+    """
+    return [p for p in paths if not os.path.lexists(p)]
 
 
 def stem_set_folders(args, profile) -> list[str]:
@@ -204,6 +218,11 @@ def run(args, out: TextIO, err: TextIO) -> int:
         raise UsageError(f"--jobs: jobs = {args.jobs} (expected >= 1)")
     if args.worker_memory_mb is not None and args.worker_memory_mb < 0:
         raise UsageError(f"--worker-memory-mb: {args.worker_memory_mb} (expected >= 0)")
+    missing = missing_paths(args.paths)
+    if missing:
+        raise UsageError(
+            f"PATH: {', '.join(missing)} (expected an existing file or folder; nothing checked)"
+        )
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
     folders = stem_set_folders(args, profile)
     out_dir = Path(args.out)
@@ -244,4 +263,4 @@ def run(args, out: TextIO, err: TextIO) -> int:
     written = {"store": out_dir / "results.sqlite", **written}
     for line in summary_lines(run_info, results, written, notes):
         print(line, file=out)
-    return exit_code(results)
+    return exit_code(results, strict=getattr(args, "strict", False))
