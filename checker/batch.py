@@ -171,12 +171,12 @@ def run_batch(
                 cached = store.get_measurement(ident, ENGINE_VERSION, okey)
                 if cached is not None:
                     _keep(store, run, results, _judge(path, cached, profile, evaluate))
-                    progress.advance()
+                    progress.advance(stored=True)
                     continue
                 error = store.get_error(ident, ENGINE_VERSION, okey)
                 if error is not None:
                     _keep(store, run, results, FileResult.failed(path, error))
-                    progress.advance()
+                    progress.advance(stored=True)
                     continue
             idents[index] = ident
             tasks.append(Task(index=index, path=path, size_bytes=ident.size_bytes))

@@ -244,8 +244,9 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="the summed stems leave too little headroom: lower every stem by the same amount"),
     _d("null_residual_max_db", MAX, "null_residual_db", "dB",
        "null-test residual (mix minus stem sum, relative to the mix)", "stems", scope=SET,
-       applies_if="set_mix_length_frames",
-       hint="the stems do not rebuild the reference mix: check for missing or changed stems"),
+       applies_if="set_mix_length_frames", detail=("set_slip_details", "moved against the mix"),
+       hint="the stems do not rebuild the reference mix: move any stem named here back into "
+            "place, else check for missing or changed stems"),
 )
 # fmt: on
 

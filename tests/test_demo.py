@@ -114,3 +114,7 @@ def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):
     assert re.search(r"theme-vocal\.wav 480 samples \(10\.00 ms\) late", slip[0]["message"])
     # ... and only that stem (offsets from the signal, not from the first non-zero sample)
     assert not re.search(r"theme-(drums|bass|keys)", slip[0]["message"])
+    # The null-test flag names the stem to move (not a best-fit offset and polarity).
+    flags = results["stems (set row)"]["verdict"]["flags"]
+    null = [f for f in flags if f["rule"] == "null_residual_max_db"]
+    assert "theme-vocal.wav 480 samples (10.00 ms) late" in null[0]["message"]

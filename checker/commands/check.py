@@ -11,14 +11,14 @@ import sys
 from pathlib import Path
 from typing import TextIO
 
+from checker.commands.summary import WORST_SHOWN, summary_lines
 from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, UsageError
 from checker.progress import Progress
-from checker.verdict import ERROR, FAIL, PASS, STATUS_ORDER, WARN
+from checker.verdict import ERROR, FAIL, WARN
 from checker.workers import DEFAULT_MEMORY_MB
 
 DEFAULT_OUT = "deliverycheck-report"
-#: How many problem files the summary lists.
-WORST_SHOWN = 10
+__all__ = ["WORST_SHOWN", "add_parser", "run", "summary_lines"]
 EXIT_INTERRUPTED = 130
 
 
@@ -124,16 +124,20 @@ def stem_set_key(stem_set, options) -> str | None:
     return json.dumps(parts)
 
 
-def measure_stem_set(stem_set, options, store=None, fresh: bool = False):
+def measure_stem_set(stem_set, options, store=None, fresh: bool = False, counts=None):
     """The set's SetMeasurement: from the store when its files are unchanged (a re-check
-    against another profile, a resumed batch), else one lockstep pass, stored when clean."""
+    against another profile, a resumed batch), else one lockstep pass, stored when clean.
+    ``counts`` (a dict) gets ``sets_stored`` or ``sets_measured`` incremented."""
     from checker.stems import SetMeasurement, check_stem_set
 
+    counts = {} if counts is None else counts
     key = stem_set_key(stem_set, options) if store is not None else None
     if key is not None and not fresh:
         cached = store.get_stem_set(key)
         if cached is not None:
+            counts["sets_stored"] = counts.get("sets_stored", 0) + 1
             return SetMeasurement.from_dict(cached)
+    counts["sets_measured"] = counts.get("sets_measured", 0) + 1
     sm = check_stem_set(
         list(stem_set.stem_paths),
         stem_set.mix_path,
@@ -147,7 +151,13 @@ def measure_stem_set(stem_set, options, store=None, fresh: bool = False):
 
 
 def add_stem_sets(
-    folders: list[str], mix: str | None, profile, results: list, store=None, fresh: bool = False
+    folders: list[str],
+    mix: str | None,
+    profile,
+    results: list,
+    store=None,
+    fresh: bool = False,
+    counts=None,
 ) -> list:
     """Set-level rows (one per folder), each followed by its stems' own rows."""
     from checker.batch import measure_options
@@ -157,7 +167,7 @@ def add_stem_sets(
     ordered, used = [], set()
     for folder in folders:
         stem_set = stem_set_from_folder(folder, mix)
-        sm = measure_stem_set(stem_set, measure_options(profile), store, fresh)
+        sm = measure_stem_set(stem_set, measure_options(profile), store, fresh, counts)
         ordered.append(evaluate_set(sm, profile))
         for stem in stem_set.stem_paths:
             row = by_path.get(os.path.abspath(stem))
@@ -165,48 +175,6 @@ def add_stem_sets(
                 used.add(id(row))
                 ordered.append(dataclasses.replace(row, group=stem_set.name))
     return ordered + [r for r in results if id(r) not in used]
-
-
-def _first_problem(result) -> str:
-    if result.error:
-        prefix = f"{result.path}: "
-        return result.error[len(prefix) :] if result.error.startswith(prefix) else result.error
-    if result.verdict and result.verdict.flags:
-        flags = sorted(result.verdict.flags, key=lambda f: STATUS_ORDER.get(f.severity, 9))
-        return flags[0].message
-    return ""
-
-
-def _one_line(text: str, width: int = 110) -> str:
-    text = " ".join(str(text).split())
-    return text if len(text) <= width else text[: width - 3] + "..."
-
-
-def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> list[str]:
-    counts = {s: 0 for s in (PASS, WARN, FAIL, ERROR)}
-    for r in results:
-        counts[r.status] = counts.get(r.status, 0) + 1
-    sets = sum(1 for r in results if r.kind == "set")
-    checked = f"{len(results) - sets} files"
-    if sets:
-        checked += f" and {sets} stem set{'s' if sets > 1 else ''}"
-    lines = [
-        f"profile {run.profile_name}: {checked}: "
-        + ", ".join(f"{counts[s]} {s}" for s in (PASS, WARN, FAIL, ERROR))
-    ]
-    worst = [r for r in results if r.status in (ERROR, FAIL, WARN)]
-    worst.sort(key=lambda r: (STATUS_ORDER.get(r.status, 9), r.path))
-    if worst:
-        lines.append("worst:")
-        for r in worst[:WORST_SHOWN]:
-            lines.append(_one_line(f"  {r.status:<5} {r.path}: {_first_problem(r)}"))
-        if len(worst) > WORST_SHOWN:
-            lines.append(f"  ... and {len(worst) - WORST_SHOWN} more (see the report)")
-    for note in notes:
-        lines.append(_one_line(f"note: {note}"))
-    for name, path in paths.items():
-        lines.append(f"{name}: {path}")
-    return lines
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
@@ -254,13 +222,14 @@ def run(args, out: TextIO, err: TextIO) -> int:
         )
         print(f"to resume, run again: {again}", file=err)
         return EXIT_INTERRUPTED
+    counts = {"measured": progress.measured, "stored": progress.stored}
     if folders:
         from checker.store import open_store
 
         with open_store(out_dir) as store:
-            results = add_stem_sets(folders, args.mix, profile, results, store, args.fresh)
+            results = add_stem_sets(folders, args.mix, profile, results, store, args.fresh, counts)
     written = write_reports(out_dir, run_info, results)
     written = {"store": out_dir / "results.sqlite", **written}
-    for line in summary_lines(run_info, results, written, notes):
+    for line in summary_lines(run_info, results, written, notes, counts):
         print(line, file=out)
     return exit_code(results, strict=getattr(args, "strict", False))
