@@ -385,6 +385,23 @@ def test_a_resumed_run_says_how_many_files_came_from_the_store(corpus, tmp_path)
     assert "measured 0, from the store 14" in text
 
 
+def test_two_profiles_into_one_out_folder_keep_both_reports(corpus, tmp_path):
+    out = tmp_path / "o"
+    shutil.copytree(corpus["ref"], out)  # the loose profile's run
+    code, text, _ = cli("check", str(corpus["src"]), "--profile", str(corpus["strict"]),
+                        "--out", str(out), "--quiet")  # fmt: skip
+    assert code == EXIT_UNCHECKED and f"profiles: {out / 'index.html'}" in text
+    loose = (out / "by-profile" / "loose" / "report.csv").read_text(encoding="utf-8")
+    strict = (out / "by-profile" / "strict" / "report.csv").read_text(encoding="utf-8")
+    # loose: 8 pass, 4 fail (every third file at -0.5 dBFS); strict: all 12 fail (module doc)
+    assert loose.count(",pass,") == 8 and strict.count(",pass,") == 0
+    assert (out / "report.csv").read_text(encoding="utf-8") == strict  # the latest at the top
+    index = (out / "index.html").read_text(encoding="utf-8")
+    assert 'href="by-profile/loose/report.html"' in index
+    assert 'href="by-profile/strict/report.html"' in index
+    assert index.count("top-level files") == 1
+
+
 def test_the_summary_lists_every_flag_in_whole_words_with_relative_paths(corpus, tmp_path):
     code, text, _ = cli("check", str(corpus["src"]), "--profile", str(corpus["strict"]),
                         "--out", str(tmp_path / "o"), "--quiet")  # fmt: skip

@@ -181,6 +181,7 @@ def run(args, out: TextIO, err: TextIO) -> int:
     from checker.batch import Interrupted, run_batch
     from checker.profiles import load_profile
     from checker.report import write_reports
+    from checker.report.byprofile import keep_profile_copy
 
     if args.jobs is not None and args.jobs < 1:
         raise UsageError(f"--jobs: jobs = {args.jobs} (expected >= 1)")
@@ -229,7 +230,8 @@ def run(args, out: TextIO, err: TextIO) -> int:
         with open_store(out_dir) as store:
             results = add_stem_sets(folders, args.mix, profile, results, store, args.fresh, counts)
     written = write_reports(out_dir, run_info, results)
-    written = {"store": out_dir / "results.sqlite", **written}
+    index = keep_profile_copy(out_dir, run_info, results, written)
+    written = {"store": out_dir / "results.sqlite", **written, "profiles": index}
     for line in summary_lines(run_info, results, written, notes, counts):
         print(line, file=out)
     return exit_code(results, strict=getattr(args, "strict", False))
