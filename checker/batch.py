@@ -86,6 +86,7 @@ def new_run(paths, profile) -> RunInfo:
         profile_title=str(getattr(profile, "title", "")),
         profile_limits=tuple(dict(x) for x in limits),
         engine_version=ENGINE_VERSION,
+        mono_loudness=str(getattr(profile, "mono_loudness", "") or ""),
     )
 
 

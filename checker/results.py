@@ -68,6 +68,8 @@ class RunInfo:
     profile_limits: tuple[dict[str, Any], ...] = field(default_factory=tuple)
     engine_version: str = ""
     finished_at: str | None = None
+    #: how the profile judges mono files ("dual_mono" or "single_channel"; "" not recorded)
+    mono_loudness: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -79,4 +81,5 @@ class RunInfo:
             "profile_title": self.profile_title,
             "profile_limits": [dict(x) for x in self.profile_limits],
             "engine_version": self.engine_version,
+            "mono_loudness": self.mono_loudness,
         }
