@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import csv
 import hashlib
 import io
 import json
@@ -89,6 +90,21 @@ def test_podcast_week_gets_what_the_readme_promises(batch, tmp_path):
     compare(results, promised("## The podcast week"))
     assert code == 3  # README: an unreadable file outranks the failures
     assert "cannot open as audio" in results["ep111-show-notes.wav"]["error"]
+    # The fix list: each group holds exactly the files the README's table promises.
+    groups: dict[str, set[str]] = {}
+    with open(out / "fixes.csv", newline="", encoding="utf-8") as handle:
+        for row in csv.DictReader(handle):
+            groups.setdefault(row["fix"], set()).add(Path(row["path"]).name)
+    text = PROMISES.read_text().split("## The fix list", 1)[1].split("\n## ", 1)[0]
+    want = {}
+    for line in text.splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) == 2 and cells[0] not in ("fix", "") and not set(cells[0]) <= {"-"}:
+            want[cells[0]] = {f.strip() for f in cells[1].split(",")}
+    assert groups == want
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert page.index('id="fixes"') < page.index('class="batch-chart"') < page.index('id="files"')
+    assert "apply +5.00 dB" in page  # ep102, quoted in the README
 
 
 def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):
