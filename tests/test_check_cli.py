@@ -432,5 +432,6 @@ def test_library_check_matches_the_command(corpus, tmp_path):
     statuses = sorted(r.status for r in results)
     assert statuses.count("error") == 2 and statuses.count("fail") == 4
     assert statuses.count("pass") == 8
-    for name in ("report.csv", "flags.csv", "report.html", "results.jsonl", "results.sqlite"):
+    for name in ("report.csv", "flags.csv", "fixes.csv", "report.html", "results.jsonl",
+                 "results.sqlite", "index.html", "by-profile/loose/report.html"):  # fmt: skip
         assert (tmp_path / "lib" / name).is_file()
