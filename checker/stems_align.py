@@ -234,7 +234,19 @@ def alignment_values(
         "set_mix_offset_samples": mix_offset,
         "set_slip_max_samples": max((abs(f) for f in frames if f), default=0) if measured else None,
         "set_slip_max_s": (max(slips_s) if slips_s else 0.0) if measured else None,
-        "set_slip_max_note": None if measured else (note or "no stem offset could be measured"),
+        "set_slip_max_note": None
+        if measured
+        else (
+            note
+            or (
+                "no stem offset could be measured: the stems share too little with "
+                + (
+                    "the mix"
+                    if reference == "reference mix"
+                    else "each other (give the reference mix with --mix)"
+                )
+            )
+        ),
     }
 
 

@@ -212,6 +212,7 @@ def test_stems_with_nothing_in_common_and_no_mix_are_not_named(tmp_path):
     # independent noise: a correlation peak of ~1/sqrt(N), below the 0.02 floor (a heuristic)
     assert v["set_stem_offsets_samples"] == [None, None]
     assert v["set_slipped_stems"] == [] and v["set_slip_max_s"] is None
+    assert "--mix" in v["set_slip_max_note"]  # the note says how to get a measurement
     assert (
         "not measurable" in v["set_stem_offset_notes"][0]
         or "no other stem" in (v["set_stem_offset_notes"][0])
