@@ -13,6 +13,7 @@ from typing import TextIO
 
 from checker.commands.summary import WORST_SHOWN, summary_lines
 from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, UsageError
+from checker.layout import check_layout_text
 from checker.progress import Progress
 from checker.verdict import ERROR, FAIL, WARN
 from checker.workers import DEFAULT_MEMORY_MB
@@ -62,6 +63,12 @@ def add_parser(sub) -> argparse.ArgumentParser:
         metavar="FILE",
         help="reference mix for a stem set: the stems must rebuild it (null test); "
         "takes one folder PATH",
+    )
+    p.add_argument(
+        "--layout",
+        metavar="LABELS",
+        help='channel order of the files with as many channels, e.g. "L C R Ls Rs LFE" '
+        "(overrides the profile's; other files keep their own)",
     )
     p.add_argument(
         "--worker-memory-mb",
@@ -157,6 +164,7 @@ def add_stem_sets(
     results: list,
     store=None,
     fresh: bool = False,
+    layout: str | None = None,
     counts=None,
 ) -> list:
     """Set-level rows (one per folder), each followed by its stems' own rows."""
@@ -167,7 +175,7 @@ def add_stem_sets(
     ordered, used = [], set()
     for folder in folders:
         stem_set = stem_set_from_folder(folder, mix)
-        sm = measure_stem_set(stem_set, measure_options(profile), store, fresh, counts)
+        sm = measure_stem_set(stem_set, measure_options(profile, layout), store, fresh, counts)
         ordered.append(evaluate_set(sm, profile))
         for stem in stem_set.stem_paths:
             row = by_path.get(os.path.abspath(stem))
@@ -193,6 +201,8 @@ def run(args, out: TextIO, err: TextIO) -> int:
             f"PATH: {', '.join(missing)} (expected an existing file or folder; nothing checked)"
         )
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    if args.layout is not None:
+        check_layout_text(args.layout)
     folders = stem_set_folders(args, profile)
     out_dir = Path(args.out)
     notes: list[str] = []
@@ -209,6 +219,7 @@ def run(args, out: TextIO, err: TextIO) -> int:
             progress=progress,
             memory_mb=args.worker_memory_mb or None,
             on_note=notes.append,
+            layout=args.layout,
         )
     except Interrupted as exc:
         # --fresh would measure everything again: the resume command leaves it out.
@@ -228,7 +239,9 @@ def run(args, out: TextIO, err: TextIO) -> int:
         from checker.store import open_store
 
         with open_store(out_dir) as store:
-            results = add_stem_sets(folders, args.mix, profile, results, store, args.fresh, counts)
+            results = add_stem_sets(
+                folders, args.mix, profile, results, store, args.fresh, args.layout, counts
+            )
     written = write_reports(out_dir, run_info, results)
     index = keep_profile_copy(out_dir, run_info, results, written)
     written = {"store": out_dir / "results.sqlite", **written, "profiles": index}
