@@ -150,6 +150,7 @@ def new_run(paths, profile) -> RunInfo:
         profile_title=str(getattr(profile, "title", "")),
         profile_limits=tuple(dict(x) for x in limits),
         engine_version=ENGINE_VERSION,
+        mono_loudness=str(getattr(profile, "mono_loudness", "") or ""),
     )
 
 
@@ -253,12 +254,12 @@ def run_batch(
                 if cached is not None:
                     result = _judge(shown, cached, profile, evaluate, remark)
                     _keep(store, run, results, result)
-                    progress.advance()
+                    progress.advance(stored=True)
                     continue
                 error = store.get_error(ident, ENGINE_VERSION, okey)
                 if error is not None:
                     _keep(store, run, results, FileResult.failed(shown, error))
-                    progress.advance()
+                    progress.advance(stored=True)
                     continue
             idents[index] = ident
             tasks.append(Task(index=index, path=path, size_bytes=ident.size_bytes))

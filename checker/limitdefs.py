@@ -299,7 +299,7 @@ CATALOGUE: tuple[LimitDef, ...] = (
        "spread of the stems' content starts", "stems", scope=SET,
        hint="the stems start at different points (a late entry can be arrangement)"),
     _d("slip_max_s", MAX, "set_slip_max_s", "s", "largest stem slip", "stems", scope=SET,
-       detail=("set_slipped_stems", "slipped"),
+       detail=("set_slip_details", "slipped"),
        hint="a stem slipped against the others: re-export it from the session start"),
     _d("sum_clipped_samples_max", MAX, "sum_clipped_samples", "",
        "number of summed samples at or above full scale", "stems", item="int", scope=SET,
@@ -313,8 +313,9 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="the summed stems leave too little headroom: lower every stem by the same amount"),
     _d("null_residual_max_db", MAX, "null_residual_db", "dB",
        "null-test residual (mix minus stem sum, relative to the mix)", "stems", scope=SET,
-       applies_if="set_mix_length_frames",
-       hint="the stems do not rebuild the reference mix: check for missing or changed stems"),
+       applies_if="set_mix_length_frames", detail=("set_slip_details", "moved against the mix"),
+       hint="the stems do not rebuild the reference mix: move any stem named here back into "
+            "place, else check for missing or changed stems"),
 )
 # fmt: on
 

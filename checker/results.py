@@ -74,6 +74,8 @@ class RunInfo:
     #: files under the inputs that are clearly not deliverables, each {"path", "reason"}:
     #: listed as "not checked" in every report (checker.discover)
     not_checked: tuple[dict[str, str], ...] = field(default_factory=tuple)
+    #: how the profile judges mono files ("dual_mono" or "single_channel"; "" not recorded)
+    mono_loudness: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -86,4 +88,5 @@ class RunInfo:
             "profile_limits": [dict(x) for x in self.profile_limits],
             "engine_version": self.engine_version,
             "not_checked": [dict(x) for x in self.not_checked],
+            "mono_loudness": self.mono_loudness,
         }

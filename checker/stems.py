@@ -16,20 +16,17 @@ What is measured (flat keys in ``SetMeasurement.values``):
 - length: ``set_length_frames`` (frames actually decoded, per stem),
   ``set_mix_length_frames``, ``set_length_mismatch_frames`` (longest minus
   shortest over stems and mix).
-- start: ``set_start_times_s`` is where each stem's content begins: the first
-  frame with a non-zero sample (or, with ``start_threshold_dbfs``, the first at
-  or above that level). Exact for stems bounced from one session with digital
-  silence before the content; a stem with a dither or noise floor from frame 0
-  reads 0. ``set_content_start_times_s`` uses the options' silence threshold
-  (-60 dBFS by default) for information. ``set_start_offset_max_s`` is the
-  spread of the starts. The set's common start is the lower median of the
-  starts; a stem is listed in ``set_slipped_stems`` when its start differs
-  from it by more than 0 and at most ``slip_window_s`` (default 0.1 s, a
-  heuristic: a slip from a nudge or a delay-compensation error is short,
-  whereas a later entry is arrangement); ``set_slip_max_s`` is the largest
-  such slip (0.0 when none), the scalar a profile should limit, since
-  ``set_start_offset_max_s`` also counts arrangement (a stem silent until the
-  chorus). Slips of any size show in the null test when a mix is given.
+- start, for information: ``set_start_times_s`` is each stem's first frame
+  with a non-zero sample (or, with ``start_threshold_dbfs``, the first at or
+  above that level); ``set_content_start_times_s`` uses the options' silence
+  threshold (-60 dBFS by default); ``set_start_offset_max_s`` is the spread
+  of the starts (it counts arrangement too: a stem silent until the chorus).
+- alignment (checker.stems_align): each stem's offset from the signal, by
+  cross-correlation against the mix (or the other stems) within
+  ``slip_window_s`` (default 0.1 s): ``set_stem_offsets_samples`` /
+  ``set_stem_offsets_ms`` (positive: late), ``set_slipped_stems`` (only the
+  stems that moved), ``set_slip_max_s`` (the scalar a profile limits) and
+  ``set_slip_details`` (names and offsets, for the flag).
 - peaks: ``set_stem_sample_peaks_dbfs`` and ``set_max_stem_sample_peak_dbfs``
   (each stem's true peak comes from its own per-file pass).
 - sum: see checker.stems_sum; undefined (None, ``sum_note``) when the stems
@@ -53,6 +50,7 @@ from checker.errors import AudioReadError
 from checker.measure import FlatValues, Measurement, resolve_layout
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
+from checker.stems_align import SetAligner
 from checker.stems_findings import findings
 from checker.stems_null import DEFAULT_MAX_LAG_SAMPLES, NullAccumulator
 from checker.stems_sum import StemTracker, SumMeters, undefined_sum_values
@@ -211,7 +209,8 @@ def check_stem_set(
             sum_meters = SumMeters(sum_info, resolve_layout(info0, options), options)
         if null_reason is None:
             null = NullAccumulator(readable[0].tracker.info.channels, max_lag_samples)
-        _run(readable, mix, sum_meters, null)
+        aligner = SetAligner.make(readable, mix, sum_reason, null_reason, slip_window_s)
+        _run(readable, mix, sum_meters, null, aligner)
     finally:
         for s in readable + ([mix] if mix else []):
             s.close()
@@ -219,7 +218,8 @@ def check_stem_set(
         if s.tracker.error:
             errors.append(s.tracker.error)
 
-    values = _set_values(stems, mix, names, slip_window_s)
+    values = _set_values(stems, mix, names)
+    values.update(SetAligner.values(aligner, stems, names, sum_reason, slip_window_s))
     values.update(sum_meters.values() if sum_meters else undefined_sum_values(sum_reason))
     values.setdefault("sum_note", None)
     if null is not None:
@@ -304,16 +304,19 @@ def _null_problem(stems, mix, mix_path, sum_reason) -> str | None:
     return None
 
 
-def _run(stems: list[_Source], mix: _Source | None, sum_meters, null) -> None:
+def _run(stems: list[_Source], mix: _Source | None, sum_meters, null, aligner=None) -> None:
     """The lockstep loop: one block of every file per step."""
     channels = stems[0].tracker.info.channels if stems else 1
     pos = 0
     while True:
-        blocks = [b for b in (s.next() for s in stems) if b is not None]
+        each = [s.next() for s in stems]
+        blocks = [b for b in each if b is not None]
         mix_block = mix.next() if mix else None
         n = max([b.frames for b in blocks] + [mix_block.frames if mix_block else 0])
         if n == 0:
             return
+        if aligner is not None:
+            aligner.feed(each, mix_block, n)
         if sum_meters is not None:
             width = max((b.frames for b in blocks), default=0)
             total = np.zeros((width, channels))
@@ -326,7 +329,7 @@ def _run(stems: list[_Source], mix: _Source | None, sum_meters, null) -> None:
         pos += n
 
 
-def _set_values(stems, mix, names, slip_window_s) -> dict[str, Any]:
+def _set_values(stems, mix, names) -> dict[str, Any]:
     def each(fn):
         return [None if s is None else fn(s) for s in stems]
 
@@ -372,21 +375,6 @@ def _set_values(stems, mix, names, slip_window_s) -> dict[str, Any]:
     v["set_start_offset_max_note"] = (
         None if len(defined) >= 2 else "fewer than two stems have content"
     )
-    common = sorted(defined)[(len(defined) - 1) // 2] if defined else None
-    v["set_common_start_s"] = common
-    v["set_slipped_stems"] = [
-        n
-        for n, t in zip(names, v["set_start_times_s"], strict=True)
-        if t is not None and common is not None and 0.0 < abs(t - common) <= slip_window_s
-    ]
-    slips = [
-        abs(t - common)
-        for n, t in zip(names, v["set_start_times_s"], strict=True)
-        if n in v["set_slipped_stems"]
-    ]
-    v["set_slip_max_s"] = max(slips) if slips else (0.0 if common is not None else None)
-    v["set_slip_max_note"] = None if common is not None else "no stem has content"
-    v["set_slip_window_s"] = slip_window_s
     v["set_stem_sample_peaks_dbfs"] = each(lambda s: s.tracker.peak_dbfs)
     peaks = [s.tracker.peak_dbfs for s in readable]
     v["set_max_stem_sample_peak_dbfs"] = max(peaks) if peaks else None

@@ -14,6 +14,22 @@ def _fmt_db(x) -> str:
     return f"{x:.1f} dB" if x != float("-inf") else "-inf dB"
 
 
+def _offset_words(v: dict[str, Any], i: int) -> str:
+    """'is 480 samples (10.00 ms) late against the reference mix'."""
+    frames = v["set_stem_offsets_samples"][i]
+    ms = v["set_stem_offsets_ms"][i]
+    when = "late" if frames > 0 else "early"
+    ref = v.get("set_alignment_reference") or "other stems"
+    against = "the other stems" if ref == "other stems" else f"the {ref}"
+    return f"is {abs(frames)} samples ({abs(ms):.2f} ms) {when} against {against}"
+
+
+def _move_words(v: dict[str, Any], i: int) -> str:
+    frames = v["set_stem_offsets_samples"][i]
+    where = "earlier" if frames > 0 else "later"
+    return f"move {v['set_stem_names'][i]} {abs(frames)} samples {where}"
+
+
 def findings(v: dict[str, Any], names: list[str]) -> list[str]:
     out: list[str] = []
     if v["set_format_mismatch"]:
@@ -39,16 +55,15 @@ def findings(v: dict[str, Any], names: list[str]) -> list[str]:
             f"lengths differ by {gap} frames: {short} has {per[short]} frames, "
             f"{long} has {per[long]}"
         )
-    common = v["set_common_start_s"]
-    for n in v["set_slipped_stems"]:
-        t = v["set_start_times_s"][names.index(n)]
-        rate = v["set_sample_rates_hz"][names.index(n)]
-        frames = round((t - common) * rate)
-        when = "later" if frames > 0 else "earlier"
+    if v.get("set_mix_offset_samples"):
+        d = v["set_mix_offset_samples"]
+        ms = 1000.0 * d / v["set_mix_sample_rate_hz"]
         out.append(
-            f"stem {n} starts at {t:.6f} s, {abs(frames)} frames {when} than the set's "
-            f"common start at {common:.6f} s: slipped?"
+            f"the reference mix is {abs(d)} samples ({abs(ms):.2f} ms) "
+            f"{'late' if d > 0 else 'early'} against every stem: the stems agree with each other"
         )
+    for n in v["set_slipped_stems"]:
+        out.append(f"stem {n} {_offset_words(v, names.index(n))}: slipped?")
     if v.get("sum_clipped_samples"):
         out.append(
             f"the sum of the stems reaches full scale first at {v['sum_first_clip_s']:.6f} s "
@@ -58,7 +73,12 @@ def findings(v: dict[str, Any], names: list[str]) -> list[str]:
     res = v.get("null_residual_db")
     if res is not None and res > NULL_FINDING_DB:
         text = f"the stems do not rebuild the mix: residual {_fmt_db(res)} relative to the mix"
-        if v.get("null_fit_offset_samples") is not None:
+        moved = v.get("set_slipped_stems") or []
+        if moved and v.get("set_alignment_reference") == "reference mix":
+            text += "; " + ", ".join(f"{n} {_offset_words(v, names.index(n))}" for n in moved)
+            text += ": " + "; ".join(_move_words(v, names.index(n)) for n in moved)
+            text += ", then test again"
+        elif v.get("null_fit_offset_samples") is not None:
             inverted = ", polarity inverted" if v["null_fit_inverted"] else ""
             text += (
                 f"; best fit: gain {v['null_fit_gain_db']:+.2f} dB, offset "

@@ -27,6 +27,7 @@ from signals import sine, write
 import checker.audio
 from checker.cli import main
 from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, EXIT_USAGE
+from checker.progress import Progress
 from checker.store import open_store
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -155,6 +156,30 @@ def test_exit_codes(tmp_path):
     # 2: usage errors.
     assert cli("check", str(good), "--profile", str(profile), "--jobs", "0")[0] == EXIT_USAGE
     assert cli("check", str(good))[0] == EXIT_USAGE  # --profile is required
+
+
+def test_strict_makes_warnings_fail_and_a_mistyped_path_is_a_usage_error(tmp_path):
+    (tmp_path / "in").mkdir()
+    take = write(tmp_path / "in" / "a.wav", sine(1000.0, -6.0, 1.0, channels=2))
+    warn = tmp_path / "warn.toml"
+    # a -6 dBFS sine's sample peak is -6 dBFS (module doc): above the -10 dBFS warning level
+    text = PROFILE_TEMPLATE.format(name="w", limit=-10.0, tp=3.0)
+    warn.write_text(text.replace('"fail"', '"warn"', 1))  # the sample-peak limit only warns
+    base = ["check", str(take), "--profile", str(warn), "--quiet"]
+    code, out, _ = cli(*base, "--out", str(tmp_path / "o"))
+    assert code == EXIT_OK and "1 warn" in out  # warnings pass by default
+    code, out, _ = cli(*base, "--out", str(tmp_path / "o"), "--strict")
+    assert code == EXIT_FAILED and "1 warn" in out
+    # A PATH that names nothing: usage error, nothing checked or written.
+    typo = tmp_path / "in" / "a.wvа"
+    code, _, err = cli("check", str(typo), "--profile", str(warn), "--out", str(tmp_path / "t"))
+    assert code == EXIT_USAGE and str(typo) in err and "nothing checked" in err
+    assert not (tmp_path / "t").exists()
+    # A file that exists but cannot be read stays an error row (exit 3).
+    (tmp_path / "in" / "b.wav").write_bytes(b"RIFF\x00\x00\x00\x00WAVE")
+    code, out, _ = cli("check", str(tmp_path / "in"), "--profile", str(warn), "--quiet",
+                       "--out", str(tmp_path / "u"))  # fmt: skip
+    assert code == EXIT_UNCHECKED and "1 error" in out
 
 
 # -- re-check with another profile -------------------------------------------------------
@@ -298,12 +323,13 @@ def test_progress_on_a_terminal_and_not_in_a_pipe(corpus, tmp_path):
     shown = read_all(master)
     proc.wait(timeout=60)
     assert "checking: 14/14 files" in shown  # the final state is drawn
-    assert "h audio/s" in shown
+    assert "s of audio at" in shown and " s/s" in shown  # seconds of audio per second
 
-    # Not a terminal (a pipe, a file, a StringIO): no progress line.
+    # Not a terminal (a pipe, a file, a StringIO): whole lines (every few seconds), one at the end.
     piped = io.StringIO()
     code = main(command(corpus["src"], corpus["loose"], tmp_path / "b")[3:], io.StringIO(), piped)
-    assert code == EXIT_UNCHECKED and piped.getvalue() == ""
+    assert code == EXIT_UNCHECKED and "\r" not in piped.getvalue()
+    assert piped.getvalue().splitlines()[-1].startswith("checked: 14/14 files (measured 14,")
 
     # --quiet: nothing even on a terminal.
     master, slave = pty.openpty()
@@ -312,6 +338,89 @@ def test_progress_on_a_terminal_and_not_in_a_pipe(corpus, tmp_path):
         argv = command(corpus["src"], corpus["loose"], tmp_path / "c", "--quiet")[3:]
         assert main(argv, io.StringIO(), tty) == EXIT_UNCHECKED
     assert "checking:" not in read_all(master)
+
+
+class FakeClock:
+    def __init__(self):
+        self.t = 0.0
+
+    def __call__(self):
+        return self.t
+
+
+def test_progress_in_a_log_is_a_line_every_few_seconds_and_counts_the_store():
+    clock, log = FakeClock(), io.StringIO()
+    p = Progress(log, clock=clock, heartbeat_s=None, log_every_s=5.0)
+    p.start(4)
+    p.advance(stored=True)
+    clock.t = 2.0
+    p.advance(60.0, measured=True)
+    assert log.getvalue() == ""  # under 5 s since the start: nothing yet
+    clock.t = 6.0
+    p.advance(120.0, measured=True)
+    # arithmetic: 180 s of audio measured in 6 s of wall clock = 30 s/s; ETA 6 s / 3 * 1 = 2 s
+    assert log.getvalue() == (
+        "checking: 3/4 files (measured 2, from the store 1), 180 s of audio at 30.0 s/s, "
+        "elapsed 0:00:06, ETA 0:00:02\n"
+    )
+    clock.t = 7.0
+    p.advance(stored=True)
+    p.close()
+    assert log.getvalue().splitlines()[-1].startswith("checked: 4/4 files (measured 2, from the")
+    quiet = io.StringIO()
+    q = Progress(quiet, quiet=True, clock=clock, heartbeat_s=None)
+    q.start(1)
+    q.advance()
+    q.close()
+    assert quiet.getvalue() == ""
+
+
+def test_a_resumed_run_says_how_many_files_came_from_the_store(corpus, tmp_path):
+    out = tmp_path / "o"
+    shutil.copytree(corpus["ref"], out)  # every file already measured
+    code, text, _ = cli("check", str(corpus["src"]), "--profile", str(corpus["strict"]),
+                        "--out", str(out), "--quiet")  # fmt: skip
+    assert code == EXIT_UNCHECKED
+    # 12 measurements and 2 read errors were stored by the reference run: nothing is read again
+    assert "measured 0, from the store 14" in text
+
+
+def test_two_profiles_into_one_out_folder_keep_both_reports(corpus, tmp_path):
+    out = tmp_path / "o"
+    shutil.copytree(corpus["ref"], out)  # the loose profile's run
+    code, text, _ = cli("check", str(corpus["src"]), "--profile", str(corpus["strict"]),
+                        "--out", str(out), "--quiet")  # fmt: skip
+    assert code == EXIT_UNCHECKED and f"profiles: {out / 'index.html'}" in text
+    loose = (out / "by-profile" / "loose" / "report.csv").read_text(encoding="utf-8")
+    strict = (out / "by-profile" / "strict" / "report.csv").read_text(encoding="utf-8")
+    # loose: 8 pass, 4 fail (every third file at -0.5 dBFS); strict: all 12 fail (module doc)
+    assert loose.count(",pass,") == 8 and strict.count(",pass,") == 0
+    assert (out / "report.csv").read_text(encoding="utf-8") == strict  # the latest at the top
+    index = (out / "index.html").read_text(encoding="utf-8")
+    assert 'href="by-profile/loose/report.html"' in index
+    assert 'href="by-profile/strict/report.html"' in index
+    assert index.count("top-level files") == 1
+
+
+def test_the_summary_lists_every_flag_in_whole_words_with_relative_paths(corpus, tmp_path):
+    code, text, _ = cli("check", str(corpus["src"]), "--profile", str(corpus["strict"]),
+                        "--out", str(tmp_path / "o"), "--quiet")  # fmt: skip
+    lines = text.splitlines()
+    assert f"in {corpus['src']}{os.sep}" in lines
+    entry = next(i for i, line in enumerate(lines) if line.strip().endswith("take00.wav"))
+    assert lines[entry].split() == ["fail", "take00.wav"]  # relative to the common folder
+    block = []
+    for line in lines[entry + 1 :]:
+        if not line.startswith("        "):
+            break
+        block.append(line)
+    flags = [line for line in block if line.lstrip().startswith("fail:")]
+    assert len(flags) == 2  # both limits of the strict profile, not only the first
+    words = set(" ".join(lines).split())
+    assert "dBFS," in words or "dBFS" in words
+    for line in lines:
+        assert len(line) <= 100 or " " not in line.strip()  # wrapped at whole words
+        assert not line.endswith("...")
 
 
 def test_library_check_matches_the_command(corpus, tmp_path):
@@ -323,5 +432,6 @@ def test_library_check_matches_the_command(corpus, tmp_path):
     statuses = sorted(r.status for r in results)
     assert statuses.count("error") == 2 and statuses.count("fail") == 4
     assert statuses.count("pass") == 8
-    for name in ("report.csv", "flags.csv", "report.html", "results.jsonl", "results.sqlite"):
+    for name in ("report.csv", "flags.csv", "fixes.csv", "report.html", "results.jsonl",
+                 "results.sqlite", "index.html", "by-profile/loose/report.html"):  # fmt: skip
         assert (tmp_path / "lib" / name).is_file()

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import csv
 import hashlib
 import io
 import json
@@ -90,6 +91,21 @@ def test_podcast_week_gets_what_the_readme_promises(batch, tmp_path):
     assert code == 3  # README: an unreadable file outranks the failures
     # checker.discover: refused by its content before any decoding
     assert "its content is text, not audio" in results["ep111-show-notes.wav"]["error"]
+    # The fix list: each group holds exactly the files the README's table promises.
+    groups: dict[str, set[str]] = {}
+    with open(out / "fixes.csv", newline="", encoding="utf-8") as handle:
+        for row in csv.DictReader(handle):
+            groups.setdefault(row["fix"], set()).add(Path(row["path"]).name)
+    text = PROMISES.read_text().split("## The fix list", 1)[1].split("\n## ", 1)[0]
+    want = {}
+    for line in text.splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) == 2 and cells[0] not in ("fix", "") and not set(cells[0]) <= {"-"}:
+            want[cells[0]] = {f.strip() for f in cells[1].split(",")}
+    assert groups == want
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert page.index('id="fixes"') < page.index('class="batch-chart"') < page.index('id="files"')
+    assert "apply +5.00 dB" in page  # ep102, quoted in the README
 
 
 def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):
@@ -112,4 +128,10 @@ def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):
     assert "profile mastering-stems: 4 files and 1 stem set: 4 pass, 0 warn, 1 fail" in summary
     # The slipped stem is named in the set row's slip flag.
     slip = [f for f in results["stems (set row)"]["verdict"]["flags"] if f["rule"] == "slip_max_s"]
-    assert re.search(r"theme-vocal\.wav", slip[0]["message"])
+    assert re.search(r"theme-vocal\.wav 480 samples \(10\.00 ms\) late", slip[0]["message"])
+    # ... and only that stem (offsets from the signal, not from the first non-zero sample)
+    assert not re.search(r"theme-(drums|bass|keys)", slip[0]["message"])
+    # The null-test flag names the stem to move (not a best-fit offset and polarity).
+    flags = results["stems (set row)"]["verdict"]["flags"]
+    null = [f for f in flags if f["rule"] == "null_residual_max_db"]
+    assert "theme-vocal.wav 480 samples (10.00 ms) late" in null[0]["message"]

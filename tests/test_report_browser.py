@@ -159,8 +159,12 @@ def test_sort_filter_detail_and_nothing_leaves_the_page(browser, report, tmp_pat
     assert points > 100  # 1800 stored windows reduced to <= 480 points
     d = page.get_attribute("#detail-body svg path.short-term", "d")
     assert len(re.findall(r"[ML]", d)) == points
-    assert page.locator("#detail-body svg line.ceiling").count() == 1
-    assert page.locator("#detail-body svg rect.band").count() == 1
+    # drawn as distance from the target: a zero line, the tolerance (+-1 LU) as two lines,
+    # the area above the target (the file is 3.6 LU loud), marks in the overs lane below
+    assert page.locator("#detail-body svg line.zero").count() == 1
+    assert page.locator("#detail-body svg line.tolerance").count() == 2
+    assert page.locator("#detail-body svg path.over-target").count() == 1
+    assert page.locator("#detail-body svg rect.lane-overs").count() == 1
     assert page.locator("#detail-body svg g.mark").count() == 3  # 2 overs + the flag position
     shot = tmp_path / "detail.png"
     page.screenshot(path=str(shot))
@@ -268,4 +272,67 @@ def test_five_thousand_rows_sort_and_filter(browser, tmp_path):
     assert int(page.get_attribute("#detail-body svg path.short-term", "data-points")) > 50
     assert watch.errors == [] and watch.dialogs == []
     assert watch.requests == [html.as_uri()]
+    page.close()
+
+
+def mono_result(path: str, plain_lufs: float) -> FileResult:
+    """A mono file: BS.1770 weights its one channel 1.0, so as dual mono it reads +3.01 LU."""
+    v = values(channels=1, channel_layout="M", integrated_lufs=plain_lufs,
+               integrated_dual_mono_lufs=plain_lufs + 3.0103, true_peak_channel_dbtp=[-3.0],
+               sample_peak_channel_dbfs=[-3.2])  # fmt: skip
+    m = Measurement(path=path, values=v, timeline=timeline(60.0, plain_lufs, 9))
+    return FileResult(path, "pass", m, Verdict("pass", ()))
+
+
+def test_a_narrow_screen_has_no_page_overflow_and_details_stack(browser, tmp_path):
+    run = dataclasses.replace(make_run(), mono_loudness="dual_mono")
+    results = [*make_results(), mono_result("programme/mono_intro.wav", -18.96)]
+    html = write_reports(tmp_path, run, results)["html"]
+    for width in (360, 400):
+        page, watch = open_report(browser, html, width=width)
+        # no horizontal page overflow: the table scrolls inside its own box
+        assert page.evaluate("document.documentElement.scrollWidth") <= width
+        rights = page.evaluate(
+            "Array.from(document.querySelectorAll('.tile, .fixgroup, figure.batch, .note'))"
+            ".map(e => e.getBoundingClientRect().right)"
+        )
+        assert rights and max(rights) <= width
+        # the batch chart is there, one mark per file with finite loudness and true peak
+        assert page.locator("svg.batch-chart rect.accept").count() == 1
+        assert page.locator("svg.batch-chart g.pt").count() == 6
+        page.fill("#q", "ep02")
+        wait_shown(page, 1)
+        page.click("#file-rows tr:not([hidden]) button.open")
+        dialog_right = page.evaluate(
+            "document.getElementById('detail').getBoundingClientRect().right"
+        )
+        assert dialog_right <= width
+        # details stack label/value: every flag cell (limit, what to do, source) is on screen
+        cells = page.evaluate(
+            """() => Array.from(document.querySelectorAll('#detail-body table.flags td'))
+                .map(td => [td.getAttribute('data-label'), td.getBoundingClientRect().right,
+                            getComputedStyle(td, '::before').content])"""
+        )
+        assert {c[0] for c in cells} >= {"Limit", "What to do", "Source"}
+        assert all(c[1] <= width for c in cells)
+        assert all(c[2] == '"' + c[0] + '"' for c in cells)  # the label shown beside the value
+        page.keyboard.press("Escape")
+        assert watch.errors == [] and watch.dialogs == []
+        page.close()
+
+
+def test_a_mono_file_shows_the_value_that_was_judged(browser, tmp_path):
+    run = dataclasses.replace(make_run(), mono_loudness="dual_mono")
+    html = write_reports(tmp_path, run, [mono_result("show/mono_intro.wav", -18.96)])["html"]
+    page, watch = open_report(browser, html)
+    cell = column_texts(page, "integrated_lufs")[0]
+    # -18.96 LUFS on one channel + 3.0103 LU (BS.1770: dual mono doubles the power) = -15.9497,
+    # one decimal in the table
+    assert cell == "-15.9judged as dual mono"
+    title = page.get_attribute("#file-rows td.n[title^='mono file']", "title")
+    assert "-19.0 LUFS on its one channel" in title
+    page.click("#file-rows tr button.open")
+    note = page.text_content("#detail-body .judged-note")
+    assert "judged as dual mono" in note and "-15.95 LUFS" in note and "-18.96 LUFS" in note
+    assert watch.errors == []
     page.close()

@@ -22,6 +22,7 @@ from numpy.testing import assert_allclose
 from checker.measure import Measurement
 from checker.report import REPORT_FILES, write_reports
 from checker.report.atomic import atomic_text
+from checker.report.cells import PER_CHANNEL_KEYS
 from checker.report.csv_out import neutralise
 from checker.report.htmldata import embed_json, profile_limits_for_graph, reduce_timeline
 from checker.report.jsonl import dumps as jsonl_dumps
@@ -148,13 +149,16 @@ def test_report_csv_columns_are_stable_and_documented(written):
     out, results, _ = written
     with open(out / "report.csv", newline="", encoding="utf-8") as handle:
         header = next(csv.reader(handle))
-    # Lead columns, then the full shared vocabulary (always present), then extras sorted.
-    assert header == [
-        *LEAD_COLUMNS,
-        *MEASUREMENT_COLUMNS,
-        "set_max_true_peak_dbtp",
-        "sum_true_peak_dbtp",
-    ]
+    # Lead columns, then the full shared vocabulary (always present; per-channel lists as one
+    # column per channel, two here), then extras sorted.
+    vocabulary = []
+    for key in MEASUREMENT_COLUMNS:
+        if key in PER_CHANNEL_KEYS:
+            vocabulary += [key.replace("_channel", "_ch1"), key.replace("_channel", "_ch2")]
+        else:
+            vocabulary.append(key)
+    assert header == [*LEAD_COLUMNS, *vocabulary, "set_max_true_peak_dbtp", "sum_true_peak_dbtp"]
+    assert "true_peak_ch1_dbtp" in header and "true_peak_channel_dbtp" not in header
     assert header[:4] == ["path", "kind", "group", "status"]
     assert len(set(header)) == len(header)
 
@@ -173,7 +177,9 @@ def test_report_csv_values_match_the_measurements(written):
             if want is None:
                 assert row[key] == ""  # None -> empty cell
             else:
-                assert_allclose(float(row[key]), want, rtol=0, atol=0)  # written exactly (repr)
+                # fixture values have at most two decimals: the 0.01 rounding keeps them
+                assert_allclose(float(row[key]), want, rtol=0, atol=0)
+    assert rows["programme/ep01_final.wav"]["sample_rate_hz"] == "48000"  # an integer
     loud = rows["programme/ep02_final.wav"]
     assert loud["flag_count"] == "2"
     assert loud["flags"].startswith("fail: Integrated loudness is 3.6 LU above")
@@ -181,11 +187,12 @@ def test_report_csv_values_match_the_measurements(written):
     assert_allclose(float(loud["gain_to_target_db"]), -3.6, rtol=0, atol=0)
     assert_allclose(float(loud["predicted_true_peak_dbtp"]), -3.0, rtol=0, atol=0)
     assert loud["plain_gain_enough"] == "True"
-    # Lists are text; a list starting with "-" is text a spreadsheet could evaluate: quoted.
-    assert loud["true_peak_channel_dbtp"] == "'-1.70; -2.25"
-    assert loud["true_peak_over_times_s"] == "12.30; 47.90"
-    assert loud["dc_offset_channel_percent"] == "0.0004; 0.02"
-    assert loud["channel_correlations"] == "(0, 1, 0.62)"
+    # Per-channel values are numbers in their own columns (never guarded text).
+    assert (loud["true_peak_ch1_dbtp"], loud["true_peak_ch2_dbtp"]) == ("-1.7", "-2.25")
+    assert (loud["dc_offset_ch1_percent"], loud["dc_offset_ch2_percent"]) == ("0.0004", "0.02")
+    # Other lists are text: times at 0.001 s, channel pairs counted from 1.
+    assert loud["true_peak_over_times_s"] == "12.3; 47.9"
+    assert loud["channel_correlations"] == "1-2: 0.62"
     assert loud["identical_channels"] == ""
     # Worst first: errors, then failures, then warnings, then passes.
     order = [r["status"] for r in read_rows(out / "report.csv")]
@@ -200,7 +207,7 @@ def test_silence_is_minus_inf_and_undefined_is_empty(written):
     assert silent["sample_peak_dbfs"] == "-inf"
     assert silent["integrated_lufs"] == ""
     assert silent["integrated_note"] == "every block is below the absolute gate"
-    assert silent["sample_peak_channel_dbfs"] == "'-inf; -inf"  # text (a list): neutralised
+    assert silent["sample_peak_ch1_dbfs"] == "-inf" == silent["sample_peak_ch2_dbfs"]
     broken = rows["broken/truncated.wav"]
     assert broken["status"] == "error"
     assert broken["error"].startswith("audio: cannot read header")
@@ -248,21 +255,52 @@ def test_formula_cells_in_written_files(written):
     assert {float(n) for n in numbers} == {-23.1, -19.4, -29.0}
 
 
-def test_flags_csv_has_one_row_per_flag(written):
+def test_flags_csv_has_one_row_per_flag_and_one_per_unchecked_file(written):
     out, results, _ = written
     rows = read_rows(out / "flags.csv")
-    assert list(rows[0].keys()) == ["path", "rule", "severity", "measured", "limit", "unit",
-                                    "position_s", "message", "source"]  # fmt: skip
-    assert len(rows) == sum(len(r.verdict.flags) for r in results if r.verdict)
+    assert list(rows[0].keys()) == ["path", "rule", "severity", "measured", "limit_low",
+                                    "limit_high", "limit_text", "unit", "position_s", "message",
+                                    "source"]  # fmt: skip
+    errors = [r for r in results if r.status == "error"]
+    assert len(rows) == sum(len(r.verdict.flags) for r in results if r.verdict) + len(errors)
+    broken = next(r for r in rows if r["path"] == "broken/truncated.wav")
+    assert (broken["rule"], broken["severity"]) == ("not_checked", "error")
+    assert broken["message"].startswith("audio: cannot read header")
     tp = next(r for r in rows if r["rule"] == "true_peak_max_dbtp")
     assert (tp["path"], tp["severity"], tp["unit"]) == ("programme/ep02_final.wav", "fail", "dBTP")
-    assert_allclose([float(tp["measured"]), float(tp["limit"]), float(tp["position_s"])],
+    # a maximum is limit_high; numbers only in numeric columns
+    assert_allclose([float(tp["measured"]), float(tp["limit_high"]), float(tp["position_s"])],
                     [0.6, -1.0, 12.3], rtol=0, atol=0)  # fmt: skip
+    assert tp["limit_low"] == "" and tp["limit_text"] == ""
     silent = next(r for r in rows if r["path"] == "silence/room_tone.wav")
     assert silent["measured"] == "" and silent["position_s"] == ""
-    assert silent["limit"] == "'-23.0 +- 1.0"  # text starting with "-": neutralised
+    # a target with tolerance: both bounds as numbers (-23 - 1, -23 + 1), the words as text
+    assert (silent["limit_low"], silent["limit_high"]) == ("-24", "-22")
+    assert silent["limit_text"] == "'-23.0 +- 1.0"  # text starting with "-": neutralised
     lra = next(r for r in rows if r["rule"] == "loudness_range_lu")
-    assert lra["limit"] == "3.00; 20.00"
+    assert (lra["limit_low"], lra["limit_high"]) == ("3", "20")
+    for row in rows:
+        for key in ("limit_low", "limit_high", "position_s"):
+            assert row[key] == "" or float(row[key]) == float(row[key])  # numeric or empty
+
+
+def test_csv_numbers_are_rounded_per_unit_and_jsonl_keeps_full_precision(tmp_path):
+    v = values(integrated_lufs=-21.000000051678526, dc_offset_percent=5.939354499181111e-06,
+               min_correlation=0.9999800275565989, leading_silence_s=0.0020208333333333332,
+               effective_bandwidth_hz=22617.1875, channels=2, format_bits=24)  # fmt: skip
+    r = result("a.wav", "pass", v)
+    write_reports(tmp_path, make_run(), [r, FileResult.failed("b.wav", "unreadable")])
+    row = next(x for x in read_rows(tmp_path / "report.csv") if x["path"] == "a.wav")
+    # stated precision: 0.01 LU/dB, 0.001 s, 1 Hz, 0.0001 %, 0.001 for ratios
+    assert row["integrated_lufs"] == "-21"  # whole after rounding: an integer
+    assert row["dc_offset_percent"] == "0"
+    assert row["min_correlation"] == "1"
+    assert row["leading_silence_s"] == "0.002"
+    assert row["effective_bandwidth_hz"] == "22617"
+    assert (row["sample_rate_hz"], row["channels"], row["format_bits"]) == ("48000", "2", "24")
+    line = (tmp_path / "results.jsonl").read_text(encoding="utf-8").splitlines()
+    full = [json.loads(x) for x in line if '"a.wav"' in x][0]["measurement"]
+    assert full["integrated_lufs"] == -21.000000051678526  # full precision kept
 
 
 def _reject(token):

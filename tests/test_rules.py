@@ -211,9 +211,11 @@ CASES = [
     ("start_offset_max_s", 0.0, {}, SET_BASE, {"set_start_offset_max_s": 0.0},
      {"set_start_offset_max_s": 12.0}, "Spread of the stems' content starts is 12.00 s, above "
      "the limit of 0.00 s", None),
-    ("slip_max_s", 0.0, {}, {**SET_BASE, "set_slipped_stems": ["bass.wav"]},
+    ("slip_max_s", 0.0, {}, {**SET_BASE, "set_slipped_stems": ["bass.wav"],
+                          "set_slip_details": ["bass.wav 10 samples (0.21 ms) late"]},
      {"set_slip_max_s": 0.0}, {"set_slip_max_s": 10 / 48000},
-     "Largest stem slip is 0.000208 s, above the limit of 0.00 s (slipped: bass.wav)", None),
+     "Largest stem slip is 0.000208 s, above the limit of 0.00 s (slipped: bass.wav 10 samples "
+     "(0.21 ms) late)", None),
     ("sum_clipped_samples_max", 0, {}, {**SET_BASE, "sum_first_clip_s": 1.5},
      {"sum_clipped_samples": 0}, {"sum_clipped_samples": 3}, "Number of summed samples at or "
      "above full scale is 3 at 1.50 s, above the limit of 0", 1.5),

@@ -139,7 +139,12 @@ def test_a_stem_shifted_by_10_samples_is_found_and_flagged(tmp_path):
     assert_allclose(v["set_start_times_s"], [(lead + 10) / RATE, lead / RATE, lead / RATE], atol=0)
     assert_allclose(v["set_start_offset_max_s"], 10 / RATE, rtol=0, atol=1e-12)
     assert v["set_slipped_stems"] == ["stem0.wav"]
-    assert any("stem0.wav" in f and "10 frames later" in f for f in r.findings)
+    # the cross-correlation against the mix finds the known shift exactly (arithmetic: 10 samples
+    # = 10 / 48000 s = 0.208 ms)
+    assert v["set_alignment_reference"] == "reference mix"
+    assert v["set_stem_offsets_samples"] == [10, 0, 0]
+    assert_allclose(v["set_stem_offsets_ms"], [10_000 / RATE, 0.0, 0.0], rtol=0, atol=1e-12)
+    assert any("stem0.wav is 10 samples (0.21 ms) late" in f for f in r.findings)
     # The best fit follows the dominant stem: the sum is 10 samples late, so
     # m[n] ~ g s[n - d] with d = -10 (a negative offset: the mix is early).
     assert v["null_fit_offset_samples"] == -10
@@ -148,6 +153,70 @@ def test_a_stem_shifted_by_10_samples_is_found_and_flagged(tmp_path):
     # of the mix energy = -19.14 dB. Spread of the cross terms at 336k samples: about 0.1 dB.
     expected = 10 * math.log10(1 - 0.9**2 / (0.9**2 + 0.1**2))
     assert_allclose(v["null_fit_residual_db"], expected, rtol=0, atol=0.3)
+
+
+def _band(seconds: float, seed: int) -> dict[str, np.ndarray]:
+    """An invented four-stem band: drum hits, a held bass note, keys, a vocal with room tone.
+
+    The vocal's room tone starts at frame 0, so its first sample is non-zero (the case that
+    made a first-sample start detector name a stem that did not move).
+    """
+    n = int(seconds * RATE)
+    t = np.arange(n) / RATE
+    drums = np.zeros((n, 2))
+    for a in range(0, n, RATE // 2):
+        seg = np.arange(min(n - a, RATE // 2)) / RATE
+        hit = np.sin(2 * np.pi * (55 + 90 * np.exp(-seg * 35)) * seg) * np.exp(-seg * 14)
+        drums[a : a + seg.size] += 0.3 * hit[:, None]
+    bass = 0.25 * np.sin(2 * np.pi * 55 * t)[:, None] * (0.6 + 0.4 * np.sin(np.pi * t))[:, None]
+    keys = programme(seconds, RATE, channels=2, seed=seed) * 0.5
+    voice = noise(seconds, RATE, channels=1, seed=seed + 1)[:, 0] * np.sin(2 * np.pi * 4 * t) ** 2
+    room = noise(seconds, RATE, channels=1, seed=seed + 2)[:, 0] * 1e-3
+    vocal = np.repeat((0.1 * voice + room)[:, None], 2, axis=1)
+    return {"bass": np.repeat(bass, 2, axis=1), "drums": drums, "keys": keys, "vocal": vocal}
+
+
+def test_only_the_late_stem_is_named_and_the_null_hint_names_it(tmp_path):
+    band = _band(4.0, seed=71)
+    mix = sum(band.values())
+    folder = tmp_path / "stems"
+    folder.mkdir()
+    shift = 480  # 10 ms at 48 kHz, the known slip
+    for name, x in band.items():
+        write(folder / f"{name}.wav", _delay(x, shift) if name == "keys" else x, RATE, "FLOAT")
+    mix_path = str(write(tmp_path / "mix.wav", mix, RATE, subtype="FLOAT"))
+    paths = sorted(str(p) for p in folder.iterdir())
+    r = check_stem_set(paths, mix_path, MeasureOptions())
+    v = r.values
+    # the first non-zero sample says otherwise (vocal at 0, the others later): kept for information
+    assert v["set_start_times_s"][3] == 0.0
+    # cross-correlation against the mix: the known shift, nothing else moved
+    assert v["set_stem_offsets_samples"] == [0, 0, shift, 0]
+    assert_allclose(v["set_stem_offsets_ms"], [0.0, 0.0, 10.0, 0.0], rtol=0, atol=1e-12)
+    assert v["set_slipped_stems"] == ["keys.wav"]
+    assert v["set_mix_offset_samples"] == 0
+    hint = [f for f in r.findings if "do not rebuild the mix" in f]
+    assert len(hint) == 1
+    assert "keys.wav is 480 samples (10.00 ms) late against the reference mix" in hint[0]
+    assert "move keys.wav 480 samples earlier" in hint[0]
+    assert "polarity" not in hint[0] and "vocal" not in hint[0]
+
+
+def test_stems_with_nothing_in_common_and_no_mix_are_not_named(tmp_path):
+    band = _band(3.0, seed=81)
+    folder = tmp_path / "stems"
+    folder.mkdir()
+    for name in ("keys", "vocal"):
+        write(folder / f"{name}.wav", band[name], RATE, "FLOAT")
+    v = check_stem_set(sorted(str(p) for p in folder.iterdir()), None, MeasureOptions()).values
+    # independent noise: a correlation peak of ~1/sqrt(N), below the 0.02 floor (a heuristic)
+    assert v["set_stem_offsets_samples"] == [None, None]
+    assert v["set_slipped_stems"] == [] and v["set_slip_max_s"] is None
+    assert "--mix" in v["set_slip_max_note"]  # the note says how to get a measurement
+    assert (
+        "not measurable" in v["set_stem_offset_notes"][0]
+        or "no other stem" in (v["set_stem_offset_notes"][0])
+    )
 
 
 def test_start_threshold_and_content_start(tmp_path):
@@ -161,8 +230,9 @@ def test_start_threshold_and_content_start(tmp_path):
     # arithmetic: first non-zero frame 100 vs 200; first at or above -60 dBFS: 200 in both
     assert v["set_start_times_s"] == [100 / RATE, 200 / RATE]
     assert v["set_content_start_times_s"] == [200 / RATE, 200 / RATE]
-    assert v["set_common_start_s"] == 100 / RATE  # lower median of two starts
-    assert v["set_slipped_stems"] == ["stem1.wav"]
+    # A stray first sample does not make a slip: the signals sit at the same place.
+    assert v["set_stem_offsets_samples"] == [0, 0]
+    assert v["set_slipped_stems"] == []
     v = check_stem_set(paths, None, MeasureOptions(), start_threshold_dbfs=-60.0).values
     assert v["set_start_times_s"] == [200 / RATE, 200 / RATE]
     assert v["set_slipped_stems"] == []
@@ -171,18 +241,23 @@ def test_start_threshold_and_content_start(tmp_path):
 
 def test_slip_max_ignores_a_later_entry_but_start_offset_counts_it(tmp_path):
     n = RATE * 3
-    base = np.zeros((n, 1))
-    base[1000:] = 0.25
-    late_entry = np.zeros((n, 1))
-    late_entry[RATE * 2 :] = 0.25  # enters 2 s in: arrangement, outside the 0.1 s window
+    material = noise(3.0, RATE, channels=1, seed=41) * 0.2
+    base = material.copy()
+    base[:1000] = 0.0
+    late_entry = material.copy()
+    late_entry[: RATE * 2] = 0.0  # the same part muted until 2 s: arrangement, not a slip
     slipped = _delay(base, 48)  # 48 frames = 1 ms late
+    assert late_entry.shape[0] == n
     paths, _ = _write_set(tmp_path / "set", [base, base, late_entry, slipped], None, "DOUBLE")
     v = check_stem_set(paths, None, MeasureOptions()).values
-    # arithmetic: starts 1000, 1000, 96000, 1048 frames; sorted [1000, 1000, 1048, 96000],
-    # lower median at index (4 - 1) // 2 = 1 -> 1000
-    assert v["set_common_start_s"] == 1000 / RATE
+    # Pairwise, without a mix: stem3 is 48 samples late against each of the others (median 48);
+    # every other stem is late against none but stem3 (median 0).
+    assert v["set_alignment_reference"] == "other stems"
+    assert v["set_stem_offsets_samples"] == [0, 0, 0, 48]
     assert v["set_slipped_stems"] == ["stem3.wav"]
+    assert v["set_slip_max_samples"] == 48
     assert_allclose(v["set_slip_max_s"], 48 / RATE, rtol=0, atol=1e-12)
+    # arithmetic: first non-zero frames 1000, 1000, 96000, 1048
     assert_allclose(v["set_start_offset_max_s"], (RATE * 2 - 1000) / RATE, rtol=0, atol=1e-12)
 
 

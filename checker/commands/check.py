@@ -11,6 +11,7 @@ import sys
 from pathlib import Path
 from typing import TextIO
 
+from checker.commands.summary import WORST_SHOWN, summary_lines
 from checker.errors import (
     EXIT_FAILED,
     EXIT_INTERRUPTED,
@@ -25,12 +26,11 @@ from checker.errors import (
 from checker.layout import check_layout_text
 from checker.names import for_terminal
 from checker.progress import Progress
-from checker.verdict import ERROR, FAIL, PASS, STATUS_ORDER, WARN
+from checker.verdict import ERROR, FAIL, WARN
 from checker.workers import DEFAULT_MEMORY_MB
 
 DEFAULT_OUT = "deliverycheck-report"
-#: How many problem files (and files not checked) the summary lists.
-WORST_SHOWN = 10
+__all__ = ["WORST_SHOWN", "add_parser", "run", "summary_lines"]
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
@@ -59,6 +59,11 @@ def add_parser(sub) -> argparse.ArgumentParser:
     )
     p.add_argument("--fresh", action="store_true", help="measure every file again (ignore store)")
     p.add_argument("--quiet", action="store_true", help="no progress line")
+    p.add_argument(
+        "--strict",
+        action="store_true",
+        help="warnings fail too (exit 1): for pipelines that accept only clean passes",
+    )
     p.add_argument(
         "--cluster",
         metavar="ADDRESS",
@@ -92,13 +97,22 @@ def add_parser(sub) -> argparse.ArgumentParser:
     return p
 
 
-def exit_code(results) -> int:
+def exit_code(results, strict: bool = False) -> int:
+    """3 when a file could not be checked, 1 when one failed (or warned, with --strict), else 0."""
     statuses = {r.status for r in results}
     if ERROR in statuses:
         return EXIT_UNCHECKED
-    if FAIL in statuses:
+    if FAIL in statuses or (strict and WARN in statuses):
         return EXIT_FAILED
     return EXIT_OK
+
+
+def missing_paths(paths) -> list[str]:
+    """PATH arguments that name nothing at all (a typo): a usage error, nothing is checked.
+
+    A dangling symlink exists as a name and stays a per-file error row.
+    """
+    return [p for p in paths if not os.path.lexists(p)]
 
 
 def stem_set_folders(args, profile) -> list[str]:
@@ -134,16 +148,20 @@ def stem_set_key(stem_set, options) -> str | None:
     return json.dumps(parts)
 
 
-def measure_stem_set(stem_set, options, store=None, fresh: bool = False):
+def measure_stem_set(stem_set, options, store=None, fresh: bool = False, counts=None):
     """The set's SetMeasurement: from the store when its files are unchanged (a re-check
-    against another profile, a resumed batch), else one lockstep pass, stored when clean."""
+    against another profile, a resumed batch), else one lockstep pass, stored when clean.
+    ``counts`` (a dict) gets ``sets_stored`` or ``sets_measured`` incremented."""
     from checker.stems import SetMeasurement, check_stem_set
 
+    counts = {} if counts is None else counts
     key = stem_set_key(stem_set, options) if store is not None else None
     if key is not None and not fresh:
         cached = store.get_stem_set(key)
         if cached is not None:
+            counts["sets_stored"] = counts.get("sets_stored", 0) + 1
             return SetMeasurement.from_dict(cached)
+    counts["sets_measured"] = counts.get("sets_measured", 0) + 1
     sm = check_stem_set(
         list(stem_set.stem_paths),
         stem_set.mix_path,
@@ -164,6 +182,7 @@ def add_stem_sets(
     store=None,
     fresh: bool = False,
     layout: str | None = None,
+    counts=None,
 ) -> list:
     """Set-level rows (one per folder), each followed by its stems' own rows."""
     from checker.batch import measure_options
@@ -173,7 +192,7 @@ def add_stem_sets(
     ordered, used = [], set()
     for folder in folders:
         stem_set = stem_set_from_folder(folder, mix)
-        sm = measure_stem_set(stem_set, measure_options(profile, layout), store, fresh)
+        sm = measure_stem_set(stem_set, measure_options(profile, layout), store, fresh, counts)
         ordered.append(evaluate_set(sm, profile))
         for stem in stem_set.stem_paths:
             row = by_path.get(os.path.abspath(stem))
@@ -181,69 +200,6 @@ def add_stem_sets(
                 used.add(id(row))
                 ordered.append(dataclasses.replace(row, group=stem_set.name))
     return ordered + [r for r in results if id(r) not in used]
-
-
-def _first_problem(result) -> str:
-    if result.error:
-        prefix = f"{result.path}: "
-        return result.error[len(prefix) :] if result.error.startswith(prefix) else result.error
-    if result.verdict and result.verdict.flags:
-        flags = sorted(result.verdict.flags, key=lambda f: STATUS_ORDER.get(f.severity, 9))
-        return flags[0].message
-    return ""
-
-
-def _one_line(text: str, width: int = 110) -> str:
-    text = " ".join(for_terminal(text).split())
-    return text if len(text) <= width else text[: width - 3] + "..."
-
-
-def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> list[str]:
-    """The console summary. Every line goes through names.for_terminal (a file name cannot
-    move the cursor or recolour a line)."""
-    counts = {s: 0 for s in (PASS, WARN, FAIL, ERROR)}
-    for r in results:
-        counts[r.status] = counts.get(r.status, 0) + 1
-    sets = sum(1 for r in results if r.kind == "set")
-    checked = f"{len(results) - sets} files"
-    if sets:
-        checked += f" and {sets} stem set{'s' if sets > 1 else ''}"
-    lines = [
-        f"profile {run.profile_name}: {checked}: "
-        + ", ".join(f"{counts[s]} {s}" for s in (PASS, WARN, FAIL, ERROR))
-    ]
-    lines += intake_lines(results, getattr(run, "not_checked", ()))
-    worst = [r for r in results if r.status in (ERROR, FAIL, WARN)]
-    worst.sort(key=lambda r: (STATUS_ORDER.get(r.status, 9), r.path))
-    if worst:
-        lines.append("worst:")
-        for r in worst[:WORST_SHOWN]:
-            lines.append(_one_line(f"  {r.status:<5} {r.path}: {_first_problem(r)}"))
-        if len(worst) > WORST_SHOWN:
-            lines.append(f"  ... and {len(worst) - WORST_SHOWN} more (see the report)")
-    for note in notes:
-        lines.append(_one_line(f"note: {note}"))
-    for name, path in paths.items():
-        lines.append(f"{name}: {path}")
-    return [for_terminal(line) for line in lines]
-
-
-def intake_lines(results, not_checked) -> list[str]:
-    """What happened to every file found: measured / error (not measured) / not checked,
-    then the files not checked with their reasons (the first WORST_SHOWN)."""
-    files = [r for r in results if r.kind != "set"]
-    measured = sum(1 for r in files if r.measurement is not None)
-    lines = [
-        f"files found: {len(files) + len(not_checked)}: {measured} measured, "
-        f"{len(files) - measured} error (not measured), {len(not_checked)} not checked"
-    ]
-    if not_checked:
-        lines.append("not checked (not deliverables):")
-    for item in not_checked[:WORST_SHOWN]:
-        lines.append(_one_line(f"  {item['path']}: {item['reason']}"))
-    if len(not_checked) > WORST_SHOWN:
-        lines.append(f"  ... and {len(not_checked) - WORST_SHOWN} more (see the report)")
-    return lines
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
@@ -254,6 +210,11 @@ def run(args, out: TextIO, err: TextIO) -> int:
         raise UsageError(f"--jobs: jobs = {args.jobs} (expected >= 1)")
     if args.worker_memory_mb is not None and args.worker_memory_mb < 0:
         raise UsageError(f"--worker-memory-mb: {args.worker_memory_mb} (expected >= 0)")
+    missing = missing_paths(args.paths)
+    if missing:
+        raise UsageError(
+            f"PATH: {', '.join(missing)} (expected an existing file or folder; nothing checked)"
+        )
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
     if args.layout is not None:
         check_layout_text(args.layout)
@@ -291,16 +252,17 @@ def run(args, out: TextIO, err: TextIO) -> int:
         print(for_terminal(f"to resume, run again: {again}"), file=err)
         return EXIT_INTERRUPTED
     failure = None
+    counts = {"measured": progress.measured, "stored": progress.stored}
     if folders:
-        results, failure = _with_stem_sets(folders, args, profile, results, out_dir)
-    code = _report(out_dir, run_info, results, notes, out, err)
+        results, failure = _with_stem_sets(folders, args, profile, results, out_dir, counts)
+    code = _report(out_dir, run_info, results, notes, out, err, counts=counts, strict=args.strict)
     if failure is not None:
         print(for_terminal(f"deliverycheck: {failure}"), file=err)
         return EXIT_OUTPUT
     return code
 
 
-def _with_stem_sets(folders, args, profile, results, out_dir):
+def _with_stem_sets(folders, args, profile, results, out_dir, counts):
     """Results with the stem sets' rows; (rows, the store's failure or None). A store that
     fails leaves the sets measured without it."""
     from checker.store import open_store
@@ -308,21 +270,36 @@ def _with_stem_sets(folders, args, profile, results, out_dir):
     try:
         with open_store(out_dir) as store:
             rows = add_stem_sets(
-                folders, args.mix, profile, results, store, args.fresh, args.layout
+                folders, args.mix, profile, results, store, args.fresh, args.layout, counts
             )
             return rows, None
     except StoreError as exc:
-        rows = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
+        rows = add_stem_sets(
+            folders, args.mix, profile, results, None, args.fresh, args.layout, counts
+        )
         return rows, exc
 
 
-def _report(out_dir: Path, run_info, results, notes, out, err, stored: bool = True) -> int:
-    """Write the reports and print the summary; the run's exit code, or EXIT_OUTPUT (with a
-    one-line message) when the reports cannot be written."""
+def _report(
+    out_dir: Path,
+    run_info,
+    results,
+    notes,
+    out,
+    err,
+    stored: bool = True,
+    counts: dict[str, int] | None = None,
+    strict: bool = False,
+) -> int:
+    """Write the reports (and this profile's copy beside the others') and print the summary;
+    the run's exit code, or EXIT_OUTPUT (with a one-line message) when the reports cannot be
+    written."""
     from checker.report import write_reports
+    from checker.report.byprofile import keep_profile_copy
 
     try:
         written = write_reports(out_dir, run_info, results)
+        index = keep_profile_copy(out_dir, run_info, results, written)
     except OSError as exc:
         what, todo = os_cause(exc)
         where = exc.filename or out_dir
@@ -335,10 +312,10 @@ def _report(out_dir: Path, run_info, results, notes, out, err, stored: bool = Tr
             f"reports: cannot write {where}: {what} ({exc.strerror or exc}); {todo}, then run "
             f"the same command again: {kept}"
         ) from None
-    written = {"store": out_dir / "results.sqlite", **written}
-    for line in summary_lines(run_info, results, written, notes):
+    written = {"store": out_dir / "results.sqlite", **written, "profiles": index}
+    for line in summary_lines(run_info, results, written, notes, counts):
         print(line, file=out)
-    return exit_code(results)
+    return exit_code(results, strict=strict)
 
 
 def _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err) -> int:
@@ -348,7 +325,7 @@ def _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err) 
     if folders:
         results = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
     try:
-        _report(out_dir, exc.run, results, notes, out, err, stored=False)
+        _report(out_dir, exc.run, results, notes, out, err, stored=False, strict=args.strict)
         where = f"the reports in {out_dir} hold all {len(exc.results)} files of this run"
     except OutputError as report_failure:
         print(for_terminal(f"deliverycheck: {report_failure}"), file=err)

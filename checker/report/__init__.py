@@ -1,4 +1,4 @@
-"""Reports: report.csv, flags.csv, results.jsonl and a self-contained report.html.
+"""Reports: report.csv, flags.csv, fixes.csv, results.jsonl and a self-contained report.html.
 
 The one entry point the batch runner calls is :func:`write_reports`; every file is
 written atomically (temporary file in the same directory, fsync, rename).
@@ -14,6 +14,7 @@ import pandas as pd
 
 from checker.report.atomic import write_text_atomic
 from checker.report.csv_out import write_csv
+from checker.report.fixes import fixes_frame
 from checker.report.html import render_html
 from checker.report.jsonl import write_jsonl
 from checker.report.table import flags_frame, not_checked_frame, results_frame, sorted_results
@@ -22,13 +23,14 @@ from checker.results import FileResult, RunInfo
 REPORT_FILES = {
     "csv": "report.csv",
     "flags": "flags.csv",
+    "fixes": "fixes.csv",
     "html": "report.html",
     "jsonl": "results.jsonl",
 }
 
 
 def write_reports(out_dir: Path, run: RunInfo, results: Sequence[FileResult]) -> dict[str, Path]:
-    """Write the four reports into ``out_dir`` (created if missing); returns name -> path."""
+    """Write the five reports into ``out_dir`` (created if missing); returns name -> path."""
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     ordered = sorted_results(results)
@@ -38,6 +40,7 @@ def write_reports(out_dir: Path, run: RunInfo, results: Sequence[FileResult]) ->
         frame = pd.concat([frame, not_checked_frame(run, list(frame.columns))], ignore_index=True)
     write_csv(frame, paths["csv"])
     write_csv(flags_frame(ordered), paths["flags"])
+    write_csv(fixes_frame(ordered), paths["fixes"])
     write_jsonl(ordered, paths["jsonl"], not_checked=run.not_checked)
     generated_at = datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     write_text_atomic(paths["html"], render_html(run, ordered, generated_at=generated_at))

@@ -34,8 +34,16 @@ def neutralise(value: Any) -> Any:
 
 
 def safe_frame(frame: pd.DataFrame) -> pd.DataFrame:
-    """Every cell through :func:`neutralise`; column order and dtypes kept."""
-    return frame.map(neutralise).astype(object)
+    """Every cell through :func:`neutralise`; column order kept, ints stay ints.
+
+    Column by column into object Series: ``DataFrame.map`` would infer dtypes and turn a
+    column of ints with empty cells into floats (48000.0).
+    """
+    data = {
+        c: pd.Series([neutralise(v) for v in frame[c]], dtype=object, index=frame.index)
+        for c in frame.columns
+    }
+    return pd.DataFrame(data, columns=list(frame.columns), index=frame.index)
 
 
 def write_csv(frame: pd.DataFrame, path: Path) -> Path:

@@ -21,6 +21,8 @@ from html import escape
 from importlib import resources
 from typing import Any
 
+from checker.report.chart import batch_chart
+from checker.report.fixes import fixes_html
 from checker.report.htmldata import embed_json, file_detail, profile_limits_for_graph
 from checker.report.table import list_text, sorted_results
 from checker.results import FileResult, RunInfo
@@ -157,17 +159,33 @@ SET_SUM_CELLS: dict[str, str] = {
 }
 
 
-def cell_values(r: FileResult) -> dict[str, Any]:
-    """The values a table row shows: a file's own; for a stem set, the sum's under the
-    file columns (SET_SUM_CELLS), its other set values as they are."""
+def judged_as_dual_mono(values: dict[str, Any], mono_loudness: str) -> bool:
+    """A mono file under a profile that judges mono as if played on both stereo channels."""
+    return (
+        mono_loudness == "dual_mono"
+        and values.get("channels") == 1
+        and _num(values.get("integrated_dual_mono_lufs")) is not None
+    )
+
+
+def cell_values(r: FileResult, mono_loudness: str = "") -> dict[str, Any]:
+    """The values a table row shows: a file's own (a mono file judged as dual mono shows
+    the judged value under Integrated); for a stem set, the sum's under the file columns
+    (SET_SUM_CELLS), its other set values as they are."""
     values = r.measurement.values if r.measurement else {}
     if r.kind != "set":
+        if judged_as_dual_mono(values, mono_loudness):
+            return {**values, "integrated_lufs": values["integrated_dual_mono_lufs"]}
         return values
     return {**values, **{cell: values.get(key) for cell, key in SET_SUM_CELLS.items()}}
 
 
-def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str, Any]]:
-    values = cell_values(r)
+def _row(
+    i: int, r: FileResult, folder_prefix: str = "", mono_loudness: str = ""
+) -> tuple[str, dict[str, Any]]:
+    values = cell_values(r, mono_loudness)
+    plain = r.measurement.values if r.measurement else {}
+    dual = r.kind != "set" and judged_as_dual_mono(plain, mono_loudness)
     gain = r.verdict.gain if r.verdict else None
     flags = r.verdict.flags if r.verdict else ()
     name, folder = _split_path(r.path)
@@ -203,6 +221,12 @@ def _row(i: int, r: FileResult, folder_prefix: str = "") -> tuple[str, dict[str,
         text = fmt_level(values.get(col.key), signed=signed)
         if r.kind == "set" and col.key in SET_SUM_CELLS:
             cells.append(f'<td class="n" title="of the stems\' sum">{text}</td>')
+        elif dual and col.key == "integrated_lufs":
+            one = fmt_level(plain.get("integrated_lufs"))
+            cells.append(
+                f'<td class="n" title="mono file: {one} LUFS on its one channel">{text}'
+                '<span class="judged">judged as dual mono</span></td>'
+            )
         else:
             cells.append(f'<td class="n">{text}</td>')
     cells.append(f'<td class="n">{fmt_duration(values.get("duration_s"))}</td>')
@@ -330,13 +354,19 @@ def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) 
     rows_html, rows_data, details = [], [], []
     prefix = common_folder([r.path for r in ordered])
     for i, r in enumerate(ordered):
-        row_html, data = _row(i, r, prefix)
+        row_html, data = _row(i, r, prefix, run.mono_loudness)
         rows_html.append(row_html)
         rows_data.append(data)
-        details.append(
-            f'<script type="application/json" id="d-{i}">'
-            f"{embed_json(file_detail(r, profile))}</script>"
-        )
+        detail = file_detail(r, profile)
+        plain = r.measurement.values if r.measurement else {}
+        if r.kind != "set" and judged_as_dual_mono(plain, run.mono_loudness):
+            judged, one = plain["integrated_dual_mono_lufs"], _num(plain.get("integrated_lufs"))
+            detail["judged"] = {
+                "judged_lufs": judged,
+                "plain_lufs": one,
+                "offset_lu": (judged - one) if one is not None and math.isfinite(one) else 0.0,
+            }
+        details.append(f'<script type="application/json" id="d-{i}">{embed_json(detail)}</script>')
     counts = Counter(r.status for r in ordered)
     tiles, filters = _totals(counts, len(ordered))
     css, js = _asset("report.css"), _asset("report.js")
@@ -365,6 +395,8 @@ def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) 
             else ""
         ),
         "limits": _profile_table(run),
+        "fixes": fixes_html(ordered, prefix),
+        "chart": batch_chart(ordered, profile, run.mono_loudness, prefix),
         "limit_count": str(len(run.profile_limits)),
         "tiles": tiles,
         "filters": filters,

@@ -134,6 +134,7 @@
       cells.forEach(function (c, n) {
         var td = tr.appendChild(el(n === 0 && !header ? "th" : "td", n === 0 && !header ? { scope: "row" } : null, c.text !== undefined ? c.text : c));
         if (c.cls) td.className = c.cls;
+        if (header) td.setAttribute("data-label", header[n]);  // shown when a narrow screen stacks the cells
       });
     });
     return t;
@@ -159,63 +160,71 @@
   function decode(tenths) {
     return (tenths || []).map(function (v) { return typeof v === "number" ? v / 10 : null; });
   }
+  // The loudness timeline as distance from the target: 0 is the target, above is louder,
+  // below is quieter (LU). Lanes under it: overs and flagged positions, and stretches with
+  // no loudness (silence or below the gate).
   function drawGraph(d) {
-    var tl = d.timeline, lim = d.limits || {};
-    var W = 760, H = 300, L = 52, R = 14, T = 14, B = 34;
+    var tl = d.timeline, lim = d.limits || {}, vals = d.values || {};
+    var W = 760, L = 52, R = 14, T = 14, PH = 230, LANE = 22, GAP = 8;
+    var H = T + PH + GAP + 2 * LANE + 34;
+    var shift = d.judged ? d.judged.offset_lu : 0;  // mono judged as dual mono: the judged scale
     var st = decode(tl && tl.short_term_lufs), mo = decode(tl && tl.momentary_lufs);
     var n = tl ? tl.n : 0, time = function (i) { return tl.t ? tl.t[i] : tl.t0 + i * tl.dt; };
-    var finite = st.concat(mo).filter(function (v) { return typeof v === "number"; });
-    var top = Math.max.apply(null, finite.concat([lim.ceiling_dbtp, lim.band_high_lufs, lim.target_lufs, lim.short_term_max_lufs, lim.momentary_max_lufs].filter(function (v) { return typeof v === "number"; })));
-    if (!isFinite(top)) top = -10;
-    var sorted = finite.slice().sort(function (a, b) { return a - b; });
-    var low = sorted.length ? sorted[Math.floor(sorted.length * 0.02)] : -40;
-    if (typeof lim.band_low_lufs === "number") low = Math.min(low, lim.band_low_lufs - 6);
-    if (typeof lim.target_lufs === "number") low = Math.min(low, lim.target_lufs - 10);
-    var yMax = Math.ceil((top + 2) / 5) * 5, yMin = Math.max(Math.floor((low - 3) / 5) * 5, -80);
-    if (yMax - yMin < 20) yMin = yMax - 20;
-    var dur = (d.values && typeof d.values.duration_s === "number" && d.values.duration_s > 0) ? d.values.duration_s : (n ? time(n - 1) : 1);
+    var hasTarget = typeof lim.target_lufs === "number";
+    var own = typeof vals.integrated_lufs === "number" ? vals.integrated_lufs + shift : null;
+    var ref = hasTarget ? lim.target_lufs : own;
+    if (ref === null) ref = -23;
+    var dist = function (v) { return typeof v === "number" ? v + shift - ref : null; };
+    var ds = st.map(dist), dm = mo.map(dist);
+    var tol = (typeof lim.band_low_lufs === "number" && typeof lim.band_high_lufs === "number") ? [lim.band_low_lufs - ref, lim.band_high_lufs - ref] : null;
+    var finite = ds.filter(function (v) { return typeof v === "number"; }).map(Math.abs).sort(function (a, b) { return a - b; });
+    var reach = finite.length ? finite[Math.floor(finite.length * 0.98)] : 6;
+    if (tol) reach = Math.max(reach, Math.abs(tol[0]), Math.abs(tol[1]));
+    var span = [6, 12, 18, 24, 30].filter(function (s) { return s >= reach + 1; })[0] || 30;
+    var dur = (typeof vals.duration_s === "number" && vals.duration_s > 0) ? vals.duration_s : (n ? time(n - 1) : 1);
     var x = function (t) { return L + (Math.min(Math.max(t, 0), dur) / dur) * (W - L - R); };
-    var y = function (v) { return T + (yMax - Math.min(Math.max(v, yMin), yMax)) / (yMax - yMin) * (H - T - B); };
-    var root = svg("svg", { viewBox: "0 0 " + W + " " + H, role: "img", "aria-labelledby": "g-title g-desc", "font-family": "system-ui, sans-serif", "font-size": "11" });
-    svg("title", { id: "g-title" }, root).textContent = "Loudness over time";
+    var y = function (v) { return T + (span - Math.min(Math.max(v, -span), span)) / (2 * span) * PH; };
+    var root = svg("svg", { viewBox: "0 0 " + W + " " + H, role: "img", "aria-labelledby": "g-title g-desc", "font-family": "system-ui, sans-serif", "font-size": "11", "class": "distance" });
+    svg("title", { id: "g-title" }, root).textContent = "Loudness against the " + (hasTarget ? "target" : "file's own integrated loudness") + " over time";
     var desc = svg("desc", { id: "g-desc" }, root);
-    var gy = svg("g", { "class": "grid" }, root), yStep = (yMax - yMin) > 40 ? 10 : 5;
-    for (var v = yMin; v <= yMax; v += yStep) {
-      svg("line", { x1: L, x2: W - R, y1: y(v), y2: y(v), stroke: "#ebe8e1" }, gy);
-      svg("text", { x: L - 6, y: y(v) + 4, "text-anchor": "end", fill: "#6b7385" }, gy).textContent = v;
+    svg("rect", { x: L, y: T, width: W - L - R, height: PH, fill: "#fbfaf7" }, root);
+    var gy = svg("g", { "class": "grid" }, root), step = span > 12 ? 6 : 3;
+    for (var v = -span; v <= span; v += step) {
+      svg("line", { x1: L, x2: W - R, y1: y(v), y2: y(v), stroke: v === 0 ? "none" : "#ece9e2" }, gy);
+      svg("text", { x: L - 6, y: y(v) + 4, "text-anchor": "end", fill: "#6b7385" }, gy).textContent = (v > 0 ? "+" : "") + v;
     }
     var xStep = niceStep(dur, 8);
     for (var t = 0; t <= dur + 1e-9; t += xStep) {
-      svg("line", { x1: x(t), x2: x(t), y1: T, y2: H - B, stroke: "#f1efe9" }, gy);
-      svg("text", { x: x(t), y: H - B + 16, "text-anchor": "middle", fill: "#6b7385" }, gy).textContent = clock(t);
+      svg("text", { x: x(t), y: H - 18, "text-anchor": "middle", fill: "#6b7385" }, gy).textContent = clock(t);
+      svg("line", { x1: x(t), x2: x(t), y1: T + PH, y2: T + PH + 4, stroke: "#b8b2a6" }, gy);
     }
-    svg("text", { x: 12, y: T + (H - T - B) / 2, transform: "rotate(-90 12 " + (T + (H - T - B) / 2) + ")", "text-anchor": "middle", fill: "#4a5366" }, root).textContent = "LUFS / dBTP";
-    svg("text", { x: (L + W - R) / 2, y: H - 4, "text-anchor": "middle", fill: "#4a5366" }, root).textContent = "time (m:ss)";
-    var labels = [];
-    function label(yy, color, text) {
-      var node = svg("text", { x: W - R - 6, y: yy, "text-anchor": "end", fill: color, stroke: "#fff", "stroke-width": "3", "paint-order": "stroke", "font-weight": "600" });
-      node.textContent = text;
-      labels.push(node);
+    svg("text", { x: 12, y: T + PH / 2, transform: "rotate(-90 12 " + (T + PH / 2) + ")", "text-anchor": "middle", fill: "#4a5366" }, root).textContent = "LU from " + (hasTarget ? "target" : "own level");
+    // the area between the short-term curve and the target, warm above and cool below
+    var clipA = svg("clipPath", { id: "above" }, root), clipB = svg("clipPath", { id: "below" }, root);
+    svg("rect", { x: L, y: T, width: W - L - R, height: y(0) - T }, clipA);
+    svg("rect", { x: L, y: y(0), width: W - L - R, height: T + PH - y(0) }, clipB);
+    var area = "", run = [];
+    function flush() {
+      if (run.length > 1) area += "M" + run[0][0] + " " + y(0).toFixed(1) + run.map(function (p) { return "L" + p[0] + " " + p[1]; }).join("") + "L" + run[run.length - 1][0] + " " + y(0).toFixed(1) + "Z";
+      run = [];
     }
-    if (typeof lim.band_low_lufs === "number" && typeof lim.band_high_lufs === "number") {
-      svg("rect", { "class": "band", x: L, width: W - L - R, y: y(lim.band_high_lufs), height: Math.max(1, y(lim.band_low_lufs) - y(lim.band_high_lufs)), fill: "#cfe3d3", "fill-opacity": "0.7" }, root);
-      label(y(lim.band_low_lufs) + 13, "#2e6b3f", "target range " + lim.band_low_lufs.toFixed(1) + " to " + lim.band_high_lufs.toFixed(1) + " LUFS");
+    for (var i = 0; i < Math.min(ds.length, n); i++) {
+      if (typeof ds[i] !== "number") { flush(); continue; }
+      run.push([x(time(i)).toFixed(1), y(ds[i]).toFixed(1)]);
     }
-    if (typeof lim.target_lufs === "number") {
-      svg("line", { "class": "target", x1: L, x2: W - R, y1: y(lim.target_lufs), y2: y(lim.target_lufs), stroke: "#2e6b3f", "stroke-dasharray": "2 3" }, root);
+    flush();
+    if (area) {
+      svg("path", { "class": "over-target", d: area, fill: "#c98a00", "fill-opacity": "0.35", "clip-path": "url(#above)" }, root);
+      svg("path", { "class": "under-target", d: area, fill: "#24577a", "fill-opacity": "0.22", "clip-path": "url(#below)" }, root);
     }
-    if (typeof lim.ceiling_dbtp === "number") {
-      svg("line", { "class": "ceiling", x1: L, x2: W - R, y1: y(lim.ceiling_dbtp), y2: y(lim.ceiling_dbtp), stroke: "#a0242c", "stroke-width": "1.5", "stroke-dasharray": "6 4" }, root);
-      label(y(lim.ceiling_dbtp) - 4, "#a0242c", (lim.ceiling_from === "meter" ? "overs counted above " : "true-peak ceiling ") + lim.ceiling_dbtp.toFixed(1) + " dBTP");
+    if (tol) {
+      [tol[0], tol[1]].forEach(function (v) {
+        svg("line", { "class": "tolerance", x1: L, x2: W - R, y1: y(v), y2: y(v), stroke: "#2e6b3f", "stroke-dasharray": "1 4", "stroke-width": "1.5" }, root);
+      });
     }
-    [["short_term_max_lufs", "short-term max "], ["momentary_max_lufs", "momentary max "]].forEach(function (m) {
-      var v = lim[m[0]];
-      if (typeof v !== "number") return;
-      svg("line", { "class": "loudness-max", x1: L, x2: W - R, y1: y(v), y2: y(v), stroke: "#7f5200", "stroke-dasharray": "3 3" }, root);
-      label(y(v) - 4, "#7f5200", m[1] + v.toFixed(1) + " LUFS");
-    });
+    svg("line", { "class": "zero", x1: L, x2: W - R, y1: y(0), y2: y(0), stroke: "#1c2230", "stroke-width": "1.5" }, root);
     var plotted = 0;
-    function series(values, cls, color, width) {
+    function series(values, cls, color, width, opacity) {
       var dstr = "", pen = false, count = 0;
       for (var i = 0; i < values.length; i++) {
         var v = values[i];
@@ -223,24 +232,44 @@
         dstr += (pen ? "L" : "M") + x(time(i)).toFixed(1) + " " + y(v).toFixed(1);
         pen = true; count++;
       }
-      if (count) svg("path", { "class": cls, d: dstr, fill: "none", stroke: color, "stroke-width": width, "stroke-linejoin": "round", "data-points": count }, root);
+      if (count) svg("path", { "class": cls, d: dstr, fill: "none", stroke: color, "stroke-width": width, "stroke-opacity": opacity, "stroke-linejoin": "round", "data-points": count }, root);
       return count;
     }
     if (tl) {
-      plotted += series(mo, "momentary", "#9bb3c6", "1");
-      plotted += series(st, "short-term", "#24577a", "2");
+      plotted += series(dm, "momentary", "#4a5366", "0.8", "0.35");
+      plotted += series(ds, "short-term", "#1c2230", "1.6", "1");
     }
+    var refText = hasTarget ? "0 = target " + lim.target_lufs.toFixed(1) + " LUFS" : "0 = the file's integrated loudness";
+    if (tol) refText += " (tolerance " + (tol[0] > 0 ? "+" : "") + tol[0].toFixed(1) + " / +" + tol[1].toFixed(1) + " LU dotted)";
+    svg("text", { x: W - R - 6, y: y(0) - 5, "text-anchor": "end", fill: "#1c2230", stroke: "#fbfaf7", "stroke-width": "3", "paint-order": "stroke", "font-weight": "600" }, root).textContent = refText;
+    svg("text", { x: L + 6, y: T + 13, fill: "#7f5200" }, root).textContent = "louder than " + (hasTarget ? "target" : "its level");
+    svg("text", { x: L + 6, y: T + PH - 6, fill: "#24577a" }, root).textContent = "quieter";
+    svg("rect", { x: L, y: T, width: W - L - R, height: PH, fill: "none", stroke: "#d9d5cb" }, root);
+    // lanes
+    var laneY = [T + PH + GAP, T + PH + GAP + LANE];
+    [["overs and flags", "lane-overs"], ["no loudness", "lane-quiet"]].forEach(function (ln, k) {
+      svg("rect", { "class": ln[1], x: L, y: laneY[k], width: W - L - R, height: LANE - 3, fill: "#f1efe9" }, root);
+      svg("text", { x: L - 6, y: laneY[k] + 14, "text-anchor": "end", fill: "#6b7385", "font-size": "10" }, root).textContent = ln[0];
+    });
     (d.marks || []).forEach(function (m) {
       if (m.t < 0 || m.t > dur) return;
       var g = svg("g", { "class": "mark" }, root);
-      svg("line", { x1: x(m.t), x2: x(m.t), y1: T, y2: H - B, stroke: "#a0242c", "stroke-opacity": "0.35" }, g);
-      svg("path", { d: "M" + (x(m.t) - 5) + " " + T + "h10l-5 8z", fill: "#a0242c" }, g);
+      svg("path", { d: "M" + x(m.t).toFixed(1) + " " + (laneY[0] + 2) + "l5 8l-5 8l-5 -8z", fill: "#a0242c" }, g);
+      svg("line", { x1: x(m.t), x2: x(m.t), y1: T, y2: T + PH, stroke: "#a0242c", "stroke-opacity": "0.25" }, g);
       svg("title", {}, g).textContent = m.label + " at " + m.t.toFixed(2) + " s";
     });
-    svg("rect", { x: L, y: T, width: W - L - R, height: H - T - B, fill: "none", stroke: "#d9d5cb" }, root);
-    labels.forEach(function (l) { root.appendChild(l); });
-    var max = d.values ? d.values.max_short_term_lufs : null;
-    desc.textContent = plotted ? ("Short-term and momentary loudness over " + clock(dur) + "; highest short-term " + fmt("x_lufs", max) + " LUFS; " + (d.marks || []).length + " marked positions.") : "No loudness values to draw.";
+    var gapStart = null;
+    for (var j = 0; j <= Math.min(st.length, n); j++) {
+      var none = j < Math.min(st.length, n) && typeof st[j] !== "number";
+      if (none && gapStart === null) gapStart = j;
+      if (!none && gapStart !== null) {
+        var t0 = time(gapStart), t1 = j < n ? time(j) : dur;
+        svg("rect", { "class": "quiet", x: x(t0), y: laneY[1] + 3, width: Math.max(1, x(t1) - x(t0)), height: LANE - 9, fill: "#9aa3b5" }, root);
+        gapStart = null;
+      }
+    }
+    var max = vals.max_short_term_lufs;
+    desc.textContent = plotted ? ("Short-term loudness as distance from " + (hasTarget ? "the target" : "the file's own level") + " over " + clock(dur) + "; highest short-term " + fmt("x_lufs", max) + " LUFS; " + (d.marks || []).length + " marked positions.") : "No loudness values to draw.";
     root.setAttribute("data-plotted", plotted);
     return root;
   }
@@ -264,6 +293,7 @@
     if (d.kind === "set") line.appendChild(document.createTextNode("  stem set summary"));
     if (d.group) line.appendChild(document.createTextNode("  in set " + d.group));
     if (d.error) body.appendChild(el("p", { "class": "card err" }, "Could not be checked: " + d.error));
+    if (d.judged) body.appendChild(el("p", { "class": "card judged-note" }, "Mono file judged as dual mono: integrated loudness " + fmt("x_lufs", d.judged.judged_lufs) + " LUFS as judged (as if played on both channels of a stereo pair); " + fmt("x_lufs", d.judged.plain_lufs) + " LUFS on its one channel."));
     section("Flags");
     if (d.flags.length) {
       body.appendChild(table("flags", "Each limit this file breaks, with the measured value", ["Severity", "Rule", "Measured", "Limit", "Where", "What to do", "Source"],
@@ -300,13 +330,12 @@
       var legend = fig.appendChild(el("ul", { "class": "legend" }));
       var lim = d.limits || {};
       [["l-short", "short-term (3 s)", true], ["l-moment", "momentary (400 ms)", true],
-        ["l-band", "target range", typeof lim.band_low_lufs === "number"],
-        ["l-ceiling", "true-peak ceiling", typeof lim.ceiling_dbtp === "number"],
-        ["l-max", "short-term or momentary maximum", typeof lim.short_term_max_lufs === "number" || typeof lim.momentary_max_lufs === "number"],
+        ["l-above", "louder than the target", true], ["l-below", "quieter than the target", true],
+        ["l-band", "tolerance", typeof lim.band_low_lufs === "number"],
         ["l-mark", "over or flagged position", (d.marks || []).length > 0]].forEach(function (p) {
         if (p[2]) legend.appendChild(el("li", { "class": p[0] }, p[1]));
       });
-      fig.appendChild(el("figcaption", null, "Short-term and momentary loudness in LUFS with the profile's limits; the true-peak line is in dBTP. Reduced to at most a few hundred points, keeping each stretch's loudest value."));
+      fig.appendChild(el("figcaption", null, "How far the short-term loudness (3 s) sits above or below the target, in LU; the lanes below mark true-peak overs and flagged positions, and stretches with no loudness (silence, or below the gate). Reduced to at most a few hundred points, keeping each stretch's loudest value."));
     } else {
       fig.appendChild(el("p", { "class": "muted" }, "No loudness timeline was stored for this file."));
     }

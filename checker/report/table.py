@@ -24,9 +24,18 @@ from typing import Any
 import pandas as pd
 
 from checker.carriers import CARRIER_KEYS
+from checker.limitdefs import BY_KEY
 from checker.lossy import LOSSY_KEYS
+from checker.report.cells import (
+    PER_CHANNEL_KEYS,
+    channel_cells,
+    channel_column,
+    limit_cells,
+    number,
+    value_cell,
+)
 from checker.results import NOT_CHECKED, FileResult, RunInfo
-from checker.verdict import STATUS_ORDER
+from checker.verdict import ERROR, STATUS_ORDER
 
 GAIN_COLUMNS: tuple[str, ...] = (
     "gain_to_target_db",
@@ -152,7 +161,9 @@ FLAG_COLUMNS: tuple[str, ...] = (
     "rule",
     "severity",
     "measured",
-    "limit",
+    "limit_low",
+    "limit_high",
+    "limit_text",
     "unit",
     "position_s",
     "message",
@@ -220,13 +231,50 @@ def sorted_results(results: Iterable[FileResult]) -> list[FileResult]:
     return sorted(results, key=lambda r: (STATUS_ORDER.get(r.status, -1), r.path))
 
 
+def channel_count(results: Sequence[FileResult]) -> int:
+    """Columns per per-channel key: the most channels any file's lists hold (at least 1)."""
+    most = 1
+    for r in results:
+        if r.measurement is not None:
+            for key in PER_CHANNEL_KEYS:
+                value = r.measurement.values.get(key)
+                if isinstance(value, (list, tuple)):
+                    most = max(most, len(value))
+    return most
+
+
 def file_columns(results: Sequence[FileResult]) -> list[str]:
     known = set(LEAD_COLUMNS) | set(MEASUREMENT_COLUMNS)
     extra: set[str] = set()
     for r in results:
         if r.measurement is not None:
             extra.update(k for k in r.measurement.values if k not in known)
-    return [*LEAD_COLUMNS, *MEASUREMENT_COLUMNS, *sorted(extra)]
+    count = channel_count(results)
+    measured = []
+    for key in MEASUREMENT_COLUMNS:
+        if key in PER_CHANNEL_KEYS:
+            measured.extend(channel_column(key, n + 1) for n in range(count))
+        else:
+            measured.append(key)
+    return [*LEAD_COLUMNS, *measured, *sorted(extra)]
+
+
+def csv_file_row(result: FileResult, channels: int) -> dict[str, Any]:
+    """One report.csv row: numbers rounded by unit, per-channel lists in their own columns."""
+    verdict = result.verdict
+    gain = verdict.gain if verdict is not None else None
+    m = result.measurement
+    row = file_row(result)
+    for key in GAIN_COLUMNS:
+        row[key] = value_cell(key, getattr(gain, key)) if gain is not None else None
+    if m is not None:
+        for key, value in m.values.items():
+            if key in PER_CHANNEL_KEYS:
+                del row[key]
+                row.update(channel_cells(key, value, channels))
+            elif key in row and key not in LEAD_COLUMNS:
+                row[key] = value_cell(key, value)
+    return row
 
 
 def file_row(result: FileResult) -> dict[str, Any]:
@@ -252,16 +300,21 @@ def file_row(result: FileResult) -> dict[str, Any]:
     return row
 
 
-def _frame(rows: list[dict[str, Any]], columns: Sequence[str]) -> pd.DataFrame:
+def object_frame(rows: list[dict[str, Any]], columns: Sequence[str]) -> pd.DataFrame:
     # object dtype everywhere: None stays None (never NaN), ints stay ints.
     data = {c: pd.Series([row.get(c) for row in rows], dtype=object) for c in columns}
     return pd.DataFrame(data, columns=list(columns))
 
 
 def results_frame(results: Sequence[FileResult]) -> pd.DataFrame:
-    """One row per file (worst first), columns in the documented order."""
+    """One row per file (worst first), columns in the documented order (report.csv cells)."""
     ordered = sorted_results(results)
-    return _frame([file_row(r) for r in ordered], file_columns(ordered))
+    channels = channel_count(ordered)
+    return object_frame([csv_file_row(r, channels) for r in ordered], file_columns(ordered))
+
+
+#: The rule name of a flags.csv row for a file that could not be checked.
+ERROR_RULE = "not_checked"
 
 
 def not_checked_frame(run: RunInfo, columns: Sequence[str]) -> pd.DataFrame:
@@ -277,27 +330,44 @@ def not_checked_frame(run: RunInfo, columns: Sequence[str]) -> pd.DataFrame:
         }
         for x in run.not_checked
     ]
-    return _frame(rows, columns)
+    return object_frame(rows, columns)
 
 
 def flags_frame(results: Sequence[FileResult]) -> pd.DataFrame:
-    """One row per flag, files in report order, flags in verdict order."""
+    """One row per flag, files in report order, flags in verdict order.
+
+    A file that could not be checked (status error) has one row too, with rule
+    ``not_checked``, severity ``error`` and the reason as the message, so a to-do list
+    built from flags.csv includes the broken files.
+    """
     rows = []
     for r in sorted_results(results):
+        if r.error and (r.verdict is None or not r.verdict.flags or r.status == ERROR):
+            rows.append(
+                {
+                    "path": r.path,
+                    "rule": ERROR_RULE,
+                    "severity": ERROR,
+                    "limit_text": None,
+                    "message": r.error,
+                }
+            )
         if r.verdict is None:
             continue
         for f in r.verdict.flags:
+            key = BY_KEY[f.rule].measure if f.rule in BY_KEY else None
+            key = key if isinstance(key, str) else None
             rows.append(
                 {
                     "path": r.path,
                     "rule": f.rule,
                     "severity": f.severity,
-                    "measured": cell(f.measured),
-                    "limit": cell(f.limit),
+                    "measured": value_cell(key or f"x_{f.unit.lower()}", f.measured),
+                    **limit_cells(f.rule, f.limit, f.unit),
                     "unit": f.unit,
-                    "position_s": cell(f.position_s),
+                    "position_s": number(f.position_s, "position_s"),
                     "message": f.message,
                     "source": f.source,
                 }
             )
-    return _frame(rows, FLAG_COLUMNS)
+    return object_frame(rows, FLAG_COLUMNS)
