@@ -16,8 +16,11 @@ A profile file (see DEVELOPERS.md and checker/profiles/*.toml)::
     true_peak_max_dbtp = { value = -2.0, severity = "fail", source = "house rule" }
     sample_peak_max_dbfs = "off"    # drop a limit inherited from the parent
 
+    [silence]
+    silence_threshold_dbfs = { value = -55, source = "house rule" }   # a setting, not a limit
+
 Sections group the limits (format, loudness, peaks, levels, silence, channels,
-bandwidth, metadata, stems); every limit key is listed in checker/limitdefs.py.
+bandwidth, metadata, stems); every limit key and setting is listed in checker/limitdefs.py.
 A child inherits its parent's metadata and limits, then overrides them field by
 field; changing a value requires a new ``source``.
 """
@@ -37,6 +40,7 @@ from checker.limitdefs import (
     MIN,
     NO_CUTOFF_BELOW,
     ONE_OF,
+    SETTING_BY_KEY,
     TARGET,
     LimitDef,
 )
@@ -99,6 +103,9 @@ class Profile:
     path: str
     limits: tuple[Limit, ...] = ()
     mono_loudness: str = "single_channel"
+    #: head/tail silence threshold (short-time RMS) and its source (checker.limitdefs)
+    silence_threshold_dbfs: float = SETTING_BY_KEY["silence_threshold_dbfs"].default
+    silence_threshold_source: str = SETTING_BY_KEY["silence_threshold_dbfs"].default_source
     lineage: tuple[str, ...] = field(default_factory=tuple)  # root ancestor first, self last
 
     def limit(self, key: str) -> Limit | None:
@@ -248,8 +255,15 @@ def _load_path(path: Path) -> Profile:
         path=str(path),
         limits=ordered,
         mono_loudness=settings.get("mono_loudness", "single_channel"),
+        **_silence_setting(settings),
         lineage=lineage,
     )
+
+
+def _silence_setting(settings: dict[str, Any]) -> dict[str, Any]:
+    d = SETTING_BY_KEY["silence_threshold_dbfs"]
+    got = settings.get(d.key, {"value": d.default, "source": d.default_source})
+    return {"silence_threshold_dbfs": got["value"], "silence_threshold_source": got["source"]}
 
 
 def _typed(d: LimitDef, v: Any) -> Any:

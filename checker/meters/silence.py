@@ -1,19 +1,34 @@
-"""Leading/trailing silence, digital-zero padding, mid-file dropouts, silent files.
+"""Leading/trailing silence or room tone, digital-zero padding, mid-file dropouts, silent files.
 
-Definitions (common practice, no normative source):
+Definitions (common practice, no normative source; the window is our choice):
 
-- A frame is *quiet* when every channel's |sample| is below
-  ``options.silence_threshold_dbfs`` (default -60 dBFS, sample level, so the
-  loudest channel decides). ``leading_silence_s`` is the time before the first
-  frame that is not quiet; ``trailing_silence_s`` the time after the last one.
+- Head and tail are judged on short-time RMS, not on single samples: room tone at
+  -70 dBFS RMS has sample peaks 10-13 dB higher (docs/standards.md#sample-domain), so
+  a per-sample threshold would take it for programme. The level is computed over
+  WINDOW_STEPS = 20 steps of STEP_S = 1 ms (20 ms at 48 kHz; a step is
+  round(rate / 1000) frames, aligned to frame 0), per channel, and the loudest
+  channel decides. For the head the window ends at the step it is reported for
+  (looking back), for the tail it starts there (looking ahead), so a loud onset or
+  ending is placed within one step; at the file's ends the window is cut short.
+- ``leading_silence_s`` is the start of the first step whose window reaches the
+  threshold ``options.silence_threshold_dbfs`` (the fixed reference, default
+  -60 dBFS RMS, recorded as ``silence_threshold_dbfs``); ``trailing_silence_s``
+  the time after the end of the last such step. Head and tail "silence" thus
+  includes room tone and dither below the threshold.
+- The same two values at every whole threshold from CURVE_FROM_DBFS to
+  CURVE_TO_DBFS are kept as a curve (``silence_curve_thresholds_dbfs``: the
+  thresholds where a value changes, ``leading_silence_curve_s`` /
+  ``trailing_silence_curve_s``: the values from that threshold up), so a profile's
+  own ``silence_threshold_dbfs`` re-judges a stored measurement without reading the
+  audio (:func:`silence_at`). Measurements never depend on the profile.
 - A frame is *digital zero* when every channel is exactly 0.
-  ``leading_digital_zero_s`` / ``trailing_digital_zero_s`` likewise.
+  ``leading_digital_zero_s`` / ``trailing_digital_zero_s`` likewise (frame exact).
 - A *dropout* is a run of digital-zero frames of at least ``options.dropout_min_s``
   that neither starts the file nor ends it (those are padding), in a file that is
   not silent. ``dropout_times_s`` are the start times of the first
   ``options.max_positions``; ``longest_dropout_s`` is 0.0 when there is none.
-- ``is_silent``: no frame reaches the threshold. Then leading and trailing
-  silence both equal the whole duration, dropouts are not counted, and
+- ``is_silent``: no window reaches the reference threshold. Then leading and
+  trailing silence both equal the whole duration, dropouts are not counted, and
   ``silence_note`` says so.
 
 NaN/Inf samples count as 0 (see checker.meters.levels.finite_x).
@@ -21,6 +36,8 @@ NaN/Inf samples count as 0 (see checker.meters.levels.finite_x).
 
 from __future__ import annotations
 
+import bisect
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -33,10 +50,17 @@ from checker.meters.base import MeasureOptions
 from checker.meters.levels import channels_first, find_runs, finite_x, keep_first
 from checker.units import db_to_amplitude
 
+STEP_S = 0.001
+WINDOW_STEPS = 20
+#: Whole-dB thresholds kept in the curve (a profile's threshold must be one of them).
+CURVE_FROM_DBFS = -120
+CURVE_TO_DBFS = -20
+
 
 @dataclass(frozen=True)
 class SilenceResult:
     is_silent: bool
+    silence_threshold_dbfs: float
     leading_silence_s: float
     trailing_silence_s: float
     leading_digital_zero_s: float
@@ -44,10 +68,27 @@ class SilenceResult:
     dropouts: int
     dropout_times_s: list[float]
     longest_dropout_s: float
+    silence_curve_thresholds_dbfs: list[float]
+    leading_silence_curve_s: list[float]
+    trailing_silence_curve_s: list[float]
     silence_note: str | None
 
     def to_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
+
+
+def silence_at(values: Mapping[str, Any], threshold_dbfs: float) -> tuple[float, float] | None:
+    """(leading, trailing) silence in seconds at another threshold, from a measurement's
+    curve; None when the values hold no curve or the threshold lies below it."""
+    ts = values.get("silence_curve_thresholds_dbfs")
+    lead = values.get("leading_silence_curve_s")
+    trail = values.get("trailing_silence_curve_s")
+    if not ts or not isinstance(lead, list) or not isinstance(trail, list):
+        return None
+    i = bisect.bisect_right(ts, threshold_dbfs + 1e-9) - 1
+    if i < 0:
+        return None
+    return float(lead[i]), float(trail[i])
 
 
 def _first_last(mask: np.ndarray) -> tuple[int | None, int | None]:
@@ -58,6 +99,11 @@ def _first_last(mask: np.ndarray) -> tuple[int | None, int | None]:
     return first, mask.size - 1 - int(mask[::-1].argmax())
 
 
+def _reached(levels: np.ndarray, powers: np.ndarray) -> np.ndarray:
+    """For each level, how many thresholds (ascending powers) it reaches."""
+    return np.searchsorted(powers, levels, side="right")
+
+
 class SilenceMeter:
     def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
         self.rate = info.sample_rate_hz
@@ -65,8 +111,6 @@ class SilenceMeter:
         self.threshold = db_to_amplitude(options.silence_threshold_dbfs)
         self.min_frames = max(1, round(options.dropout_min_s * self.rate))
         self.frames = 0
-        self.first_loud: int | None = None
-        self.last_loud: int | None = None
         self.first_nonzero: int | None = None
         self.last_nonzero: int | None = None
         self.zero_open: int | None = None
@@ -75,6 +119,19 @@ class SilenceMeter:
         self.longest_frames = 0
         self.native = native.enabled()
         self.mask = np.empty(0, dtype=np.uint8)  # reused zero-frame mask (compiled path)
+        # Short-time RMS: 1 ms steps of sums of squares per channel.
+        ch = info.channels
+        self.step = max(1, round(self.rate * STEP_S))
+        grid = set(range(CURVE_FROM_DBFS, CURVE_TO_DBFS + 1)) | {options.silence_threshold_dbfs}
+        self.grid_dbfs = np.array(sorted(grid), dtype=np.float64)
+        self.ref = int(np.searchsorted(self.grid_dbfs, options.silence_threshold_dbfs))
+        self.grid_power = 10.0 ** (self.grid_dbfs / 10.0)
+        self.part = np.zeros(ch)  # squares of the step in progress
+        self.part_frames = 0
+        self.hist = np.zeros((0, ch))  # the last WINDOW_STEPS - 1 complete steps
+        self.steps = 0  # complete steps so far
+        self.first_step = np.full(self.grid_dbfs.size, -1, dtype=np.int64)
+        self.last_step = np.full(self.grid_dbfs.size, -1, dtype=np.int64)
 
     def prepare(self, block: Block) -> None:
         """The frame scan of an integer PCM block (always finite), as soon as it is decoded
@@ -89,12 +146,8 @@ class SilenceMeter:
             return
         xt = channels_first(finite_x(block))
         start = block.start
-        zeros, loud, nonzero, zero = self._scan(block, xt)
-        first, last = loud
-        if first is not None:
-            if self.first_loud is None:
-                self.first_loud = start + first
-            self.last_loud = start + last
+        self._levels(xt)
+        zeros, nonzero, zero = self._scan(block, xt)
         first, last = nonzero
         if first is not None:
             if self.first_nonzero is None:
@@ -115,10 +168,95 @@ class SilenceMeter:
             )
         self.frames += n
 
-    def _scan(self, block: Block, xt: np.ndarray) -> tuple[int, tuple, tuple, np.ndarray]:
-        """(zero frames, -1 when not counted; (first, last) loud frame; (first, last) non-zero
-        frame, (None, None) when none; (frames,) bool mask of zero frames) of the block,
-        from prepare(), the compiled scan or numpy."""
+    # ------------------------------------------------------------ short-time RMS
+    def _levels(self, xt: np.ndarray) -> None:
+        """Add the block's complete 1 ms steps and judge the windows they complete."""
+        ch, n = xt.shape
+        s = self.step
+        a = min(n, s - self.part_frames)
+        head = xt[:, :a]
+        self.part = self.part + np.einsum("ij,ij->i", head, head)
+        self.part_frames += a
+        done = [self.part[None, :]] if self.part_frames == s else []
+        if done:
+            self.part, self.part_frames = np.zeros(ch), 0
+        full = (n - a) // s
+        if full:
+            r = xt[:, a : a + full * s].reshape(ch, full, s)
+            done.append(np.einsum("csk,csk->sc", r, r))
+        rest = xt[:, a + full * s :]
+        if rest.shape[1]:
+            self.part = self.part + np.einsum("ij,ij->i", rest, rest)
+            self.part_frames += rest.shape[1]
+        if not done:
+            return
+        new = np.concatenate(done)
+        steps = np.concatenate((self.hist, new))
+        h = self.hist.shape[0]
+        cum = np.concatenate((np.zeros((1, ch)), np.cumsum(steps, axis=0)))
+        ends = np.arange(h, steps.shape[0]) + 1  # local end (exclusive) of each new step
+        lo = np.maximum(ends - WINDOW_STEPS, 0)
+        count = np.minimum(ends - lo, WINDOW_STEPS)  # hist starts at the file start when short
+        level = ((cum[ends] - cum[lo]).max(axis=1)) / (count * s)
+        first = self.steps  # global index of the first new step
+        self._note_first(_reached(level, self.grid_power), first)
+        # A full window ending at step g is the look-ahead window starting at g - 19.
+        globl = first + np.arange(new.shape[0])
+        full_w = globl >= WINDOW_STEPS - 1
+        if full_w.any():
+            self._note_last(
+                _reached(level[full_w], self.grid_power), globl[full_w] - (WINDOW_STEPS - 1)
+            )
+        self.hist = steps[-(WINDOW_STEPS - 1) :].copy()
+        self.steps += new.shape[0]
+
+    def _note_first(self, reached: np.ndarray, first: int) -> None:
+        todo = self.first_step < 0
+        if not todo.any():
+            return
+        run = np.maximum.accumulate(reached)
+        idx = np.searchsorted(run, np.arange(self.grid_dbfs.size), side="right")
+        hit = todo & (idx < run.size)
+        self.first_step[hit] = first + idx[hit]
+
+    def _note_last(self, reached: np.ndarray, starts: np.ndarray) -> None:
+        run = np.maximum.accumulate(reached[::-1])
+        idx = np.searchsorted(run, np.arange(self.grid_dbfs.size), side="right")
+        hit = idx < run.size
+        self.last_step[hit] = starts[run.size - 1 - idx[hit]]
+
+    def _final_steps(self) -> tuple[np.ndarray, np.ndarray]:
+        """(first step, last step) per threshold, with the step in progress and the
+        shortened look-ahead windows at the end of the file (state left untouched)."""
+        first_step, last_step = self.first_step.copy(), self.last_step.copy()
+        steps, frames = self.hist, np.full(self.hist.shape[0], self.step)
+        if self.part_frames:
+            steps = np.concatenate((steps, self.part[None, :]))
+            frames = np.append(frames, self.part_frames)
+            # the look-back window ending at the step in progress
+            level = steps.sum(axis=0).max() / frames.sum()
+            reached = int(_reached(np.array([level]), self.grid_power)[0])
+            late = (first_step < 0) & (np.arange(first_step.size) < reached)
+            first_step[late] = self.steps
+        if steps.shape[0]:
+            # look-ahead windows starting at the last 19 complete steps (and the one in
+            # progress), cut short by the end of the file
+            rsum = np.cumsum(steps[::-1], axis=0)[::-1]
+            rframes = np.cumsum(frames[::-1])[::-1]
+            level = rsum.max(axis=1) / rframes
+            reached = _reached(level, self.grid_power)
+            start = self.steps - self.hist.shape[0]
+            run = np.maximum.accumulate(reached[::-1])
+            idx = np.searchsorted(run, np.arange(first_step.size), side="right")
+            hit = idx < run.size
+            last_step[hit] = start + (run.size - 1 - idx[hit])
+        return first_step, last_step
+
+    # ------------------------------------------------------------ digital zero
+    def _scan(self, block: Block, xt: np.ndarray) -> tuple[int, tuple, np.ndarray]:
+        """(zero frames, -1 when not counted; (first, last) non-zero frame, (None, None)
+        when none; (frames,) bool mask of zero frames) of the block, from prepare(), the
+        compiled scan or numpy."""
         n = xt.shape[1]
         prepared = block.memo.get("frame_scan")
         if prepared is None and self.native:
@@ -128,44 +266,55 @@ class SilenceMeter:
         if prepared is None:
             level = np.abs(xt[0]) if xt.shape[0] == 1 else np.abs(xt).max(axis=0)
             zero = level == 0.0
-            return -1, _first_last(level >= self.threshold), _first_last(~zero), zero
-        (zeros, first, last, first_nz, last_nz), mask = prepared
+            return -1, _first_last(~zero), zero
+        (zeros, _first, _last, first_nz, last_nz), mask = prepared
         # the mask is only written when the block has zero frames
         zero = mask[:n].view(bool) if zeros else np.zeros(n, dtype=bool)
-        loud = (first, last) if first >= 0 else (None, None)
         nonzero = (first_nz, last_nz) if first_nz >= 0 else (None, None)
-        return zeros, loud, nonzero, zero
+        return zeros, nonzero, zero
 
+    # ------------------------------------------------------------ result
     def result(self) -> SilenceResult:
         rate = self.rate
         frames = self.frames
         duration = frames / rate
-
-        def lead(first: int | None) -> float:
-            return duration if first is None else first / rate
-
-        def trail(last: int | None) -> float:
-            return duration if last is None else (frames - 1 - last) / rate
-
-        silent = self.first_loud is None
+        first_step, last_step = self._final_steps()
+        lead = np.where(first_step >= 0, first_step * self.step, frames) / rate
+        end = np.minimum((last_step + 1) * self.step, frames)
+        trail = np.where(last_step >= 0, frames - end, frames) / rate
+        change = np.ones(lead.size, dtype=bool)
+        change[1:] = (lead[1:] != lead[:-1]) | (trail[1:] != trail[:-1])
+        silent = bool(first_step[self.ref] < 0)
         note = None
         dropouts, times, longest = self.dropouts, self.dropout_first, self.longest_frames
         if silent:
             note = (
-                f"no sample reaches {self.options.silence_threshold_dbfs:g} dBFS: "
+                f"no {WINDOW_STEPS} ms window reaches "
+                f"{self.options.silence_threshold_dbfs:g} dBFS RMS: "
                 "leading and trailing silence are the whole duration; dropouts not counted"
             )
             if frames == 0:
                 note = "no audio frames"
             dropouts, times, longest = 0, times[:0], 0
+
+        def zero_lead(first: int | None) -> float:
+            return duration if first is None else first / rate
+
+        def zero_trail(last: int | None) -> float:
+            return duration if last is None else (frames - 1 - last) / rate
+
         return SilenceResult(
             is_silent=silent,
-            leading_silence_s=lead(self.first_loud),
-            trailing_silence_s=trail(self.last_loud),
-            leading_digital_zero_s=lead(self.first_nonzero),
-            trailing_digital_zero_s=trail(self.last_nonzero),
+            silence_threshold_dbfs=float(self.options.silence_threshold_dbfs),
+            leading_silence_s=float(lead[self.ref]),
+            trailing_silence_s=float(trail[self.ref]),
+            leading_digital_zero_s=zero_lead(self.first_nonzero),
+            trailing_digital_zero_s=zero_trail(self.last_nonzero),
             dropouts=dropouts,
             dropout_times_s=[float(t) / rate for t in times],
             longest_dropout_s=longest / rate,
+            silence_curve_thresholds_dbfs=[float(t) for t in self.grid_dbfs[change]],
+            leading_silence_curve_s=[float(v) for v in lead[change]],
+            trailing_silence_curve_s=[float(v) for v in trail[change]],
             silence_note=note,
         )
