@@ -183,7 +183,9 @@ def _check_setting(where: str, d: SettingDef, entry: Any) -> dict[str, Any]:
         raise err(where, f"{dotted}.value", v, expected)
     source = entry.get("source")
     if not isinstance(source, str) or not source.strip():
-        raise err(where, f"{dotted}.source", source, 'the standard and clause, or "common practice"')
+        raise err(
+            where, f"{dotted}.source", source, 'the standard and clause, or "common practice"'
+        )
     return {"value": float(v), "source": source}
 
 

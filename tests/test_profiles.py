@@ -366,3 +366,26 @@ def test_cli_validate(tmp_path):
     assert f'{bad}: peaks.true_peak_max_dbtp.value = "x" (expected a number in dBTP)' in err
     code, _, err = run_cli("profiles", "show", "nope")
     assert code == EXIT_USAGE and "expected a built-in profile" in err
+
+
+def test_silence_threshold_setting(tmp_path):
+    # Default (checker/limitdefs.py): -60 dBFS short-time RMS, common practice.
+    base = load_profile("audiobook-chapter")
+    assert (
+        base.silence_threshold_dbfs == -60.0 and "common practice" in base.silence_threshold_source
+    )
+    ok = write(tmp_path, "ok.toml", 'name = "ok"\nextends = "audiobook-chapter"\n[silence]\n'
+               'silence_threshold_dbfs = { value = -55, source = "house rule" }\n')  # fmt: skip
+    p = load_profile(str(ok))
+    assert p.silence_threshold_dbfs == -55.0 and p.silence_threshold_source == "house rule"
+    assert p.limit("leading_silence_min_s") is not None  # inherited limits stay
+    bad = write(tmp_path, "bad.toml", 'name = "bad"\n[silence]\n'
+                'silence_threshold_dbfs = { value = -55.5, source = "x" }\n')  # fmt: skip
+    expect_error(bad, "silence.silence_threshold_dbfs.value = -55.5",
+                 "a whole number in dBFS from -120 to -20")  # fmt: skip
+    nosource = write(tmp_path, "nosource.toml", 'name = "n"\n[silence]\n'
+                     "silence_threshold_dbfs = { value = -50 }\n")  # fmt: skip
+    expect_error(nosource, "silence.silence_threshold_dbfs.source")
+    wrong = write(tmp_path, "wrong.toml", 'name = "w"\n[levels]\n'
+                  'silence_threshold_dbfs = { value = -50, source = "x" }\n')  # fmt: skip
+    expect_error(wrong, "levels.silence_threshold_dbfs")
