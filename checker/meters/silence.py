@@ -99,11 +99,6 @@ def _first_last(mask: np.ndarray) -> tuple[int | None, int | None]:
     return first, mask.size - 1 - int(mask[::-1].argmax())
 
 
-def _reached(levels: np.ndarray, powers: np.ndarray) -> np.ndarray:
-    """For each level, how many thresholds (ascending powers) it reaches."""
-    return np.searchsorted(powers, levels, side="right")
-
-
 class SilenceMeter:
     def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
         self.rate = info.sample_rate_hz
@@ -128,7 +123,7 @@ class SilenceMeter:
         self.grid_power = 10.0 ** (self.grid_dbfs / 10.0)
         self.part = np.zeros(ch)  # squares of the step in progress
         self.part_frames = 0
-        self.hist = np.zeros((0, ch))  # the last WINDOW_STEPS - 1 complete steps
+        self.hist = np.zeros((ch, 0))  # the last WINDOW_STEPS - 1 complete steps
         self.steps = 0  # complete steps so far
         self.first_step = np.full(self.grid_dbfs.size, -1, dtype=np.int64)
         self.last_step = np.full(self.grid_dbfs.size, -1, dtype=np.int64)
@@ -144,7 +139,8 @@ class SilenceMeter:
         n = block.frames
         if n == 0:
             return
-        xt = channels_first(finite_x(block))
+        x = finite_x(block)
+        xt = block.xt if x is block.x else channels_first(x)
         start = block.start
         self._levels(xt)
         zeros, nonzero, zero = self._scan(block, xt)
@@ -177,79 +173,68 @@ class SilenceMeter:
         head = xt[:, :a]
         self.part = self.part + np.einsum("ij,ij->i", head, head)
         self.part_frames += a
-        done = [self.part[None, :]] if self.part_frames == s else []
+        done = [self.part[:, None]] if self.part_frames == s else []
         if done:
             self.part, self.part_frames = np.zeros(ch), 0
         full = (n - a) // s
         if full:
             r = xt[:, a : a + full * s].reshape(ch, full, s)
-            done.append(np.einsum("csk,csk->sc", r, r))
+            done.append(np.einsum("csk,csk->cs", r, r))
         rest = xt[:, a + full * s :]
         if rest.shape[1]:
             self.part = self.part + np.einsum("ij,ij->i", rest, rest)
             self.part_frames += rest.shape[1]
         if not done:
             return
-        new = np.concatenate(done)
-        steps = np.concatenate((self.hist, new))
-        h = self.hist.shape[0]
-        cum = np.concatenate((np.zeros((1, ch)), np.cumsum(steps, axis=0)))
-        ends = np.arange(h, steps.shape[0]) + 1  # local end (exclusive) of each new step
-        lo = np.maximum(ends - WINDOW_STEPS, 0)
-        count = np.minimum(ends - lo, WINDOW_STEPS)  # hist starts at the file start when short
-        level = ((cum[ends] - cum[lo]).max(axis=1)) / (count * s)
+        new = np.concatenate(done, axis=1) if len(done) > 1 else done[0]
+        k = new.shape[1]
+        # steps (channels, w - 1 + k): the w - 1 steps before the new ones (zeros before
+        # the file start), so every window is a slice of the running sum
+        w = WINDOW_STEPS
+        pad = np.zeros((ch, w - 1 - self.hist.shape[1]))
+        steps = np.concatenate((pad, self.hist, new), axis=1)
+        cum = np.zeros((ch, steps.shape[1] + 1))
+        np.cumsum(steps, axis=1, out=cum[:, 1:])
+        sums = (cum[:, w:] - cum[:, :-w]).max(axis=0)  # window ending at each new step
         first = self.steps  # global index of the first new step
-        self._note_first(_reached(level, self.grid_power), first)
-        # A full window ending at step g is the look-ahead window starting at g - 19.
-        globl = first + np.arange(new.shape[0])
-        full_w = globl >= WINDOW_STEPS - 1
-        if full_w.any():
-            self._note_last(
-                _reached(level[full_w], self.grid_power), globl[full_w] - (WINDOW_STEPS - 1)
-            )
-        self.hist = steps[-(WINDOW_STEPS - 1) :].copy()
-        self.steps += new.shape[0]
-
-    def _note_first(self, reached: np.ndarray, first: int) -> None:
-        todo = self.first_step < 0
-        if not todo.any():
-            return
-        run = np.maximum.accumulate(reached)
-        idx = np.searchsorted(run, np.arange(self.grid_dbfs.size), side="right")
-        hit = todo & (idx < run.size)
-        self.first_step[hit] = first + idx[hit]
-
-    def _note_last(self, reached: np.ndarray, starts: np.ndarray) -> None:
-        run = np.maximum.accumulate(reached[::-1])
-        idx = np.searchsorted(run, np.arange(self.grid_dbfs.size), side="right")
-        hit = idx < run.size
-        self.last_step[hit] = starts[run.size - 1 - idx[hit]]
+        frames = np.minimum(np.arange(first + 1, first + k + 1), w) * s
+        level = sums / frames
+        if (self.first_step < 0).any():
+            idx = np.searchsorted(np.maximum.accumulate(level), self.grid_power, side="left")
+            hit = (self.first_step < 0) & (idx < k)
+            self.first_step[hit] = first + idx[hit]
+        # A full window ending at step g is the look-ahead window starting at g - (w - 1).
+        skip = max(0, w - 1 - first)  # windows still cut short by the file start
+        if skip < k:
+            ahead = level[skip:][::-1]
+            idx = np.searchsorted(np.maximum.accumulate(ahead), self.grid_power, side="left")
+            hit = idx < ahead.size
+            self.last_step[hit] = first + k - 1 - idx[hit] - (w - 1)
+        real = min(w - 1, first + k)  # the padding before the file start is not kept
+        self.hist = steps[:, steps.shape[1] - real :].copy()
+        self.steps += k
 
     def _final_steps(self) -> tuple[np.ndarray, np.ndarray]:
         """(first step, last step) per threshold, with the step in progress and the
         shortened look-ahead windows at the end of the file (state left untouched)."""
         first_step, last_step = self.first_step.copy(), self.last_step.copy()
-        steps, frames = self.hist, np.full(self.hist.shape[0], self.step)
+        steps, frames = self.hist, np.full(self.hist.shape[1], self.step)
         if self.part_frames:
-            steps = np.concatenate((steps, self.part[None, :]))
+            steps = np.concatenate((steps, self.part[:, None]), axis=1)
             frames = np.append(frames, self.part_frames)
             # the look-back window ending at the step in progress
-            level = steps.sum(axis=0).max() / frames.sum()
-            reached = int(_reached(np.array([level]), self.grid_power)[0])
-            late = (first_step < 0) & (np.arange(first_step.size) < reached)
+            level = steps.sum(axis=1).max() / frames.sum()
+            late = (first_step < 0) & (self.grid_power <= level)
             first_step[late] = self.steps
-        if steps.shape[0]:
+        if steps.shape[1]:
             # look-ahead windows starting at the last 19 complete steps (and the one in
             # progress), cut short by the end of the file
-            rsum = np.cumsum(steps[::-1], axis=0)[::-1]
-            rframes = np.cumsum(frames[::-1])[::-1]
-            level = rsum.max(axis=1) / rframes
-            reached = _reached(level, self.grid_power)
-            start = self.steps - self.hist.shape[0]
-            run = np.maximum.accumulate(reached[::-1])
-            idx = np.searchsorted(run, np.arange(first_step.size), side="right")
-            hit = idx < run.size
-            last_step[hit] = start + (run.size - 1 - idx[hit])
+            rsum = np.cumsum(steps[:, ::-1], axis=1)  # reversed: window from the end back
+            level = rsum.max(axis=0) / np.cumsum(frames[::-1])
+            idx = np.searchsorted(np.maximum.accumulate(level), self.grid_power, side="left")
+            hit = idx < level.size
+            start = self.steps - self.hist.shape[1]
+            last_step[hit] = start + steps.shape[1] - 1 - idx[hit]
         return first_step, last_step
 
     # ------------------------------------------------------------ digital zero
