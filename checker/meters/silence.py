@@ -129,11 +129,15 @@ class SilenceMeter:
         self.last_step = np.full(self.grid_dbfs.size, -1, dtype=np.int64)
 
     def prepare(self, block: Block) -> None:
-        """The frame scan of an integer PCM block (always finite), as soon as it is decoded
-        (measure() may run this in the read-ahead thread, so it gets a mask of its own)."""
-        if self.native and block.raw is not None and block.frames:
-            mask = np.empty(block.frames, dtype=np.uint8)
-            block.memo["frame_scan"] = (native.frame_scan(block.xt, self.threshold, mask), mask)
+        """The 1 ms sums of squares and the frame scan of an integer PCM block (always
+        finite), as soon as it is decoded (measure() may run this in the read-ahead thread,
+        so it gets a mask of its own)."""
+        if block.raw is not None and block.frames:
+            xt = block.xt
+            block.memo["silence_steps"] = self._pieces(xt, block.start)  # numpy frees the GIL
+            if self.native:
+                mask = np.empty(block.frames, dtype=np.uint8)
+                block.memo["frame_scan"] = (native.frame_scan(xt, self.threshold, mask), mask)
 
     def feed(self, block: Block) -> None:
         n = block.frames
@@ -142,7 +146,7 @@ class SilenceMeter:
         x = finite_x(block)
         xt = block.xt if x is block.x else channels_first(x)
         start = block.start
-        self._levels(xt)
+        self._levels(block, xt)
         zeros, nonzero, zero = self._scan(block, xt)
         first, last = nonzero
         if first is not None:
@@ -165,41 +169,63 @@ class SilenceMeter:
         self.frames += n
 
     # ------------------------------------------------------------ short-time RMS
-    def _levels(self, xt: np.ndarray) -> None:
-        """Add the block's complete 1 ms steps and judge the windows they complete."""
+    def _pieces(self, xt: np.ndarray, start: int) -> tuple:
+        """Sums of squares per channel of the block's pieces on the 1 ms step grid (aligned
+        to frame 0 of the file): the end of the step in progress, every full step
+        (channels, k), the beginning of the next step and its length."""
         ch, n = xt.shape
         s = self.step
-        a = min(n, s - self.part_frames)
+        a = min(n, -start % s)
         head = xt[:, :a]
-        self.part = self.part + np.einsum("ij,ij->i", head, head)
-        self.part_frames += a
-        done = [self.part[:, None]] if self.part_frames == s else []
-        if done:
-            self.part, self.part_frames = np.zeros(ch), 0
         full = (n - a) // s
-        if full:
-            r = xt[:, a : a + full * s].reshape(ch, full, s)
-            done.append(np.einsum("csk,csk->cs", r, r))
+        r = xt[:, a : a + full * s].reshape(ch, full, s)
         rest = xt[:, a + full * s :]
-        if rest.shape[1]:
-            self.part = self.part + np.einsum("ij,ij->i", rest, rest)
-            self.part_frames += rest.shape[1]
+        return (
+            np.einsum("ij,ij->i", head, head),
+            np.einsum("csk,csk->cs", r, r),
+            np.einsum("ij,ij->i", rest, rest),
+            rest.shape[1],
+        )
+
+    def _levels(self, block: Block, xt: np.ndarray) -> None:
+        """Add the block's complete 1 ms steps and judge the windows they complete."""
+        ch, n = xt.shape
+        pieces = block.memo.get("silence_steps")
+        if pieces is None:
+            pieces = self._pieces(xt, block.start)
+        head, full, rest, rest_frames = pieces
+        self.part = self.part + head
+        self.part_frames += min(n, -block.start % self.step)
+        done = []
+        if self.part_frames == self.step:
+            done.append(self.part[:, None])
+            self.part, self.part_frames = np.zeros(ch), 0
+        if full.shape[1]:
+            done.append(full)
+        self.part = self.part + rest
+        self.part_frames += rest_frames
         if not done:
             return
         new = np.concatenate(done, axis=1) if len(done) > 1 else done[0]
         k = new.shape[1]
+        s = self.step
         # steps (channels, w - 1 + k): the w - 1 steps before the new ones (zeros before
         # the file start), so every window is a slice of the running sum
         w = WINDOW_STEPS
         pad = np.zeros((ch, w - 1 - self.hist.shape[1]))
         steps = np.concatenate((pad, self.hist, new), axis=1)
-        cum = np.zeros((ch, steps.shape[1] + 1))
-        np.cumsum(steps, axis=1, out=cum[:, 1:])
-        sums = (cum[:, w:] - cum[:, :-w]).max(axis=0)  # window ending at each new step
+        sums = None
+        for row in steps:  # loudest channel of each window; per row: numpy is slow across rows
+            cum = np.concatenate(([0.0], np.cumsum(row)))
+            window = cum[w:] - cum[:-w]  # the window ending at each new step
+            sums = window if sums is None else np.maximum(sums, window, out=sums)
         first = self.steps  # global index of the first new step
-        frames = np.minimum(np.arange(first + 1, first + k + 1), w) * s
-        level = sums / frames
-        if (self.first_step < 0).any():
+        level = sums / (w * s)
+        if first < w - 1:  # windows cut short by the file start
+            cut = min(k, w - 1 - first)
+            level[:cut] = sums[:cut] / (np.arange(first + 1, first + cut + 1) * s)
+        todo = np.flatnonzero(self.first_step < 0)
+        if todo.size and level.max() >= self.grid_power[todo[0]]:
             idx = np.searchsorted(np.maximum.accumulate(level), self.grid_power, side="left")
             hit = (self.first_step < 0) & (idx < k)
             self.first_step[hit] = first + idx[hit]
