@@ -20,7 +20,10 @@ A profile file (see DEVELOPERS.md and checker/profiles/*.toml)::
     silence_threshold_dbfs = { value = -55, source = "house rule" }   # a setting, not a limit
 
 Sections group the limits (format, loudness, peaks, levels, silence, channels,
-bandwidth, metadata, stems); every limit key and setting is listed in checker/limitdefs.py.
+bandwidth, downmix, metadata, stems); every limit key is listed in checker/limitdefs.py.
+Settings that are not limits: ``[loudness] mono_loudness``, ``[format] channel_layout``
+(the channel order of the delivery's files with as many channels, e.g. "L C R Ls Rs LFE") and
+``[silence] silence_threshold_dbfs`` (checker.limitdefs.SETTING_DEFS).
 A child inherits its parent's metadata and limits, then overrides them field by
 field; changing a value requires a new ``source``.
 """
@@ -106,6 +109,8 @@ class Profile:
     #: head/tail silence threshold (short-time RMS) and its source (checker.limitdefs)
     silence_threshold_dbfs: float = SETTING_BY_KEY["silence_threshold_dbfs"].default
     silence_threshold_source: str = SETTING_BY_KEY["silence_threshold_dbfs"].default_source
+    #: Channel order of the delivery's files with as many channels ("L C R Ls Rs LFE"), or None.
+    channel_layout: str | None = None
     lineage: tuple[str, ...] = field(default_factory=tuple)  # root ancestor first, self last
 
     def limit(self, key: str) -> Limit | None:
@@ -256,6 +261,7 @@ def _load_path(path: Path) -> Profile:
         limits=ordered,
         mono_loudness=settings.get("mono_loudness", "single_channel"),
         **_silence_setting(settings),
+        channel_layout=settings.get("channel_layout"),
         lineage=lineage,
     )
 

@@ -113,6 +113,15 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "steep_cutoff_hz",
     "faint_content_top_hz",
     "bandwidth_note",
+    # stereo fold-down of multichannel files
+    "downmix_method",
+    "downmix_integrated_lufs",
+    "downmix_max_short_term_lufs",
+    "downmix_true_peak_dbtp",
+    "downmix_true_peak_time_s",
+    "downmix_sample_peak_dbfs",
+    "downmix_sample_peak_time_s",
+    "downmix_note",
     # stream format
     "container",
     "subtype",
