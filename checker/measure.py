@@ -26,9 +26,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = (
-    f"{__version__}+engine6"  # 5: downmix; 6: noise floor kinds, RMS silence, bandwidth headline
-)
+ENGINE_VERSION = f"{__version__}+engine7"  # 5: downmix; 6: 64-tap true peak; 7: noise floor kinds, RMS silence, bandwidth headline
 
 
 class FlatValues:
