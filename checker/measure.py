@@ -33,7 +33,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine8"  # 7: containers, extremes; 8: carriers, lossy
+ENGINE_VERSION = f"{__version__}+engine9"  # 7: containers; 8: carriers, lossy; 9: quiet parts
 
 
 class FlatValues:

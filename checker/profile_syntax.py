@@ -27,9 +27,11 @@ from checker.limitdefs import (
     ONE_OF,
     REQUIRED,
     SECTIONS,
+    SETTING_BY_KEY,
     TARGET,
     UNIT_SUFFIXES,
     LimitDef,
+    SettingDef,
 )
 
 META_KEYS = ("name", "title", "version", "description", "extends")
@@ -249,6 +251,27 @@ def _check_value(where: str, dotted: str, d: LimitDef, v: Any) -> None:
             raise err(where, dotted, v, f"a tolerance >= 0 in {d.unit}")
 
 
+def _check_setting(where: str, d: SettingDef, entry: Any) -> dict[str, Any]:
+    """A numeric setting: ``{ value = ..., source = "..." }`` within the setting's range."""
+    dotted = f"{d.section}.{d.key}"
+    if not isinstance(entry, dict):
+        raise err(where, dotted, entry, '{ value = ..., source = "..." }')
+    for f in entry:
+        if f not in ("value", "source"):
+            raise err(where, f"{dotted}.{f}", entry[f], "one of source, value")
+    v = entry.get("value")
+    whole = " whole" if d.whole else ""
+    expected = f"a{whole} number in {d.unit} from {d.low:g} to {d.high:g}"
+    if not is_number(v) or not d.low <= v <= d.high or (d.whole and v != int(v)):
+        raise err(where, f"{dotted}.value", v, expected)
+    source = entry.get("source")
+    if not isinstance(source, str) or not source.strip():
+        raise err(
+            where, f"{dotted}.source", source, 'the standard and clause, or "common practice"'
+        )
+    return {"value": float(v), "source": source}
+
+
 def _check_layout(where: str, dotted: str, v: Any) -> str:
     from checker.layout import SPEAKERS, layout_labels
 
@@ -286,6 +309,8 @@ def parse_layer(path: Path) -> dict[str, Any]:
                         choices = " or ".join(f'"{c}"' for c in SETTINGS[(top, key)])
                         raise err(where, f"{top}.{key}", entry, choices)
                     settings[key] = entry
+                elif key in SETTING_BY_KEY and SETTING_BY_KEY[key].section == top:
+                    settings[key] = _check_setting(where, SETTING_BY_KEY[key], entry)
                 elif key in BY_KEY and BY_KEY[key].section == top:
                     limits[key] = _check_entry(where, top, key, entry)
                 else:

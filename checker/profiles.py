@@ -16,10 +16,14 @@ A profile file (see DEVELOPERS.md and checker/profiles/*.toml)::
     true_peak_max_dbtp = { value = -2.0, severity = "fail", source = "house rule" }
     sample_peak_max_dbfs = "off"    # drop a limit inherited from the parent
 
+    [silence]
+    silence_threshold_dbfs = { value = -55, source = "house rule" }   # a setting, not a limit
+
 Sections group the limits (format, loudness, peaks, levels, silence, channels,
 bandwidth, downmix, metadata, stems); every limit key is listed in checker/limitdefs.py.
-Settings that are not limits: ``[loudness] mono_loudness`` and ``[format] channel_layout``
-(the channel order of the delivery's files with as many channels, e.g. "L C R Ls Rs LFE").
+Settings that are not limits: ``[loudness] mono_loudness``, ``[format] channel_layout``
+(the channel order of the delivery's files with as many channels, e.g. "L C R Ls Rs LFE") and
+``[silence] silence_threshold_dbfs`` (checker.limitdefs.SETTING_DEFS).
 A child inherits its parent's metadata and limits, then overrides them field by
 field; changing a value requires a new ``source``.
 """
@@ -39,6 +43,7 @@ from checker.limitdefs import (
     MIN,
     NO_CUTOFF_BELOW,
     ONE_OF,
+    SETTING_BY_KEY,
     TARGET,
     LimitDef,
 )
@@ -102,6 +107,9 @@ class Profile:
     path: str
     limits: tuple[Limit, ...] = ()
     mono_loudness: str = "single_channel"
+    #: head/tail silence threshold (short-time RMS) and its source (checker.limitdefs)
+    silence_threshold_dbfs: float = SETTING_BY_KEY["silence_threshold_dbfs"].default
+    silence_threshold_source: str = SETTING_BY_KEY["silence_threshold_dbfs"].default_source
     #: Channel order of the delivery's files with as many channels ("L C R Ls Rs LFE"), or None.
     channel_layout: str | None = None
     lineage: tuple[str, ...] = field(default_factory=tuple)  # root ancestor first, self last
@@ -313,6 +321,7 @@ def _load_path(path: Path) -> Profile:
         path=str(path),
         limits=ordered,
         mono_loudness=settings.get("mono_loudness", "single_channel"),
+        **_silence_setting(settings),
         channel_layout=settings.get("channel_layout"),
         lineage=lineage,
         encode=_encode_request(path, settings, limits),
@@ -331,6 +340,12 @@ def _encode_request(path: Path, settings: dict, limits: dict) -> tuple[str, floa
             '[encode] codec = "mp3" and bit_rate_kbps = 128, for example)'
         )
     return None if codec is None else (str(codec), float(rate))
+
+
+def _silence_setting(settings: dict[str, Any]) -> dict[str, Any]:
+    d = SETTING_BY_KEY["silence_threshold_dbfs"]
+    got = settings.get(d.key, {"value": d.default, "source": d.default_source})
+    return {"silence_threshold_dbfs": got["value"], "silence_threshold_source": got["source"]}
 
 
 def _typed(d: LimitDef, v: Any) -> Any:

@@ -33,6 +33,7 @@ from checker.limitdefs import (
     measured_keys,
     with_derived,
 )
+from checker.meters.silence import silence_at
 from checker.profiles import Limit, Profile
 from checker.verdict import ERROR, PASS, Flag, Verdict, worst_status
 
@@ -57,7 +58,7 @@ def evaluate(measurement: Any, profile: Profile, *, scope: str | None = None) ->
     values = values_of(measurement)
     scope = scope or scope_of(values)
     if scope == FILE:
-        values = with_derived(values)
+        values = at_silence_threshold(with_derived(values), profile)
     flags: list[Flag] = []
     for lim in profile.limits:
         d = lim.definition
@@ -74,6 +75,24 @@ def evaluate(measurement: Any, profile: Profile, *, scope: str | None = None) ->
     status = worst_status(f.severity for f in flags) if flags else PASS
     gain = advise(values, profile) if scope == FILE else None
     return Verdict(status=status, flags=tuple(flags), gain=gain)
+
+
+def at_silence_threshold(values: Mapping[str, Any], profile: Profile) -> Mapping[str, Any]:
+    """Leading and trailing silence at the profile's threshold, read from the measured
+    curve (checker.meters.silence.silence_at); measurements stay profile-free."""
+    threshold = getattr(profile, "silence_threshold_dbfs", None)
+    if threshold is None or values.get("silence_threshold_dbfs") == threshold:
+        return values
+    got = silence_at(values, threshold)
+    if got is None:
+        return values
+    lead, trail = got
+    return {
+        **values,
+        "leading_silence_s": lead,
+        "trailing_silence_s": trail,
+        "silence_threshold_dbfs": threshold,
+    }
 
 
 # ---------------------------------------------------------------- formatting

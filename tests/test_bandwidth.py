@@ -82,14 +82,44 @@ def test_lowpassed_noise_cutoff_found(rate, fraction, design):
     # Steep cutoff within 3 % of the design's own -3 dB frequency (issue 10 tolerance).
     assert r.steep_cutoff_hz is not None, r.bandwidth_note
     assert_allclose(r.steep_cutoff_hz, f3, rtol=0.03, atol=0)
-    # Effective bandwidth: content is there up to the cutoff; for the equiripple design
-    # it is gone beyond the stopband edge (100 dB down), so it lies between the two.
-    # (The FIR's stopband keeps falling, so its faint residue has no fixed end.)
-    assert r.effective_bandwidth_hz >= 0.97 * f3
-    if f_stop is not None:
-        assert r.effective_bandwidth_hz <= 1.03 * f_stop
+    # The headline is where the content ends: the steep cutoff itself (issue 16).
+    assert r.effective_bandwidth_hz == r.steep_cutoff_hz
     assert_allclose(r.bandwidth_fraction, r.effective_bandwidth_hz / (rate / 2), rtol=1e-12)
+    # The faint remainder (transition band, stopband residue) is a second figure: above the
+    # cutoff and, for the equiripple design, gone beyond its stopband edge (100 dB down).
+    # (The FIR's stopband keeps falling, so its faint residue has no fixed end.)
+    assert r.faint_content_top_hz >= r.steep_cutoff_hz
+    if f_stop is not None:
+        assert r.faint_content_top_hz <= 1.03 * f_stop
     assert r.bandwidth_note.startswith("content ends near")
+
+
+def test_noise_lowpassed_at_10_khz_reads_10_khz():
+    # Issue 16: noise low-passed at 10 kHz read effective_bandwidth_hz 13,254 next to
+    # steep_cutoff_hz 9,996. Reference: the -3 dB point of the filter design, computed here
+    # (scipy.signal.ellip 12th order, 0.1 dB ripple, 100 dB stopband), within 3 %.
+    x, f3, _ = lowpassed_noise(48_000, 10_000.0, "ellip")
+    r = run(x, 48_000).result()
+    assert_allclose(r.effective_bandwidth_hz, f3, rtol=0.03, atol=0)
+    assert_allclose(r.bandwidth_fraction, f3 / 24_000, rtol=0.03, atol=0)
+    assert r.faint_content_top_hz > r.effective_bandwidth_hz
+    # The note leads with the same frequency; the cause only because the cutoff is steep.
+    khz = f"{r.effective_bandwidth_hz / 1000:.1f} kHz"
+    assert r.bandwidth_note.startswith(f"content ends near {khz} in a 48 kHz file (steep cutoff")
+    # 10.1 kHz lies 80-101 % of the 22.05 kHz rate's Nyquist frequency (our rule).
+    assert r.bandwidth_note.endswith("probably upsampled from 22.05 kHz")
+
+
+def test_gradual_edge_gives_no_cause():
+    # Noise whose spectrum falls gently (4th-order Butterworth at 3 kHz, 24 dB per octave)
+    # into a 16-bit floor: an empty top band but no brick wall, so no cause is named.
+    x = noise(2.0, 48_000, channels=1, seed=17) * 0.3
+    y = sps.sosfilt(sps.butter(4, 3000, fs=48_000, output="sos"), x, axis=0)
+    r = run(np.round(y * 2**15) / 2**15, 48_000, subtype="PCM_16").result()
+    assert r.steep_cutoff_hz is None and r.faint_content_top_hz is None
+    assert r.bandwidth_fraction < 1.0  # it reaches the 16-bit floor below Nyquist
+    assert r.bandwidth_note.startswith("content fades out near")
+    assert "upsampled" not in r.bandwidth_note and "lossy" not in r.bandwidth_note
 
 
 def test_upsampled_from_22050_says_so(tmp_path):

@@ -222,12 +222,119 @@ def test_digital_zero_file_has_no_nan_and_inf_levels():
     r = run(LevelsMeter, info_for("PCM_24", 2), x, np.zeros((RATE, 2), dtype=np.int32))
     assert r.sample_peak_dbfs == -math.inf and r.headroom_db == math.inf
     assert r.rms_dbfs == -math.inf and r.sample_peak_time_s is None
-    assert r.noise_floor_dbfs is None and r.noise_floor_note
+    # Digital silence is -inf (DEVELOPERS.md, silence policy), and said so.
+    assert r.noise_floor_dbfs == -math.inf and r.noise_floor_kind == "digital silence"
+    assert r.noise_floor_note and r.footroom_db is None and r.footroom_note
     assert r.effective_bits is None and r.effective_bits_channel == [None, None]
     assert r.dc_offset_dbfs == -math.inf and r.dc_offset_percent == 0.0
     assert no_nan(r.to_dict())
     empty = run(LevelsMeter, info_for("FLOAT", 1), np.zeros((0, 1)))
     assert empty.rms_dbfs is None and empty.dc_offset_dbfs is None and no_nan(empty.to_dict())
+
+
+# ------------------------------------------------------------------ noise floor: what is quiet
+
+LSB16 = 2.0**-15  # one 16-bit step with full scale +-1
+
+
+def alternating(rate: int, gap: np.ndarray | None = None, cycles: int = 3) -> np.ndarray:
+    """``cycles`` x (2 s of a 440 Hz tone at -20 dBFS RMS, 2 s gap); the gap holds ``gap``
+    (cycles * 2 s of samples, taken in order) or digital zero."""
+    n = 2 * rate
+    t = np.arange(n) / rate
+    tone = np.sqrt(2) * 0.1 * np.sin(2 * np.pi * 440 * t + 0.3)
+    parts = []
+    for c in range(cycles):
+        parts += [tone, np.zeros(n) if gap is None else gap[c * n : (c + 1) * n]]
+    return np.concatenate(parts)[:, None]
+
+
+def tpdf(rng: np.random.Generator, n: int) -> np.ndarray:
+    """TPDF dither in LSB: the sum of two independent uniform variables of +-0.5 LSB."""
+    return rng.uniform(-0.5, 0.5, n) + rng.uniform(-0.5, 0.5, n)
+
+
+def dithered_16_bit(x: np.ndarray, seed: int) -> np.ndarray:
+    """x requantized to 16 bits with TPDF dither, as left-justified int32 codes."""
+    d = tpdf(np.random.default_rng(seed), x.size).reshape(x.shape)
+    k = np.clip(np.round(x / LSB16 + d), -32768, 32767).astype(np.int64)
+    return (k << 16).astype(np.int32)
+
+
+def test_noise_floor_of_dithered_gaps_is_the_dither():
+    # Issue 16: programme at -20 dBFS with 16-bit TPDF-dithered silence in between read
+    # -21.3 dBFS (the programme). Expected: the dither. Textbook (docs/standards.md#sample-
+    # domain): TPDF dither of 2 LSB peak to peak has variance LSB^2/6; requantized with it,
+    # silence carries LSB^2/4 (RMS LSB/2 = 2**-16 = -96.33 dBFS); 400 ms blocks scatter by
+    # about 0.1 dB and the 10th percentile sits a little low, hence 0.3 dB.
+    rate = 16_000
+    raw = dithered_16_bit(alternating(rate), seed=11)
+    r = run(LevelsMeter, info_for("PCM_16", 1, rate), raw * 2.0**-31, raw, sizes=(4_800,))
+    assert r.noise_floor_kind == "dither" and "16-bit TPDF dither" in r.noise_floor_note
+    assert_allclose(r.noise_floor_dbfs, 20 * np.log10(LSB16 / 2), rtol=0, atol=0.3)
+    assert_allclose(20 * np.log10(LSB16 / 2), -96.33, rtol=0, atol=0.01)  # 6.02 dB per bit
+    # Footroom: the quantization floor (LSB/sqrt(12), -101.1 dBFS RMS re 1.0 by the
+    # 6.02 N + 1.76 dB rule) lies 10 log10(3) = 4.77 dB below LSB/2 (textbook).
+    assert_allclose(r.footroom_db, 10 * np.log10(3), rtol=0, atol=0.3)
+
+
+def test_noise_floor_of_float_dither_alone():
+    # Dither added to a float file without requantizing: LSB/sqrt(6) (textbook) of a 16-bit
+    # step = -98.09 dBFS; the file is not on a 16-bit grid, so it is compared with 16- and
+    # 24-bit dither.
+    rate = 16_000
+    x = alternating(rate, tpdf(np.random.default_rng(12), 6 * 2 * rate) * LSB16)
+    r = run(LevelsMeter, info_for("FLOAT", 1, rate), x, sizes=(3_000,))
+    assert r.noise_floor_kind == "dither"
+    assert_allclose(r.noise_floor_dbfs, 20 * np.log10(LSB16 / np.sqrt(6)), rtol=0, atol=0.3)
+
+
+def test_noise_floor_of_digital_zero_gaps_is_digital_silence():
+    # Issue 16: undithered zero gaps read -21.2 dBFS. Now: digital silence, -inf, with a note.
+    rate = 16_000
+    raw = to_codes(alternating(rate), 16)
+    r = run(LevelsMeter, info_for("PCM_16", 1, rate), raw * 2.0**-31, raw)
+    assert r.noise_floor_dbfs == -math.inf and r.noise_floor_kind == "digital silence"
+    assert "digital zero" in r.noise_floor_note
+
+
+def test_noise_floor_of_room_tone_gaps_is_the_room_tone():
+    # Gaussian room tone at -70 dBFS RMS in the gaps; the reference is the RMS of the
+    # generated gap samples (derived), 0.3 dB for the spread of 400 ms blocks.
+    rate = 16_000
+    rng = np.random.default_rng(13)
+    tone = 10 ** (-70 / 20) * rng.standard_normal(6 * 2 * rate)
+    x = alternating(rate, tone)
+    r = run(LevelsMeter, info_for("FLOAT", 1, rate), x, sizes=(5_000,))
+    assert r.noise_floor_kind == "room tone"
+    assert_allclose(r.noise_floor_dbfs, 10 * np.log10(np.mean(tone**2)), rtol=0, atol=0.3)
+    # Digital-zero padding at both ends is padding, not the floor.
+    padded = np.concatenate([np.zeros((rate // 2, 1)), x, np.zeros((rate, 1))])
+    p = run(LevelsMeter, info_for("FLOAT", 1, rate), padded, sizes=(5_000,))
+    assert p.noise_floor_kind == "room tone"
+    assert_allclose(p.noise_floor_dbfs, r.noise_floor_dbfs, rtol=0, atol=0.3)
+
+
+def test_noise_floor_without_pauses_is_programme():
+    # Noise at -20 dBFS RMS, 6 dB slower swings, no pause: the floor is programme.
+    rate = 16_000
+    rng = np.random.default_rng(14)
+    t = np.arange(8 * rate) / rate
+    x = (0.1 * (1 + 0.5 * np.sin(2 * np.pi * 0.5 * t)) * rng.standard_normal(t.size))[:, None]
+    r = run(LevelsMeter, info_for("FLOAT", 1, rate), x)
+    assert r.noise_floor_kind == "programme" and "upper bound" in r.noise_floor_note
+    assert -30.0 < r.noise_floor_dbfs < -20.0
+
+
+def test_noise_floor_kinds_block_size_invariance():
+    rate = 16_000
+    raw = dithered_16_bit(alternating(rate, cycles=2), seed=15)
+    info = info_for("PCM_16", 1, rate)
+    ref = run(LevelsMeter, info, raw * 2.0**-31, raw).to_dict()
+    assert ref["noise_floor_kind"] == "dither"
+    for size in (777, 4_800):
+        got = run(LevelsMeter, info, raw * 2.0**-31, raw, sizes=(size,)).to_dict()
+        assert_same(ref, got, EXACT | {"noise_floor_kind", "noise_floor_note"})
 
 
 # ------------------------------------------------------------------ NaN / Inf

@@ -328,7 +328,7 @@ def test_prepare_fills_the_block_memo():
     block = Block(np.ascontiguousarray(x.T).T, np.ascontiguousarray(raw.T).T, 0)
     for cls in (LoudnessMeter, LevelsMeter, SilenceMeter):
         cls(_info(2), default_layout(2), MeasureOptions()).prepare(block)
-    assert {"loudness", "frame_scan"} <= set(block.memo)
+    assert {"loudness", "frame_scan", "silence_steps"} <= set(block.memo)
     assert any(key[0] == "sample_stats" for key in block.memo if isinstance(key, tuple))
 
 

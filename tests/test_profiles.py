@@ -58,7 +58,7 @@ def test_every_shipped_profile_loads_with_complete_metadata(name):
 
 # (profile, limit key, expected value, expected tolerance, document named in the source)
 # Each expected number is the published (or common-practice) value, as collected in
-# /work/shared/standards-notes.md, "Delivery targets"; "from memory" where the notes say so.
+# docs/standards.md#delivery-targets; "from memory" where it says so.
 PUBLISHED = [
     # EBU R 128: -23 LUFS, +-0.5 LU (+-1 LU live), -1 dBTP (checked)
     ("ebu-r128", "integrated_target_lufs", -23.0, 0.5, "EBU R 128"),
@@ -91,15 +91,16 @@ PUBLISHED = [
     ("podcast-mono", "integrated_target_lufs", -19.0, 1.0, "common practice"),
     ("podcast-mono", "true_peak_max_dbtp", -1.0, None, "common practice"),
     # audiobook chapter: RMS -23 to -18 dBFS, sample peak <= -3 dBFS, noise floor <= -60 dBFS,
-    # 0.5-1 s room tone at the head, 1-5 s at the tail (common practice, from memory)
-    ("audiobook-chapter", "rms_min_dbfs", -23.0, None, "common practice"),
-    ("audiobook-chapter", "rms_max_dbfs", -18.0, None, "common practice"),
-    ("audiobook-chapter", "sample_peak_max_dbfs", -3.0, None, "common practice"),
-    ("audiobook-chapter", "noise_floor_max_dbfs", -60.0, None, "common practice"),
-    ("audiobook-chapter", "leading_silence_min_s", 0.5, None, "common practice"),
-    ("audiobook-chapter", "leading_silence_max_s", 1.0, None, "common practice"),
-    ("audiobook-chapter", "trailing_silence_min_s", 1.0, None, "common practice"),
-    ("audiobook-chapter", "trailing_silence_max_s", 5.0, None, "common practice"),
+    # 0.5-1 s room tone at the head, 1-5 s at the tail: a major audiobook retailer's
+    # published requirements, from memory
+    ("audiobook-chapter", "rms_min_dbfs", -23.0, None, "retailer's published requirements"),
+    ("audiobook-chapter", "rms_max_dbfs", -18.0, None, "retailer's published requirements"),
+    ("audiobook-chapter", "sample_peak_max_dbfs", -3.0, None, "retailer's published requirements"),
+    ("audiobook-chapter", "noise_floor_max_dbfs", -60.0, None, "retailer's published requirements"),
+    ("audiobook-chapter", "leading_silence_min_s", 0.5, None, "retailer's published requirements"),
+    ("audiobook-chapter", "leading_silence_max_s", 1.0, None, "retailer's published requirements"),
+    ("audiobook-chapter", "trailing_silence_min_s", 1.0, None, "retailer's published requirements"),
+    ("audiobook-chapter", "trailing_silence_max_s", 5.0, None, "retailer's published requirements"),
     # stem handoff: sample peak -3 to -6 dBFS (3-6 dB headroom), no clipping (common practice)
     ("mastering-stems", "sample_peak_max_dbfs", -3.0, None, "common practice"),
     ("mastering-stems", "clipped_runs_max", 0, None, "common practice"),
@@ -434,3 +435,26 @@ def test_errors_in_a_parent_never_repeat_its_contents(tmp_path):
     child3 = write(tmp_path, "child3.toml", 'name = "c"\nextends = "p3.toml"\n')
     msg = expect_error(child3, "p3.toml: peaks.true_peak_max_dbtp changes the inherited value")
     assert "-7.25" not in msg
+
+
+def test_silence_threshold_setting(tmp_path):
+    # Default (checker/limitdefs.py): -60 dBFS short-time RMS, common practice.
+    base = load_profile("ebu-r128")  # sets no threshold of its own
+    assert base.silence_threshold_dbfs == -60.0
+    assert "common practice" in base.silence_threshold_source
+    assert load_profile("audiobook-chapter").silence_threshold_dbfs == -60.0
+    ok = write(tmp_path, "ok.toml", 'name = "ok"\nextends = "audiobook-chapter"\n[silence]\n'
+               'silence_threshold_dbfs = { value = -55, source = "house rule" }\n')  # fmt: skip
+    p = load_profile(str(ok))
+    assert p.silence_threshold_dbfs == -55.0 and p.silence_threshold_source == "house rule"
+    assert p.limit("leading_silence_min_s") is not None  # inherited limits stay
+    bad = write(tmp_path, "bad.toml", 'name = "bad"\n[silence]\n'
+                'silence_threshold_dbfs = { value = -55.5, source = "x" }\n')  # fmt: skip
+    expect_error(bad, "silence.silence_threshold_dbfs.value = -55.5",
+                 "a whole number in dBFS from -120 to -20")  # fmt: skip
+    nosource = write(tmp_path, "nosource.toml", 'name = "n"\n[silence]\n'
+                     "silence_threshold_dbfs = { value = -50 }\n")  # fmt: skip
+    expect_error(nosource, "silence.silence_threshold_dbfs.source")
+    wrong = write(tmp_path, "wrong.toml", 'name = "w"\n[levels]\n'
+                  'silence_threshold_dbfs = { value = -50, source = "x" }\n')  # fmt: skip
+    expect_error(wrong, "levels.silence_threshold_dbfs")

@@ -46,6 +46,10 @@ def describe(profile: Profile) -> list[str]:
         lines.append("  inherits: " + " -> ".join(profile.lineage))
     mono = "as dual mono" if profile.mono_loudness == "dual_mono" else "as one channel"
     lines.append(f"  mono files judged {mono} (mono_loudness = {profile.mono_loudness})")
+    lines.append(
+        f"  head and tail silence below {profile.silence_threshold_dbfs:g} dBFS short-time RMS "
+        f"(silence_threshold_dbfs; {profile.silence_threshold_source})"
+    )
     lines = [x for x in lines if x]
     if not profile.limits:
         lines.append("  no limits: every measured file passes")

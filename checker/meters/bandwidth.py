@@ -42,14 +42,21 @@ Analysis (project choices; the constants below):
   when STEEP_SPAN_FRACTION (20 %, about 0.26 octave) above the cutoff the level
   has fallen STEEP_DROP_DB (30 dB) further: over 110 dB per octave, as after a
   resampler's or lossy encoder's low-pass, far beyond natural roll-off (a 4th-
-  order Butterworth falls 24 dB per octave). After a steep cutoff, residue more
-  than STOPBAND_RESIDUE_DB below the passband (a filter's stopband) is not
-  counted as content, so ``effective_bandwidth_hz`` ends where the transition
-  band reaches that depth.
-- Source-rate guess in the note: the common lower rate whose Nyquist frequency
-  the cutoff sits just below (80-101 %), only for cutoffs below
-  SUGGEST_BELOW_FRACTION of the file's Nyquist (above that, a native recording's
-  own anti-alias filter may sit there).
+  order Butterworth falls 24 dB per octave).
+- The headline, ``effective_bandwidth_hz`` (and ``bandwidth_fraction`` of the
+  Nyquist frequency), is where the content ends: the steep cutoff where there is
+  one, else the edge. After a steep cutoff, ``faint_content_top_hz`` is where the
+  faint remainder above it (a filter's transition band and stopband residue, a
+  lossy encoder's sparse high band) falls STOPBAND_RESIDUE_DB below the passband;
+  None without a steep cutoff. (Before issue 16 that figure was the headline:
+  noise low-passed at 10 kHz read 13.3 kHz.)
+- The note gives the frequency, and a likely cause only when the evidence
+  supports one: a steep cutoff below SUGGEST_BELOW_FRACTION of the file's
+  Nyquist (above that, a native recording's own anti-alias filter may sit
+  there). The cause is the common lower rate whose Nyquist frequency the cutoff
+  sits just below (80-101 %: "probably upsampled from"), else "a brick-wall
+  low-pass, typical of a lossy encoder or a resampler". A gentle edge into an
+  empty band gives the frequency only.
 - Cannot judge (values None, ``bandwidth_note`` says why, nothing to flag):
   fewer than MIN_FRAMES spectrum frames; digital silence; long-term level below
   NEAR_SILENCE_DBFS; less than MIN_BROADBAND_SHARE of the power left after the
@@ -137,6 +144,7 @@ class BandwidthResult:
     effective_bandwidth_hz: float | None
     bandwidth_fraction: float | None
     steep_cutoff_hz: float | None
+    faint_content_top_hz: float | None
     bandwidth_note: str
 
     def to_dict(self) -> dict:
@@ -241,7 +249,7 @@ class BandwidthMeter:
 
 
 def _none(note: str) -> BandwidthResult:
-    return BandwidthResult(None, None, None, note)
+    return BandwidthResult(None, None, None, None, note)
 
 
 def analyse(power: np.ndarray, rate_hz: int, frames: int, bits: int | None) -> BandwidthResult:
@@ -274,7 +282,11 @@ def analyse(power: np.ndarray, rate_hz: int, frames: int, bits: int | None) -> B
     above = np.nonzero(smooth[1:top_start] > threshold)[0]
     if above.size == 0:
         return BandwidthResult(
-            nyquist, 1.0, None, "content runs to the Nyquist frequency (no empty band at the top)"
+            nyquist,
+            1.0,
+            None,
+            None,
+            "content runs to the Nyquist frequency (no empty band at the top)",
         )
     edge = int(above[-1]) + 1
     found = _steep(smooth, edge)
@@ -292,15 +304,20 @@ def analyse(power: np.ndarray, rate_hz: int, frames: int, bits: int | None) -> B
     )
     if not empty:
         return BandwidthResult(
-            nyquist, 1.0, None, "content runs to the Nyquist frequency (gentle roll-off, no floor)"
+            nyquist,
+            1.0,
+            None,
+            None,
+            "content runs to the Nyquist frequency (gentle roll-off, no floor)",
         )
-    bandwidth_hz = edge * hz_per_bin
-    cutoff_hz = cutoff_bin * hz_per_bin if cutoff_bin is not None else None
+    edge_hz = edge * hz_per_bin
+    if cutoff_bin is None:
+        return BandwidthResult(
+            edge_hz, edge_hz / nyquist, None, None, _note(edge_hz, None, rate_hz)
+        )
+    cutoff_hz = cutoff_bin * hz_per_bin
     return BandwidthResult(
-        bandwidth_hz,
-        bandwidth_hz / nyquist,
-        cutoff_hz,
-        _note(bandwidth_hz, cutoff_hz, rate_hz),
+        cutoff_hz, cutoff_hz / nyquist, cutoff_hz, edge_hz, _note(cutoff_hz, edge_hz, rate_hz)
     )
 
 
@@ -331,21 +348,23 @@ def _steep(smooth: np.ndarray, edge: int) -> tuple[int, float] | None:
     return cutoff, passband
 
 
-def _note(bandwidth_hz: float, cutoff_hz: float | None, rate_hz: int) -> str:
-    edge = cutoff_hz if cutoff_hz is not None else bandwidth_hz
-    text = f"content ends near {edge / 1000:.1f} kHz in a {rate_hz / 1000:g} kHz file"
-    if cutoff_hz is not None and bandwidth_hz > 1.05 * cutoff_hz:
-        text += f" (steep cutoff; faint residue to {bandwidth_hz / 1000:.1f} kHz)"
-    elif cutoff_hz is not None:
-        text += " (steep cutoff)"
-    if edge >= SUGGEST_BELOW_FRACTION * rate_hz / 2:
+def _note(end_hz: float, faint_hz: float | None, rate_hz: int) -> str:
+    """Plain words: where the content ends (``faint_hz`` given: at a steep cutoff, with
+    faint content up to there), and a likely cause only for a steep cutoff well below
+    the file's Nyquist frequency."""
+    where = f"in a {rate_hz / 1000:g} kHz file"
+    if faint_hz is None:
+        return f"content fades out near {end_hz / 1000:.1f} kHz {where} (gradual, no brick wall)"
+    text = f"content ends near {end_hz / 1000:.1f} kHz {where} (steep cutoff"
+    if faint_hz > 1.05 * end_hz:
+        text += f"; faint content, 3-60 dB down, to {faint_hz / 1000:.1f} kHz"
+    text += ")"
+    if end_hz >= SUGGEST_BELOW_FRACTION * rate_hz / 2:
         return text  # where the file's own anti-alias filter may sit: no guess
-    source = _likely_source_rate(edge, rate_hz)
+    source = _likely_source_rate(end_hz, rate_hz)
     if source is not None:
-        text += f": probably upsampled from {source / 1000:g} kHz"
-    elif cutoff_hz is not None:
-        text += ": a brick-wall low-pass, typical of a lossy encoder or a resampler"
-    return text
+        return text + f": probably upsampled from {source / 1000:g} kHz"
+    return text + ": a brick-wall low-pass, typical of a lossy encoder or a resampler"
 
 
 def _likely_source_rate(edge_hz: float, rate_hz: int) -> int | None:

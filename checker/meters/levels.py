@@ -25,11 +25,22 @@ Definitions (project choices unless a source is named):
 - Noise floor: the signal is cut into 100 ms segments (one record of per-channel
   sums of squares and a count of all-channel digital-zero frames per segment);
   400 ms blocks step by 100 ms. A block's level is the RMS of its loudest channel.
-  Blocks that are digital zero or have more than half of their frames digital
-  zero in every channel are skipped (they sit at the edges of padding and
-  dropouts). ``noise_floor_dbfs`` is the 10th percentile (numpy method "lower",
-  i.e. an actual block's level) of the remaining block levels. It is the level of
-  the quietest passages, so a file without pauses reads its quietest programme.
+  Every block counts, whatever it holds (programme, room tone, dither, digital
+  zero), except those touching the digital-zero padding at either end of the file
+  (the zero segments there and the segment where the padding ends, which
+  ``leading_digital_zero_s`` / ``trailing_digital_zero_s`` report).
+  ``noise_floor_dbfs`` is the 10th percentile (numpy method "lower", i.e. an actual
+  block's level) of the block levels: the level of the quietest passages.
+  ``noise_floor_kind`` says what they are made of:
+  "digital silence" (the level is 0: ``-inf``, there is no noise to measure);
+  "dither" (within DITHER_MARGIN_DB of a TPDF dither's RMS for the effective bits:
+  LSB/sqrt(6) for the dither alone, LSB/2 with the quantization error,
+  docs/standards.md#sample-domain; float files off an integer grid are compared
+  with 16- and 24-bit dither); "near silence" (below that: a few stray codes);
+  "room tone" (at least ROOM_TONE_GAP_DB below the median block: pauses holding
+  steady low-level sound); otherwise "programme" (the file has no quiet passage,
+  so the value is the quietest programme, an upper bound on the noise floor).
+  ``noise_floor_note`` says the same in words.
 - Footroom: noise_floor_dbfs minus checker.units.quantization_floor_dbfs(N) for
   N = effective_bits (6.02 N + 1.76 dB rule). None for float files that are not on
   an integer grid (no fixed quantization floor) and for lossy files.
@@ -53,7 +64,15 @@ from checker.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
 
 NOISE_BLOCK_SEGMENTS = 4  # 400 ms blocks, 100 ms step
 NOISE_FLOOR_PERCENTILE = 10.0
-NOISE_BLOCK_MAX_ZERO_FRACTION = 0.5
+#: A floor within this of a TPDF dither's RMS is dither (issue 16; project choice).
+DITHER_MARGIN_DB = 1.0
+#: A floor at least this far below the median 400 ms block is room tone, not programme
+#: (project choice: speech pauses sit 30-50 dB below the speech).
+ROOM_TONE_GAP_DB = 20.0
+#: 20 log10(2): the RMS of N-bit TPDF dither with quantization is LSB/2 = 2**-N of full scale.
+DB_PER_BIT = 6.020599913279624
+#: 20 log10(sqrt(6) / 2): dither alone (LSB/sqrt 6) lies this far below LSB/2.
+DITHER_ALONE_BELOW_DB = 1.760912590556812
 #: Float files finer than this grid report their format's bits.
 MAX_GRID_BITS = 24
 
@@ -169,6 +188,7 @@ class LevelsResult:
     effective_bits_note: str | None
     rms_dbfs: float | None
     noise_floor_dbfs: float | None
+    noise_floor_kind: str | None
     noise_floor_note: str | None
     footroom_db: float | None
     footroom_note: str | None
@@ -365,10 +385,12 @@ class LevelsMeter:
         rms = None
         if frames:
             rms = power_to_db(float(self.sumsq.max()) / frames)
-        floor, floor_note = self._noise_floor()
+        floor, floor_kind, floor_note = self._noise_floor(bits)
         footroom, footroom_note = None, None
         if floor is None:
             footroom_note = "no noise floor"
+        elif floor == -np.inf:
+            footroom_note = "the quietest parts are digital zero: no noise floor to compare"
         elif bits is None:
             footroom_note = f"no effective bit depth ({bits_note})"
         elif self.info.is_float and bits > MAX_GRID_BITS:
@@ -392,6 +414,7 @@ class LevelsMeter:
             effective_bits_note=bits_note,
             rms_dbfs=rms,
             noise_floor_dbfs=floor,
+            noise_floor_kind=floor_kind,
             noise_floor_note=floor_note,
             footroom_db=footroom,
             footroom_note=footroom_note,
@@ -421,23 +444,75 @@ class LevelsMeter:
             note = "digital-zero channels have no bits in use and are left out"
         return min(used), per, note
 
-    def _noise_floor(self) -> tuple[float | None, str | None]:
+    def _noise_floor(self, bits: int | None) -> tuple[float | None, str | None, str | None]:
+        """(noise_floor_dbfs, noise_floor_kind, noise_floor_note); see the module doc."""
+        short = (None, None, "shorter than one 400 ms block")
         if not self.seg_sums:
-            return None, "shorter than one 400 ms block"
+            return short
         sums = np.concatenate(self.seg_sums)
         zeros = np.concatenate(self.seg_zeros)
         k = sums.shape[0] - NOISE_BLOCK_SEGMENTS + 1
         if k < 1:
-            return None, "shorter than one 400 ms block"
+            return short
         power = sum(sums[i : i + k] for i in range(NOISE_BLOCK_SEGMENTS))
-        zero = sum(zeros[i : i + k] for i in range(NOISE_BLOCK_SEGMENTS))
         level = power.max(axis=1) / (NOISE_BLOCK_SEGMENTS * self.seg_len)
-        limit = NOISE_BLOCK_MAX_ZERO_FRACTION * NOISE_BLOCK_SEGMENTS * self.seg_len
-        keep = level[(level > 0.0) & (zero <= limit)]
-        if keep.size == 0:
-            return None, "no 400 ms block with signal (digital zero throughout)"
+        signal = np.flatnonzero(zeros < self.seg_len)  # segments not wholly digital zero
+        if signal.size == 0:
+            return -np.inf, "digital silence", "digital zero throughout"
+        first, last = int(signal[0]), int(signal[-1])
+        first += int(first > 0 and zeros[first] > 0)  # the segment where the padding ends
+        last -= int(last < zeros.size - 1 and zeros[last] > 0)
+        start = np.arange(k)
+        keep = level[(start >= first) & (start + NOISE_BLOCK_SEGMENTS - 1 <= last)]
+        if keep.size == 0:  # all blocks touch the padding: judge the ones with signal
+            keep = level[level > 0.0]
         p = float(np.percentile(keep, NOISE_FLOOR_PERCENTILE, method="lower"))
-        return power_to_db(p), None
+        if p == 0.0:
+            return (
+                -np.inf,
+                "digital silence",
+                "the quietest 10 % of the file is digital zero: no noise to measure "
+                "(room tone or dither would show here)",
+            )
+        floor = power_to_db(p)
+        kind_note = self._dither(floor, bits)
+        if kind_note is None:
+            gap = power_to_db(float(np.median(keep))) - floor
+            if gap >= ROOM_TONE_GAP_DB:
+                kind_note = (
+                    "room tone",
+                    f"the quietest passages, {gap:.0f} dB below the median 400 ms block: "
+                    "room tone or other background noise",
+                )
+            else:
+                kind_note = (
+                    "programme",
+                    f"no quiet passage (the quietest 10 % is only {gap:.0f} dB below the median "
+                    "400 ms block): the quietest programme, an upper bound on the noise floor",
+                )
+        return floor, *kind_note
+
+    def _dither(self, floor: float, bits: int | None) -> tuple[str, str] | None:
+        """("dither" | "near silence", note) when the floor is at or below a TPDF dither's
+        level for the effective bits (16 and 24 for float files off an integer grid)."""
+        if self.info.is_float:
+            depths = (bits,) if bits is not None and bits <= MAX_GRID_BITS else (16, 24)
+        elif self.info.is_integer_pcm and bits is not None:
+            depths = (bits,)
+        else:
+            return None
+        for n in depths:
+            with_q = -DB_PER_BIT * n  # LSB/2, textbook
+            alone = with_q - DITHER_ALONE_BELOW_DB  # LSB/sqrt(6), textbook
+            if alone - DITHER_MARGIN_DB <= floor <= with_q + DITHER_MARGIN_DB:
+                return (
+                    "dither",
+                    f"the level of {n}-bit TPDF dither ({alone:.1f} dBFS RMS alone, "
+                    f"{with_q:.1f} dBFS with its quantization): the quietest parts are dither",
+                )
+        if floor < -DB_PER_BIT * depths[0] - DITHER_ALONE_BELOW_DB - DITHER_MARGIN_DB:
+            return "near silence", f"below {depths[0]}-bit dither: only a few non-zero codes"
+        return None
 
     def _findings(self) -> tuple[str, ...]:
         return tuple(

@@ -95,12 +95,14 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "effective_bits_note",
     "rms_dbfs",
     "noise_floor_dbfs",
+    "noise_floor_kind",
     "noise_floor_note",
     "footroom_db",
     "footroom_note",
     "nonfinite_samples",
     # silence
     "is_silent",
+    "silence_threshold_dbfs",
     "leading_silence_s",
     "trailing_silence_s",
     "leading_digital_zero_s",
@@ -120,6 +122,7 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "effective_bandwidth_hz",
     "bandwidth_fraction",
     "steep_cutoff_hz",
+    "faint_content_top_hz",
     "bandwidth_note",
     # stereo fold-down of multichannel files
     "downmix_method",
