@@ -23,7 +23,7 @@ def judged(path: str, **over) -> FileResult:
     """A measured file judged by the podcast-stereo profile (target -16 LUFS +- 1 LU)."""
     clean = dict(clipped_runs=0, nonfinite_samples=0, dc_offset_dbfs=-120.0, effective_bits=24,
                  leading_silence_s=0.5, trailing_silence_s=1.0, dropouts=0, silent_channels=[],
-                 bandwidth_fraction=0.9, bandwidth_note=None)  # fmt: skip
+                 bandwidth_fraction=0.9, bandwidth_note=None, container_intact=True)  # fmt: skip
     v = values(**{**clean, **over})
     m = Measurement(path=path, values=v)
     verdict = evaluate(m, load_profile("podcast-stereo"))
