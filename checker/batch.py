@@ -55,20 +55,36 @@ def default_jobs() -> int:
 
 
 def measure_options(profile) -> MeasureOptions:
-    """Measurement options for a batch. They never depend on the profile, so stored
-    measurements serve every profile: true-peak overs are counted against the fixed
+    """Measurement options for a batch. They do not depend on the profile's values, so
+    stored measurements serve every profile (only a profile with a speech limit asks for
+    the speech gate, see reusable_keys): true-peak overs are counted against the fixed
     reference in MeasureOptions (recorded with each measurement as
     ``true_peak_ceiling_dbtp``), while rules judge ``true_peak_dbtp`` against the
     profile's own ceiling."""
-    del profile
-    return MeasureOptions()
+    from checker.limitdefs import needs_speech
+
+    # The one exception: a profile with a speech limit turns the (costly) speech gate on.
+    # Its values are extra keys; every other value is the same either way.
+    return MeasureOptions(speech=needs_speech(profile))
 
 
 def options_key(options: MeasureOptions) -> str:
     """The measurement options that change values (block size does not)."""
     d = dataclasses.asdict(options)
     d.pop("block_frames", None)
+    if not d.get("speech"):
+        d.pop("speech", None)  # keys of measurements stored before the speech gate stay valid
     return json.dumps(d, sort_keys=True)
+
+
+def reusable_keys(options: MeasureOptions) -> tuple[str, ...]:
+    """Options keys whose stored measurements serve these options: its own, and without
+    speech also the one with speech (the same values plus the speech keys). A measurement
+    stored without speech is measured again when a speech profile needs those values."""
+    own = options_key(options)
+    if options.speech:
+        return (own,)
+    return (own, options_key(dataclasses.replace(options, speech=True)))
 
 
 def _now() -> str:
@@ -141,6 +157,7 @@ def run_batch(
         )
     options = measure_options(profile)
     okey = options_key(options)
+    rkeys = reusable_keys(options)
     progress = progress or Progress(None)
     own_store = store is None
     store = store or open_store(out_dir)
@@ -168,7 +185,10 @@ def run_batch(
                 progress.advance()
                 continue
             if not fresh:
-                cached = store.get_measurement(ident, ENGINE_VERSION, okey)
+                cached = next(
+                    filter(None, (store.get_measurement(ident, ENGINE_VERSION, k) for k in rkeys)),
+                    None,
+                )
                 if cached is not None:
                     _keep(store, run, results, _judge(path, cached, profile, evaluate))
                     progress.advance()

@@ -51,6 +51,10 @@ class MeasureOptions:
     dropout_min_s: float = 0.010
     #: How many first positions to keep for overs, clips, dropouts.
     max_positions: int = 10
+    #: Speech-gated loudness (checker/meters/speech.py): off by default, it costs several
+    #: times the rest of the analysis; on for `measure --speech` and profiles with a speech
+    #: limit. Off adds no keys, so stored measurements without it stay valid.
+    speech: bool = False
 
 
 class MeterResult(Protocol):
