@@ -228,10 +228,10 @@ CATALOGUE: tuple[LimitDef, ...] = (
     # speech (checker/meters/speech.py): judged on the speech-gated values
     _d("speech_target_lufs", TARGET, "speech_lufs", "LUFS", "speech loudness", "speech",
        none_means_ok=True, ran="speech_detector", lead="speech_note",
-       hint="apply the gain in the message, or rebalance the voice in the mix"),
+       hint="or rebalance the voice in the mix"),
     _d("anchor_target_lufs", TARGET, "anchor_lufs", "LUFS",
        "anchor loudness (speech, or the whole programme where too little speech was found)",
-       "speech", hint="apply the gain in the message"),
+       "speech", hint="the anchor is the dialogue where there is enough of it"),
     _d("speech_share_min", MIN, "speech_share", "", "share of speech in the programme",
        "speech", lead="speech_note",
        hint="this delivery expects a spoken-word programme: check the file or the profile"),
