@@ -234,7 +234,7 @@ def _check_target(lim: Limit, values, profile) -> Flag | None:
         f"{_cap(d.what)} is {_with_unit(m, d.unit)}{how}, {abs(diff):.2f} LU {word} the target "
         f"of {_with_unit(lim.value, d.unit)} (tolerance +- {fmt(float(lim.tolerance_lu))} LU): "
         f"apply {-diff:+.2f} dB of gain"
-        + (" (see the gain advice)." if d.measure == "integrated_lufs" else f"; {d.hint}.")
+        + (" (see the gain advice)." if d.measure == "integrated_lufs" else f" ({d.hint}).")
     )
     return _flag(lim, m, lim.text(), msg)
 
