@@ -117,13 +117,18 @@ def measure_options(profile, layout: str | None = None) -> MeasureOptions:
     ``true_peak_ceiling_dbtp``), while rules judge ``true_peak_dbtp`` against the
     profile's own ceiling. The inputs they take are the files' channel order: ``layout``
     (the command line's), else the profile's ``[format] channel_layout``; it applies to the
-    files with as many channels as it names; and the encode round trip a profile's
-    ``[encode]`` section asks for (a measurement option, part of the cache key)."""
+    files with as many channels as it names; the encode round trip a profile's
+    ``[encode]`` section asks for (a measurement option, part of the cache key); and a profile
+    with a speech limit turns the (costly) speech gate on, which only adds the speech keys
+    (see reusable_keys)."""
+    from checker.limitdefs import needs_speech
+
+    speech = needs_speech(profile)
     given = layout or getattr(profile, "channel_layout", None)
     encode = getattr(profile, "encode", None)  # the round trip asked for, or None
     if given:
-        return MeasureOptions(layout=given, layout_strict=False, encode=encode)
-    return MeasureOptions(encode=encode)
+        return MeasureOptions(layout=given, layout_strict=False, encode=encode, speech=speech)
+    return MeasureOptions(encode=encode, speech=speech)
 
 
 def options_key(options: MeasureOptions) -> str:
@@ -132,7 +137,19 @@ def options_key(options: MeasureOptions) -> str:
     d.pop("block_frames", None)
     if d.get("encode") is None:
         d.pop("encode", None)  # no round trip: the key of every earlier measurement
+    if not d.get("speech"):
+        d.pop("speech", None)  # keys of measurements stored before the speech gate stay valid
     return json.dumps(d, sort_keys=True)
+
+
+def reusable_keys(options: MeasureOptions) -> tuple[str, ...]:
+    """Options keys whose stored measurements serve these options: its own, and without
+    speech also the one with speech (the same values plus the speech keys). A measurement
+    stored without speech is measured again when a speech profile needs those values."""
+    own = options_key(options)
+    if options.speech:
+        return (own,)
+    return (own, options_key(dataclasses.replace(options, speech=True)))
 
 
 def _now() -> str:
@@ -214,6 +231,7 @@ def run_batch(
         )
     options = measure_options(profile, layout)
     okey = options_key(options)
+    rkeys = reusable_keys(options)
     progress = progress or Progress(None)
     own_store = store is None
     store = _GuardedStore(store or open_store(out_dir))
@@ -250,7 +268,10 @@ def run_batch(
                 progress.advance()
                 continue
             if not fresh:
-                cached = store.get_measurement(ident, ENGINE_VERSION, okey)
+                cached = next(
+                    filter(None, (store.get_measurement(ident, ENGINE_VERSION, k) for k in rkeys)),
+                    None,
+                )
                 if cached is not None:
                     result = _judge(shown, cached, profile, evaluate, remark)
                     _keep(store, run, results, result)

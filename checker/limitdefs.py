@@ -17,6 +17,10 @@ Kinds:
   must_be_true   value = true: the measured flag must be True (stem sets)
   no_cutoff_below  a steep cutoff, if found, must not lie below value
 
+``ran``: with ``none_means_ok``, None is a result only when this measured key is
+present (the speech gate ran: too little speech is a result, a missing detector is
+"could not be measured").
+
 Scope: "file" limits judge one file; "set" limits judge a stem set's values.
 ``applies_if`` names a measured key that must be present for the limit to apply
 (the null test only when a reference mix was given). ``none_means_ok``: None is
@@ -57,6 +61,7 @@ SECTIONS = (
     "metadata",
     "stems",
     "encode",
+    "speech",
 )
 
 #: The encode round trip a profile may ask for ([encode] codec, bit_rate_kbps): the
@@ -108,6 +113,7 @@ class LimitDef:
     caveat: tuple[str, str] | None = None
     #: (values, measured, limit) -> words appended to a max/min violation (gain advice)
     advice: Callable[[Mapping[str, Any], float, float], str] | None = None
+    ran: str | None = None  # see the module doc
 
 
 def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
@@ -288,6 +294,24 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("encoded_true_peak_max_dbtp", MAX, "encoded_true_peak_dbtp", "dBTP",
        "true peak after the encode round trip", "encode", advice=_encode_advice,
        hint="leave more headroom for the codec"),
+    # speech (checker/meters/speech.py): judged on the speech-gated values
+    _d("speech_target_lufs", TARGET, "speech_lufs", "LUFS", "speech loudness", "speech",
+       none_means_ok=True, ran="speech_detector", lead="speech_note",
+       hint="or rebalance the voice in the mix"),
+    _d("anchor_target_lufs", TARGET, "anchor_lufs", "LUFS",
+       "anchor loudness (speech, or the whole programme where too little speech was found)",
+       "speech", hint="the anchor is the dialogue where there is enough of it"),
+    _d("speech_share_min", MIN, "speech_share", "", "share of speech in the programme",
+       "speech", lead="speech_note",
+       hint="this delivery expects a spoken-word programme: check the file or the profile"),
+    _d("speech_to_programme_min_lu", MIN, "speech_to_programme_lu", "LU",
+       "speech loudness relative to the programme", "speech", none_means_ok=True,
+       ran="speech_detector",
+       hint="music or effects are much louder than the voice: lower them or raise the voice"),
+    _d("speech_to_programme_max_lu", MAX, "speech_to_programme_lu", "LU",
+       "speech loudness relative to the programme", "speech", none_means_ok=True,
+       ran="speech_detector",
+       hint="the voice stands far above the rest of the programme: check the balance"),
     # stem sets (issue 8): judged on the set-level values, not on each stem
     _d("formats_must_match", MUST_BE_TRUE, "set_formats_match", "", "stem formats match",
        "stems", item="bool", scope=SET,
@@ -382,13 +406,40 @@ def _container_ok(v: Mapping[str, Any]) -> bool | None:
     return intact or bool(_missing_frames(v))
 
 
+def _anchor_lufs(v: Mapping[str, Any]) -> float | None:
+    """The anchor element's loudness (ATSC A/85, from memory): the speech loudness where the
+    gate found enough speech, else the whole programme's; None where the gate did not run."""
+    if v.get("speech_detector") is None:
+        return None
+    speech = v.get("speech_lufs")
+    return speech if speech is not None else v.get("integrated_lufs")
+
+
 #: Values computed from other measured values, for limits: key -> (inputs, function).
 #: Added only when absent and when every input key is present in the values.
 DERIVED: dict[str, tuple[tuple[str, ...], Callable[[Mapping[str, Any]], Any]]] = {
     "unused_low_bits": (("subtype", "format_bits", "effective_bits"), _unused_low_bits),
     "missing_frames": (("frames_declared", "frames"), _missing_frames),
     "container_ok": (("container_intact", "frames_declared", "frames"), _container_ok),
+    "anchor_lufs": (("speech_detector", "speech_lufs", "integrated_lufs"), _anchor_lufs),
+    # why the anchor could not be measured (the speech gate's note), for the message
+    "anchor_note": (
+        ("speech_detector", "speech_note"),
+        lambda v: v.get("speech_note") if v.get("speech_detector") is None else None,
+    ),
 }
+
+#: Measured keys only the speech gate gives (MeasureOptions.speech).
+SPEECH_KEYS = ("speech_lufs", "speech_share", "speech_to_programme_lu", "anchor_lufs")
+
+
+def needs_speech(profile: Any) -> bool:
+    """True when a profile has a limit on a speech value (so the speech gate must run)."""
+    for lim in getattr(profile, "limits", ()) or ():
+        d = BY_KEY.get(getattr(lim, "key", ""))
+        if d is not None and any(k in SPEECH_KEYS for k in measured_keys(d)):
+            return True
+    return False
 
 
 def with_derived(values: Mapping[str, Any]) -> Mapping[str, Any]:

@@ -342,6 +342,9 @@ def _measure(
     layout = resolve_layout(info, options, header)
     meters = [cls(info, layout, options) for cls in meter_classes()]
     meters += round_trip_meters(info, layout, options)  # only when a profile asks for one
+    for meter in meters:  # meters that reuse another meter's records (speech: loudness)
+        if hasattr(meter, "bind"):
+            meter.bind(meters)
     # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
     # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
     hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))

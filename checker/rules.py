@@ -194,7 +194,7 @@ def _check_max_min(lim: Limit, values, profile) -> Flag | None:
     key = d.measure
     m = values.get(key)
     if not _present(m):
-        if d.none_means_ok and key in values:
+        if _none_is_result(d, values, key):
             return None
         return unmeasured(lim, values, key)
     sign = 1.0 if d.kind == MAX else -1.0
@@ -230,10 +230,22 @@ def _lead(values: Mapping[str, Any], key: str | None) -> str:
     return f"{_cap(note)}; " if isinstance(note, str) and note else ("" if not key else "The ")
 
 
+def _none_is_result(d, values: Mapping[str, Any], key: str) -> bool:
+    """None is a result, not a failure to measure (see limitdefs: none_means_ok, ran)."""
+    if not d.none_means_ok or key not in values:
+        return False
+    return d.ran is None or _present(values.get(d.ran))
+
+
 def _check_target(lim: Limit, values, profile) -> Flag | None:
     d = lim.definition
-    m, key, how = judged_loudness(values, profile)
+    if d.measure == "integrated_lufs":
+        m, key, how = judged_loudness(values, profile)
+    else:  # speech or anchor loudness: judged as measured
+        m, key, how = values.get(d.measure), d.measure, ""
     if not _present(m):
+        if _none_is_result(d, values, key):
+            return None
         return unmeasured(lim, values, key)
     diff = m - lim.value
     if abs(diff) <= lim.tolerance_lu + EPS:
@@ -242,7 +254,8 @@ def _check_target(lim: Limit, values, profile) -> Flag | None:
     msg = (
         f"{_cap(d.what)} is {_with_unit(m, d.unit)}{how}, {abs(diff):.2f} LU {word} the target "
         f"of {_with_unit(lim.value, d.unit)} (tolerance +- {fmt(float(lim.tolerance_lu))} LU): "
-        f"apply {-diff:+.2f} dB of gain (see the gain advice)."
+        f"apply {-diff:+.2f} dB of gain"
+        + (" (see the gain advice)." if d.measure == "integrated_lufs" else f" ({d.hint}).")
     )
     return _flag(lim, m, lim.text(), msg)
 

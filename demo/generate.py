@@ -2,7 +2,8 @@
 
 Scenario (see demo/README.md): Tidewell Listening Co., an invented podcast
 network, delivers a week of episodes, promos and an ad insert to a
-distributor, and its music unit hands stems of a theme tune to a mastering
+distributor, its narrated series goes to a speech-anchored streaming service, and its
+music unit hands stems of a theme tune to a mastering
 engineer. Every file is synthesised here; each problem file carries one
 realistic problem.
 
@@ -28,6 +29,9 @@ from checker.meters.base import MeasureOptions  # noqa: E402
 from checker.meters.loudness import LoudnessMeter  # noqa: E402
 
 RATE = 48_000
+#: Synthesised narration committed with the tests (espeak-ng, sentences of our own; see
+#: tests/fixtures/speech/make_speech_fixtures.py): 16 kHz mono FLAC.
+NARRATION = Path(__file__).resolve().parents[1] / "tests" / "fixtures" / "speech"
 
 
 def lufs(x: np.ndarray, rate: int = RATE) -> float:
@@ -146,6 +150,45 @@ def episodes(out: Path) -> None:
     (d / "ep111-show-notes.wav").write_text("Episode 111 show notes: see the website.\n")
 
 
+def narration(name: str) -> np.ndarray:
+    """A committed narration at 48 kHz (16 kHz FLAC, resampled 3:1)."""
+    x, rate = sf.read(str(NARRATION / f"{name}.flac"), dtype="float64")
+    assert rate == 16_000, f"{name}.flac: rate = {rate} Hz (expected 16000 Hz)"
+    return sps.resample_poly(x, 3, 1)
+
+
+def under(voice: np.ndarray, bed_lu: float, seed: int) -> np.ndarray:
+    """Stereo voice with a music bed ``bed_lu`` LU relative to the voice under it."""
+    v = stereo(voice, 1.0, seed)
+    bed = music_like(v.shape[0] / RATE, RATE, seed=seed)[: v.shape[0]]
+    bed = bed * 10 ** ((lufs(v) + bed_lu - lufs(bed)) / 20)
+    return v + bed
+
+
+def narrated_series(out: Path) -> None:
+    """Episodes of an invented narrated series for a speech-anchored streaming delivery
+    (aes-td1008): real (synthesised) speech over music beds."""
+    d = out / "narrated-series"
+    a, b, c = (narration(n) for n in ("narration_a", "narration_b", "narration_c"))
+    gap = np.zeros(int(0.6 * RATE))
+    # nr201: the voice on top, a quiet bed (-15 LU) under it: speech and programme at -18.
+    x = under(np.concatenate([a, gap, c]), -15.0, 31)
+    write(d / "nr201-lamp-room.wav", fit(x, -18.0))
+    # nr202: the bed sits only 3 LU under the voice and the music breaks between the
+    # passages run 10 LU above it: on programme loudness alone it passes at -17 LUFS, but
+    # the voice ends up near -23 LUFS, about 6 LU under the programme.
+    voice = [under(a, -3.0, 32), under(b, -3.0, 33)]
+    level = lufs(voice[0])
+    breaks = []
+    for seed in (34, 35, 36):
+        m = music_like(8.0, RATE, seed=seed)
+        breaks.append(m * 10 ** ((level + 10.0 - lufs(m)) / 20))
+    x = np.concatenate([breaks[0], voice[0], breaks[1], voice[1], breaks[2]])
+    write(d / "nr202-mill-wheel-loud-breaks.wav", fit(x, -17.0))
+    # nr203: a music-only sting: no speech found, so it is judged on programme loudness.
+    write(d / "nr203-theme-sting.wav", fit(music_like(12.0, RATE, seed=37), -17.0))
+
+
 def stem_handoff(out: Path) -> None:
     """Theme-tune stems at 48 kHz / 24 bit plus the approved reference mix.
 
@@ -188,6 +231,7 @@ def stem_handoff(out: Path) -> None:
 def main(argv: list[str]) -> int:
     out = Path(argv[1] if len(argv) > 1 else "demo/out")
     episodes(out)
+    narrated_series(out)
     stem_handoff(out)
     print(out)
     return 0

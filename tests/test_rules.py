@@ -229,6 +229,23 @@ CASES = [
      {"null_residual_db": -60.0},
      {"null_residual_db": -59.99}, "Null-test residual (mix minus stem sum, relative to the mix) "
      "is -59.99 dB, above the limit of -60.00 dB", None),
+    # speech (issue 19): values of the speech gate; speech_detector says it ran
+    ("speech_target_lufs", -18.0, {"tolerance_lu": 2.0}, {"speech_detector": "d"},
+     {"speech_lufs": -20.0}, {"speech_lufs": -20.01},
+     "Speech loudness is -20.01 LUFS, 2.01 LU below the target of -18.00 LUFS "
+     "(tolerance +- 2.00 LU): apply +2.01 dB of gain", None),
+    ("anchor_target_lufs", -24.0, {"tolerance_lu": 2.0}, {"speech_detector": "d"},
+     {"speech_lufs": -26.0, "integrated_lufs": -30.0}, {"speech_lufs": -26.01},
+     "Anchor loudness (speech, or the whole programme where too little speech was found) is "
+     "-26.01 LUFS, 2.01 LU below the target of -24.00 LUFS", None),
+    ("speech_share_min", 0.5, {}, {}, {"speech_share": 0.5}, {"speech_share": 0.49},
+     "The share of speech in the programme is 0.49, below the limit of 0.50", None),
+    ("speech_to_programme_min_lu", -4.0, {}, {"speech_detector": "d"},
+     {"speech_to_programme_lu": -4.0}, {"speech_to_programme_lu": -4.01},
+     "Speech loudness relative to the programme is -4.01 LU, below the limit of -4.00 LU", None),
+    ("speech_to_programme_max_lu", 3.0, {}, {"speech_detector": "d"},
+     {"speech_to_programme_lu": 3.0}, {"speech_to_programme_lu": 3.01},
+     "Speech loudness relative to the programme is 3.01 LU, above the limit of 3.00 LU", None),
 ]  # fmt: skip
 
 

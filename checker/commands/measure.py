@@ -24,6 +24,11 @@ def add_parser(sub) -> argparse.ArgumentParser:
     p.add_argument(
         "--timeline", action="store_true", help="with --json: include the loudness timeline"
     )
+    p.add_argument(
+        "--speech",
+        action="store_true",
+        help="also measure speech-gated loudness (speech_lufs, speech_share; several times slower)",
+    )
     p.add_argument("--layout", help='channel layout, e.g. "L R C LFE Ls Rs" (default: from file)')
     p.add_argument(
         "--block-frames", type=int, default=MeasureOptions.block_frames, help=argparse.SUPPRESS
@@ -55,11 +60,15 @@ SUMMARY_KEYS = (
     "max_short_term_lufs",
     "true_peak_dbtp",
     "sample_peak_dbfs",
+    "speech_lufs",
+    "speech_share",
+    "speech_to_programme_lu",
+    "speech_note",
 )
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
-    options = MeasureOptions(block_frames=args.block_frames, layout=args.layout)
+    options = MeasureOptions(block_frames=args.block_frames, layout=args.layout, speech=args.speech)
     status = EXIT_OK
     for path in args.files:
         try:

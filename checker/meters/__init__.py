@@ -13,6 +13,7 @@ METERS: tuple[tuple[str, str], ...] = (
     ("checker.meters.channels", "ChannelsMeter"),
     ("checker.meters.bandwidth", "BandwidthMeter"),
     ("checker.meters.downmix", "DownmixMeter"),
+    ("checker.meters.speech", "SpeechMeter"),  # after loudness: reuses its 100 ms records
 )
 
 

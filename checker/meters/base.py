@@ -58,6 +58,10 @@ class MeasureOptions:
     #: Encode round trip (codec, kbit/s) asked for by a profile's [encode] section, or None
     #: (checker.roundtrip; part of the store's cache key like every option).
     encode: tuple[str, float] | None = None
+    #: Speech-gated loudness (checker/meters/speech.py): off by default, it costs several
+    #: times the rest of the analysis; on for `measure --speech` and profiles with a speech
+    #: limit. Off adds no keys, so stored measurements without it stay valid.
+    speech: bool = False
 
 
 class MeterResult(Protocol):
