@@ -15,6 +15,7 @@ from checker.layout import Layout, default_layout, layout_from_mask, parse_layou
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
+from checker.threads import one_thread_pools
 from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
@@ -209,8 +210,13 @@ def measure(
     ``read_ahead``: decode in a second thread, overlapping the meters, and run the
     meters' prepare steps there (for a lone measurement with a core to spare; batch
     workers keep one thread each unless there are fewer files than jobs). The values are
-    the same either way."""
-    options = options or MeasureOptions()
+    the same either way. Library thread pools (BLAS) run one thread meanwhile
+    (checker/threads.py): parallelism is deliverycheck's own."""
+    with one_thread_pools():
+        return _measure(str(path), options or MeasureOptions(), read_ahead)
+
+
+def _measure(path: str, options: MeasureOptions, read_ahead: bool) -> Measurement:
     before = _stat(str(path))
     hooks: list = []  # the meters' prepare steps, filled once the meters exist
     try:

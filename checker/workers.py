@@ -33,6 +33,7 @@ from multiprocessing.connection import wait
 
 from checker.errors import CheckerError, UsageError
 from checker.meters.base import MeasureOptions
+from checker.threads import claim_process
 
 MIB = 1024 * 1024
 #: Default per-worker address-space ceiling (virtual memory, includes libraries).
@@ -140,6 +141,7 @@ def _die_with_parent() -> None:
 def _worker_main(conn, memory_mb, measure_fn) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides how to stop
     _die_with_parent()
+    claim_process()  # one thread per library pool: parallelism is the pool's workers
     _limit_memory(memory_mb)
     while True:
         try:
