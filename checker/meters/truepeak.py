@@ -69,6 +69,7 @@ before the block); only chunks that some channel cannot skip reach the per-chunk
 from __future__ import annotations
 
 import copy
+import functools
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -139,6 +140,22 @@ class _State:
     over_index: list[int] = field(default_factory=list)  # grid indices of first run starts
 
 
+@functools.lru_cache(maxsize=4)
+def _design(factor: int) -> tuple[ChunkInterpolator, np.ndarray, float]:
+    """The filters for one oversampling factor, built once per process (about 3 ms per file
+    otherwise) and shared read-only: (interpolator, fine taps, the skip bound's tap sum)."""
+    phases = design_phases(factor)
+    interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
+    fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS)
+    tap_bound = max(
+        float(phase_abs_sums(phases.astype(np.float32)).max()),
+        float(phase_abs_sums(fine_taps.T).max()),
+    )
+    interp.matrix.flags.writeable = False
+    fine_taps.flags.writeable = False
+    return interp, fine_taps, tap_bound
+
+
 class TruePeakMeter:
     """Streaming true-peak meter; see the module docstring for the method."""
 
@@ -161,14 +178,8 @@ class TruePeakMeter:
         if factor not in (1, 2, 4):
             raise ValueError(f"TruePeakMeter: oversampling = {factor} (expected 1, 2 or 4)")
         self.factor = factor
-        phases = design_phases(factor)
-        self.interp_taps = phases.shape[0]
-        self.interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
-        self.fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS)
-        self.tap_bound = max(
-            float(phase_abs_sums(phases.astype(np.float32)).max()),
-            float(phase_abs_sums(self.fine_taps.T).max()),
-        )
+        self.interp, self.fine_taps, self.tap_bound = _design(factor)
+        self.interp_taps = self.interp.taps
         self.fine_omega = math.pi / FINE_STEPS
         self.fine_bound = refine_gain_bound(self.fine_omega)
         # Candidate selection only (not part of the skip bound): band-limited content.
