@@ -54,14 +54,16 @@ def default_jobs() -> int:
     return usable_cores()
 
 
-def measure_options(profile) -> MeasureOptions:
-    """Measurement options for a batch. They never depend on the profile, so stored
-    measurements serve every profile: true-peak overs are counted against the fixed
+def measure_options(profile, layout: str | None = None) -> MeasureOptions:
+    """Measurement options for a batch. They do not depend on the profile's limits, so
+    stored measurements serve every profile: true-peak overs are counted against the fixed
     reference in MeasureOptions (recorded with each measurement as
     ``true_peak_ceiling_dbtp``), while rules judge ``true_peak_dbtp`` against the
-    profile's own ceiling."""
-    del profile
-    return MeasureOptions()
+    profile's own ceiling. The one input they take is the files' channel order: ``layout``
+    (the command line's), else the profile's ``[format] channel_layout``; it applies to the
+    files with as many channels as it names."""
+    given = layout or getattr(profile, "channel_layout", None)
+    return MeasureOptions(layout=given, layout_strict=False) if given else MeasureOptions()
 
 
 def options_key(options: MeasureOptions) -> str:
@@ -125,8 +127,10 @@ def run_batch(
     measure_fn: Callable | None = None,
     on_note: Callable[[str], Any] | None = None,
     store: Store | None = None,
+    layout: str | None = None,
 ) -> tuple[RunInfo, list[FileResult]]:
-    """Check every audio file under ``paths`` against ``profile``; see the module doc."""
+    """Check every audio file under ``paths`` against ``profile``; see the module doc.
+    ``layout``: the channel order of files with as many channels (else the profile's)."""
     if timeout_s is not None and not timeout_s > 0:
         raise UsageError(f"--timeout-s: timeout_s = {timeout_s} (expected > 0)")
     jobs = default_jobs() if jobs is None else int(jobs)
@@ -139,7 +143,7 @@ def run_batch(
             f"inputs: audio files = 0 under {', '.join(map(str, paths))} "
             "(expected at least one file libsndfile reads)"
         )
-    options = measure_options(profile)
+    options = measure_options(profile, layout)
     okey = options_key(options)
     progress = progress or Progress(None)
     own_store = store is None

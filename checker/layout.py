@@ -126,17 +126,34 @@ def default_layout(channels: int) -> Layout:
     return Layout(("X",) * channels, "assumed")
 
 
+def layout_labels(text: str) -> tuple[str, ...]:
+    """The labels of a layout text such as "L R C LFE Ls Rs" (space or comma separated)."""
+    return tuple(t for t in text.replace(",", " ").split() if t)
+
+
+def layout_count(text: str) -> int:
+    return len(layout_labels(text))
+
+
+def check_layout_text(text: str) -> tuple[str, ...]:
+    """The labels of ``text``; UsageError when there are none or one is unknown."""
+    from checker.errors import UsageError
+
+    labels = layout_labels(text)
+    unknown = [t for t in labels if t not in SPEAKERS]
+    if unknown or not labels:
+        raise UsageError(
+            f"layout {text!r}: unknown channel label(s) {', '.join(unknown) or '(none given)'} "
+            f"(expected some of {', '.join(sorted(SPEAKERS))})"
+        )
+    return labels
+
+
 def parse_layout(text: str, channels: int) -> Layout:
     """An explicit layout such as "L R C LFE Ls Rs" (space or comma separated)."""
     from checker.errors import UsageError
 
-    labels = tuple(t for t in text.replace(",", " ").split() if t)
-    unknown = [t for t in labels if t not in SPEAKERS]
-    if unknown:
-        raise UsageError(
-            f"layout {text!r}: unknown channel label(s) {', '.join(unknown)} "
-            f"(expected some of {', '.join(sorted(SPEAKERS))})"
-        )
+    labels = check_layout_text(text)
     if len(labels) != channels:
         raise UsageError(
             f"layout {text!r}: {len(labels)} labels for a {channels}-channel file "
@@ -203,3 +220,16 @@ def layout_from_mask(mask: int, channels: int) -> Layout | None:
     }
     labels = tuple(_MASK_LABELS.get(name) or pair[name] for name in names)
     return Layout(labels, "mask")
+
+
+def mask_disagreement(mask: int | None, given: Layout) -> list[str]:
+    """A finding when the file's WAV channel mask names another order than the layout given."""
+    if not mask:
+        return []
+    from_mask = layout_from_mask(mask, given.channels)
+    if from_mask is None or from_mask.labels == given.labels:
+        return []
+    return [
+        f"channel mask 0x{mask:X} says {' '.join(from_mask.labels)}, but the layout given is "
+        f"{' '.join(given.labels)}: measured as given; check which one the file really carries"
+    ]

@@ -51,6 +51,7 @@ SECTIONS = (
     "silence",
     "channels",
     "bandwidth",
+    "downmix",
     "metadata",
     "stems",
 )
@@ -199,6 +200,22 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("steep_cutoff_min_hz", NO_CUTOFF_BELOW, "steep_cutoff_hz", "Hz", "steep cutoff",
        "bandwidth", none_means_ok=True, lead="bandwidth_note",
        hint="a brick-wall cutoff is typical of a lossy source or a resampler"),
+    # downmix: the stereo fold-down of a multichannel file (checker/meters/downmix.py);
+    # judged only where a fold-down exists (mono and stereo files have none)
+    _d("downmix_true_peak_max_dbtp", MAX, "downmix_true_peak_dbtp", "dBTP",
+       "true peak of the stereo fold-down", "downmix", position="downmix_true_peak_time_s",
+       applies_if="downmix_method",
+       hint="the fold-down overloads although each channel fits: lower the centre and "
+            "surrounds, or the whole mix"),
+    _d("downmix_sample_peak_max_dbfs", MAX, "downmix_sample_peak_dbfs", "dBFS",
+       "sample peak of the stereo fold-down", "downmix", position="downmix_sample_peak_time_s",
+       applies_if="downmix_method",
+       hint="the fold-down clips although each channel fits: lower the centre and surrounds, "
+            "or the whole mix"),
+    _d("downmix_short_term_max_lufs", MAX, "downmix_max_short_term_lufs", "LUFS",
+       "maximum short-term loudness of the stereo fold-down", "downmix",
+       applies_if="downmix_method",
+       hint="the fold-down is louder than allowed: check the centre and surround levels"),
     # metadata (Broadcast WAV bext, EBU Tech 3285 v2)
     _d("declared_integrated_tolerance_lu", DECLARED,
        ("declared_integrated_lufs", "integrated_lufs"), "LU", "declared integrated loudness",

@@ -11,7 +11,14 @@ import numpy as np
 from checker import __version__
 from checker.audio import Block, StreamInfo, read_blocks
 from checker.errors import AudioReadError, UnsupportedAudioError
-from checker.layout import Layout, default_layout, layout_from_mask, parse_layout
+from checker.layout import (
+    Layout,
+    default_layout,
+    layout_count,
+    layout_from_mask,
+    mask_disagreement,
+    parse_layout,
+)
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
 from checker.serial import plain
@@ -20,7 +27,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine4"
+ENGINE_VERSION = f"{__version__}+engine5"
 
 
 class FlatValues:
@@ -75,8 +82,11 @@ class Measurement(FlatValues):
 def resolve_layout(
     info: StreamInfo, options: MeasureOptions, header: WavHeader | None = None
 ) -> Layout:
-    """Given layout, else the WAV channel mask (when usable), else the default map."""
-    if options.layout:
+    """Given layout, else the WAV channel mask (when usable), else the default map.
+
+    A given layout with another channel count than the file is a usage error when
+    ``options.layout_strict``; in a batch it applies only to files of its own count."""
+    if options.layout and (options.layout_strict or layout_count(options.layout) == info.channels):
         return parse_layout(options.layout, info.channels)
     if header is not None and header.channel_mask:
         layout = layout_from_mask(header.channel_mask, info.channels)
@@ -258,6 +268,8 @@ def _measure(path: str, options: MeasureOptions, read_ahead: bool) -> Measuremen
             "measure it again once it is complete"
         )
     findings.extend(header.findings if header else ())
+    if header is not None and layout.source == "given":
+        findings.extend(mask_disagreement(header.channel_mask, layout))
     series: dict[str, Any] = {}
     for meter in meters:
         result = meter.result()

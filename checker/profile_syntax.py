@@ -35,6 +35,8 @@ SEVERITIES = ("fail", "warn")
 MONO_CONVENTIONS = ("single_channel", "dual_mono")
 #: Settings that are not limits: (section, key) -> allowed values.
 SETTINGS = {("loudness", "mono_loudness"): MONO_CONVENTIONS}
+#: The channel order of the delivery's files (a setting, not a limit): "L C R Ls Rs LFE".
+LAYOUT_SETTING = ("format", "channel_layout")
 #: An entry that drops a limit inherited from the parent.
 OFF = "off"
 
@@ -166,6 +168,20 @@ def _check_value(where: str, dotted: str, d: LimitDef, v: Any) -> None:
             raise err(where, dotted, v, f"a tolerance >= 0 in {d.unit}")
 
 
+def _check_layout(where: str, dotted: str, v: Any) -> str:
+    from checker.layout import SPEAKERS, layout_labels
+
+    labels = layout_labels(v) if isinstance(v, str) else ()
+    if not labels or any(label not in SPEAKERS for label in labels):
+        raise err(
+            where,
+            dotted,
+            v,
+            'channel labels such as "L R C LFE Ls Rs" (known: ' + ", ".join(sorted(SPEAKERS)) + ")",
+        )
+    return " ".join(labels)
+
+
 def parse_layer(path: Path) -> dict[str, Any]:
     """One file -> {"meta": {...}, "settings": {...}, "limits": {key: entry | OFF}}."""
     raw = _read_toml(path)
@@ -182,7 +198,9 @@ def parse_layer(path: Path) -> dict[str, Any]:
             if not isinstance(v, dict):
                 raise err(where, top, v, f"a table [{top}]")
             for key, entry in v.items():
-                if (top, key) in SETTINGS:
+                if (top, key) == LAYOUT_SETTING:
+                    settings[key] = _check_layout(where, f"{top}.{key}", entry)
+                elif (top, key) in SETTINGS:
                     if entry not in SETTINGS[(top, key)]:
                         choices = " or ".join(f'"{c}"' for c in SETTINGS[(top, key)])
                         raise err(where, f"{top}.{key}", entry, choices)

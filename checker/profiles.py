@@ -17,7 +17,9 @@ A profile file (see DEVELOPERS.md and checker/profiles/*.toml)::
     sample_peak_max_dbfs = "off"    # drop a limit inherited from the parent
 
 Sections group the limits (format, loudness, peaks, levels, silence, channels,
-bandwidth, metadata, stems); every limit key is listed in checker/limitdefs.py.
+bandwidth, downmix, metadata, stems); every limit key is listed in checker/limitdefs.py.
+Settings that are not limits: ``[loudness] mono_loudness`` and ``[format] channel_layout``
+(the channel order of the delivery's files with as many channels, e.g. "L C R Ls Rs LFE").
 A child inherits its parent's metadata and limits, then overrides them field by
 field; changing a value requires a new ``source``.
 """
@@ -99,6 +101,8 @@ class Profile:
     path: str
     limits: tuple[Limit, ...] = ()
     mono_loudness: str = "single_channel"
+    #: Channel order of the delivery's files with as many channels ("L C R Ls Rs LFE"), or None.
+    channel_layout: str | None = None
     lineage: tuple[str, ...] = field(default_factory=tuple)  # root ancestor first, self last
 
     def limit(self, key: str) -> Limit | None:
@@ -248,6 +252,7 @@ def _load_path(path: Path) -> Profile:
         path=str(path),
         limits=ordered,
         mono_loudness=settings.get("mono_loudness", "single_channel"),
+        channel_layout=settings.get("channel_layout"),
         lineage=lineage,
     )
 

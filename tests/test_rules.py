@@ -96,6 +96,21 @@ CASES = [
     ("sample_peak_max_dbfs", -3.0, {}, {"sample_peak_time_s": 0.25}, {"sample_peak_dbfs": -3.0},
      {"sample_peak_dbfs": -2.99}, "Sample peak is -2.99 dBFS at 0.25 s, above the limit of "
      "-3.00 dBFS", 0.25),
+    # fold-down limits apply only where a fold-down exists (downmix_method present)
+    ("downmix_true_peak_max_dbtp", -1.0, {},
+     {"downmix_method": "BS.775", "downmix_true_peak_time_s": 4.5},
+     {"downmix_true_peak_dbtp": -1.0}, {"downmix_true_peak_dbtp": -0.99},
+     "True peak of the stereo fold-down is -0.99 dBTP at 4.50 s, above the limit of -1.00 dBTP",
+     4.5),
+    ("downmix_sample_peak_max_dbfs", -1.0, {},
+     {"downmix_method": "BS.775", "downmix_sample_peak_time_s": 2.0},
+     {"downmix_sample_peak_dbfs": -1.0}, {"downmix_sample_peak_dbfs": 0.5},
+     "Sample peak of the stereo fold-down is 0.50 dBFS at 2.00 s, above the limit of "
+     "-1.00 dBFS", 2.0),
+    ("downmix_short_term_max_lufs", -18.0, {}, {"downmix_method": "BS.775"},
+     {"downmix_max_short_term_lufs": -18.0}, {"downmix_max_short_term_lufs": -17.5},
+     "Maximum short-term loudness of the stereo fold-down is -17.50 LUFS, above the limit of "
+     "-18.00 LUFS", None),
     ("sample_peak_min_dbfs", -6.0, {}, {}, {"sample_peak_dbfs": -6.0},
      {"sample_peak_dbfs": -6.01}, "Sample peak is -6.01 dBFS, below the limit of -6.00 dBFS",
      None),

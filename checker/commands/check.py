@@ -12,6 +12,7 @@ from pathlib import Path
 from typing import TextIO
 
 from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, UsageError
+from checker.layout import check_layout_text
 from checker.progress import Progress
 from checker.verdict import ERROR, FAIL, PASS, STATUS_ORDER, WARN
 from checker.workers import DEFAULT_MEMORY_MB
@@ -57,6 +58,12 @@ def add_parser(sub) -> argparse.ArgumentParser:
         metavar="FILE",
         help="reference mix for a stem set: the stems must rebuild it (null test); "
         "takes one folder PATH",
+    )
+    p.add_argument(
+        "--layout",
+        metavar="LABELS",
+        help='channel order of the files with as many channels, e.g. "L C R Ls Rs LFE" '
+        "(overrides the profile's; other files keep their own)",
     )
     p.add_argument(
         "--worker-memory-mb",
@@ -133,7 +140,13 @@ def measure_stem_set(stem_set, options, store=None, fresh: bool = False):
 
 
 def add_stem_sets(
-    folders: list[str], mix: str | None, profile, results: list, store=None, fresh: bool = False
+    folders: list[str],
+    mix: str | None,
+    profile,
+    results: list,
+    store=None,
+    fresh: bool = False,
+    layout: str | None = None,
 ) -> list:
     """Set-level rows (one per folder), each followed by its stems' own rows."""
     from checker.batch import measure_options
@@ -143,7 +156,7 @@ def add_stem_sets(
     ordered, used = [], set()
     for folder in folders:
         stem_set = stem_set_from_folder(folder, mix)
-        sm = measure_stem_set(stem_set, measure_options(profile), store, fresh)
+        sm = measure_stem_set(stem_set, measure_options(profile, layout), store, fresh)
         ordered.append(evaluate_set(sm, profile))
         for stem in stem_set.stem_paths:
             row = by_path.get(os.path.abspath(stem))
@@ -205,6 +218,8 @@ def run(args, out: TextIO, err: TextIO) -> int:
     if args.worker_memory_mb is not None and args.worker_memory_mb < 0:
         raise UsageError(f"--worker-memory-mb: {args.worker_memory_mb} (expected >= 0)")
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    if args.layout is not None:
+        check_layout_text(args.layout)
     folders = stem_set_folders(args, profile)
     out_dir = Path(args.out)
     notes: list[str] = []
@@ -221,6 +236,7 @@ def run(args, out: TextIO, err: TextIO) -> int:
             progress=progress,
             memory_mb=args.worker_memory_mb or None,
             on_note=notes.append,
+            layout=args.layout,
         )
     except Interrupted as exc:
         # --fresh would measure everything again: the resume command leaves it out.
@@ -239,7 +255,9 @@ def run(args, out: TextIO, err: TextIO) -> int:
         from checker.store import open_store
 
         with open_store(out_dir) as store:
-            results = add_stem_sets(folders, args.mix, profile, results, store, args.fresh)
+            results = add_stem_sets(
+                folders, args.mix, profile, results, store, args.fresh, args.layout
+            )
     written = write_reports(out_dir, run_info, results)
     written = {"store": out_dir / "results.sqlite", **written}
     for line in summary_lines(run_info, results, written, notes):

@@ -12,6 +12,7 @@ METERS: tuple[tuple[str, str], ...] = (
     ("checker.meters.silence", "SilenceMeter"),
     ("checker.meters.channels", "ChannelsMeter"),
     ("checker.meters.bandwidth", "BandwidthMeter"),
+    ("checker.meters.downmix", "DownmixMeter"),
 )
 
 

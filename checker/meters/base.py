@@ -41,6 +41,10 @@ class MeasureOptions:
     block_frames: int | None = None
     #: Explicit channel layout ("L R C LFE Ls Rs"); None = from file or assumed.
     layout: str | None = None
+    #: False (batches): ``layout`` applies only to files with as many channels as it names,
+    #: other files keep their own layout. True (``measure`` of named files): a file with
+    #: another channel count is a usage error.
+    layout_strict: bool = True
     #: True-peak overs are counted above this ceiling.
     true_peak_ceiling_dbtp: float = -1.0
     #: Clipped run: at least this many consecutive samples at full scale (common practice: 3).

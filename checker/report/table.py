@@ -110,6 +110,15 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "bandwidth_fraction",
     "steep_cutoff_hz",
     "bandwidth_note",
+    # stereo fold-down of multichannel files
+    "downmix_method",
+    "downmix_integrated_lufs",
+    "downmix_max_short_term_lufs",
+    "downmix_true_peak_dbtp",
+    "downmix_true_peak_time_s",
+    "downmix_sample_peak_dbfs",
+    "downmix_sample_peak_time_s",
+    "downmix_note",
     # stream format
     "container",
     "subtype",
