@@ -27,7 +27,7 @@ from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine5"
+ENGINE_VERSION = f"{__version__}+engine6"
 
 
 class FlatValues:

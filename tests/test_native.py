@@ -23,6 +23,7 @@ from numpy.testing import assert_allclose, assert_array_equal
 from checker.audio import INT32_SCALE, Block, StreamInfo
 from checker.dsp import native
 from checker.dsp.iir import sosfilt_rows
+from checker.dsp.interp import ChunkInterpolator, design_phases, oversample
 from checker.dsp.kweighting import k_weighting_sos
 from checker.layout import default_layout
 from checker.measure import measure
@@ -31,6 +32,7 @@ from checker.meters.channels import ChannelsMeter
 from checker.meters.levels import LevelsMeter
 from checker.meters.loudness import LoudnessMeter
 from checker.meters.silence import SilenceMeter
+from checker.meters.truepeak import TruePeakMeter
 
 needs_kernels = pytest.mark.skipif(
     not native.enabled(), reason=f"compiled kernels not loaded: {native.status()}"
@@ -328,3 +330,104 @@ def test_prepare_fills_the_block_memo():
         cls(_info(2), default_layout(2), MeasureOptions()).prepare(block)
     assert {"loudness", "frame_scan"} <= set(block.memo)
     assert any(key[0] == "sample_stats" for key in block.memo if isinstance(key, tuple))
+
+
+# ------------------------------------------------------------------------ true peak
+
+
+def _aligned_copy(x: np.ndarray, shift: int) -> np.ndarray:
+    """x copied into a fresh buffer starting `shift` float32 elements past a 64-byte
+    boundary (so the compiled code sees every alignment)."""
+    raw = np.empty(x.size + 32, dtype=np.float32)
+    start = (-raw.ctypes.data % 64) // 4 + shift
+    out = raw[start : start + x.size]
+    out[:] = x
+    return out
+
+
+@needs_kernels
+@pytest.mark.parametrize("factor", [2, 4])
+def test_tp_grid_matches_numpy_interpolator_at_any_alignment(factor):
+    # numpy twin: ChunkInterpolator.grid (float32 BLAS product); float64 direct sum:
+    # interp.oversample. Float32 sums of 64 terms of magnitude < 3: error < 1e-5.
+    phases = design_phases(factor)
+    taps = phases.shape[0]
+    interp = ChunkInterpolator(phases, 4112)
+    rng = np.random.default_rng(factor)
+    window = (rng.standard_normal(interp.window_frames) * 0.3).astype(np.float32)
+    expected = interp.grid(window)
+    lo = interp.history - (taps // 2 - 1)
+    w = window[lo : lo + 4112 + taps - 1]
+    rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
+    got = native.tp_grid(np.ascontiguousarray(w), 4112, rows, factor)
+    assert_allclose(got, expected, rtol=0, atol=1e-5)
+    direct = oversample(w.astype(np.float64), phases)[(taps // 2 - 1) * factor :][: got.size]
+    assert_allclose(got, direct, rtol=0, atol=1e-5)
+    for shift in range(1, 8):  # the same bits wherever the buffer starts
+        assert_array_equal(native.tp_grid(_aligned_copy(w, shift), 4112, rows, factor), got)
+
+
+def _tp_result(x: np.ndarray, rate: int, block: int, **kw) -> dict:
+    info = StreamInfo("x.wav", "WAV", "FLOAT", rate, x.shape[1], x.shape[0])
+    m = TruePeakMeter(info, default_layout(x.shape[1]), MeasureOptions(**kw))
+    for i in range(0, x.shape[0], block):
+        m.feed(Block(x=x[i : i + block], raw=None, start=i))
+    return m.result().to_dict()
+
+
+@needs_kernels
+@pytest.mark.parametrize("rate,channels", [(48_000, 2), (44_100, 1), (96_000, 6), (192_000, 2)])
+def test_truepeak_meter_gives_the_same_results_on_both_paths(rate, channels):
+    # Compiled block routine (dc_tp_chunks, dc_tp_grid) against the numpy twin: equal up
+    # to float32 summation order (1e-5 dB); over counts and times equal (no grid value
+    # lies within rounding of the ceiling in this signal).
+    _, x = _programme(1.5 if channels > 2 else 3.0, channels, rate, seed=rate + channels)
+    x = x * 2.5  # peaks above the -1 dBTP ceiling: overs on both paths
+    for block in (4_800, 1_000) if channels > 2 else (4_800, 1_000, 30_000):
+        compiled = _tp_result(x, rate, block)
+        with native.disabled():
+            plain = _tp_result(x, rate, block)
+        assert compiled["true_peak_overs"] == plain["true_peak_overs"] > 0
+        assert compiled["true_peak_over_times_s"] == plain["true_peak_over_times_s"]
+        assert_allclose(
+            compiled["true_peak_channel_dbtp"], plain["true_peak_channel_dbtp"], rtol=0, atol=1e-5
+        )
+        assert_allclose(compiled["true_peak_time_s"], plain["true_peak_time_s"], rtol=0, atol=1e-4)
+
+
+@needs_kernels
+def test_tp_chunks_same_bits_at_any_alignment():
+    phases = design_phases(4)
+    rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
+    rng = np.random.default_rng(3)
+    frames = 3 * 4096 + 4176
+    x = (rng.standard_normal((2, frames)) * 0.5).astype(np.float32)
+    bound = np.array([3.1, 1.0, 1.6, 1e-4])
+
+    def run(buf: np.ndarray):
+        return native.tp_chunks(
+            buf, 4096, 4, 4176, 48, 4096, rows, 4, bound, 1.007, 0.891,
+            np.zeros(2), np.zeros(2, np.uint8), 10,
+        )  # fmt: skip
+
+    first = run(x)
+    assert first[0] == 8 and first[2] > 0  # every chunk computed; overs found
+    for shift in range(1, 8):
+        padded = np.empty((2, frames + 16), dtype=np.float32)
+        padded[:, shift : shift + frames] = x
+        again = run(padded[:, shift : shift + frames])
+        assert again[0] == first[0] and again[2] == first[2] and again[3] == first[3]
+        assert_array_equal(again[1], first[1])
+
+
+def test_tp_wrappers_refuse_wrong_buffers():
+    rows = np.zeros((3, 64), dtype=np.float32)
+    with pytest.raises(ValueError, match="expected 63"):
+        native.tp_grid(np.zeros(10, np.float32), 0, rows, 4)  # window of the wrong length
+    with pytest.raises(ValueError, match="factor - 1"):
+        native.tp_grid(np.zeros(63, np.float32), 0, rows, 2)
+    with pytest.raises(ValueError, match="inside the buffer"):
+        native.tp_chunks(
+            np.zeros((2, 100), np.float32), 4096, 1, 4176, 48, 4096, rows, 4,
+            np.zeros(4), 1.0, 1.0, np.zeros(2), np.zeros(2, np.uint8), 10,
+        )  # fmt: skip

@@ -19,6 +19,7 @@ from scipy import signal as sps
 from signals import programme
 
 from checker.audio import Block, StreamInfo
+from checker.dsp import native
 from checker.dsp.interp import (
     design_phases,
     oversample,
@@ -438,6 +439,7 @@ def test_skip_bound_uses_the_taps():
 
 
 def test_block_wide_chunk_skip_is_bit_identical_and_used():
+    # numpy path (the compiled path skips inside dc_tp_chunks; next test).
     # A loud first second, then 7 s up to 20 dB quieter: most later chunks are passed over
     # by feed's test of all of a block's chunks at once (_skipped_chunks). Same result as
     # interpolating every chunk (skip=False) and as deciding in _chunk alone; same chunks
@@ -446,9 +448,10 @@ def test_block_wide_chunk_skip_is_bit_identical_and_used():
     x = programme(8.0, rate=rate, seed=12, level_dbfs=-30.0)
     x[:rate] *= 10.0
     options = MeasureOptions()
-    fast = meter_for(x, rate, options)
-    full = meter_for(x, rate, options, skip=False)
-    per_chunk = meter_for(x, rate, options)
+    with native.disabled():
+        fast = meter_for(x, rate, options)
+        full = meter_for(x, rate, options, skip=False)
+        per_chunk = meter_for(x, rate, options)
     per_chunk._skipped_chunks = lambda chunks: np.zeros(len(chunks), dtype=bool)
     passed = []
     real = fast._skipped_chunks
@@ -460,3 +463,29 @@ def test_block_wide_chunk_skip_is_bit_identical_and_used():
     assert fast.result().to_dict() == full.result().to_dict() == per_chunk.result().to_dict()
     assert fast.seen == full.seen == per_chunk.seen
     assert fast.computed == per_chunk.computed < full.computed
+
+
+@pytest.mark.parametrize("ceiling_dbtp", [-1.0, -12.0])
+def test_compiled_chunk_skip_is_bit_identical_and_used(ceiling_dbtp):
+    # The compiled block routine (kernels.c dc_tp_chunks) against interpolating every chunk
+    # (skip=False: per-chunk code, same compiled grid): the same result bit for bit (the
+    # skip bound is exact), with far fewer chunks interpolated on material whose
+    # neighbouring samples are close (the step bound; interp.step_weights).
+    if not native.enabled():
+        pytest.skip(f"compiled kernels not loaded: {native.status()}")
+    rate = 48_000
+    x = programme(8.0, rate=rate, seed=12, level_dbfs=-16.0)
+    x[rate : 2 * rate] *= 2.0
+    options = MeasureOptions(true_peak_ceiling_dbtp=ceiling_dbtp)
+    fast = meter_for(x, rate, options)
+    full = meter_for(x, rate, options, skip=False)
+    for i in range(0, x.shape[0], 9600):
+        for m in (fast, full):
+            m.feed(Block(x=x[i : i + 9600], raw=None, start=i))
+    assert fast.result().to_dict() == full.result().to_dict()
+    assert fast.seen == full.seen
+    if ceiling_dbtp == -1.0:
+        assert fast.computed < 0.75 * full.computed  # measured here: 116 of 186
+    else:  # peaks above the ceiling everywhere: no chunk can be skipped (overs to count)
+        assert fast.computed == full.computed
+        assert fast.result().true_peak_overs > 0

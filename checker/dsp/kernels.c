@@ -24,7 +24,7 @@
 #endif
 
 /* Version of the functions' signatures; native.py refuses a library with another one. */
-EXPORT int64_t dc_abi_version(void) { return 7; }
+EXPORT int64_t dc_abi_version(void) { return 8; }
 
 /* ------------------------------------------------------------------------ reading */
 
@@ -351,4 +351,243 @@ CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, doub
         out[3] = t;
     }
     return zeros;
+}
+
+/* ------------------------------------------------------------------------ true peak */
+/* The polyphase interpolator of checker/dsp/interp.py and the per-chunk work of
+ * checker/meters/truepeak.py (numpy twins: ChunkInterpolator.grid and
+ * TruePeakMeter._chunk / _skippable). Float32 like the numpy path. Each output is one sum
+ * over the taps in tap order, a multiply then an add per tap (no fused multiply-add, no
+ * reordering): vectors run across neighbouring outputs only, so every clone gives the same
+ * bits whatever the buffer's alignment. */
+
+/* 32-byte vectors in static inline helpers only (GCC notes an ABI change for them) */
+#pragma GCC diagnostic ignored "-Wpsabi"
+typedef float v8f __attribute__((vector_size(32)));
+typedef int32_t v8i __attribute__((vector_size(32)));
+
+#define TP_BLOCK 32 /* output positions per register block (4 vectors of 8) */
+#define TP_MAX_PHASES 3 /* phases 1..factor-1 computed; factor <= 4 */
+
+static inline v8f v8f_load(const float *p)
+{
+    v8f v;
+    memcpy(&v, p, sizeof v);
+    return v;
+}
+
+/* One block of TP_BLOCK positions: acc[p][i] = y at position i + (p + 1) / factor, i.e.
+ * sum over q of taps[p * ntaps + q] * w[i + q] (w: the window from the first tap). nph is
+ * a constant at each call (3 or 1), so the accumulators stay in registers. */
+static inline __attribute__((always_inline)) void
+tp_block_n(const float *w, const float *taps, int64_t ntaps, v8f acc[TP_MAX_PHASES][TP_BLOCK / 8],
+           const int nph)
+{
+    v8f a[TP_MAX_PHASES][TP_BLOCK / 8];
+    for (int p = 0; p < nph; p++)
+        for (int k = 0; k < TP_BLOCK / 8; k++)
+            a[p][k] = (v8f){0, 0, 0, 0, 0, 0, 0, 0};
+    for (int64_t q = 0; q < ntaps; q++) {
+        v8f x[TP_BLOCK / 8];
+        for (int k = 0; k < TP_BLOCK / 8; k++)
+            x[k] = v8f_load(w + q + 8 * k);
+        for (int p = 0; p < nph; p++) {
+            const float t = taps[p * ntaps + q];
+            const v8f tv = {t, t, t, t, t, t, t, t};
+            for (int k = 0; k < TP_BLOCK / 8; k++)
+                a[p][k] = a[p][k] + tv * x[k];
+        }
+    }
+    for (int p = 0; p < nph; p++)
+        for (int k = 0; k < TP_BLOCK / 8; k++)
+            acc[p][k] = a[p][k];
+}
+
+static inline void tp_block(const float *w, const float *taps, int64_t nph, int64_t ntaps,
+                            v8f acc[TP_MAX_PHASES][TP_BLOCK / 8])
+{
+    if (nph == 3)
+        tp_block_n(w, taps, ntaps, acc, 3);
+    else if (nph == 2)
+        tp_block_n(w, taps, ntaps, acc, 2);
+    else
+        tp_block_n(w, taps, ntaps, acc, 1);
+}
+
+/* The same sum for one position (tails shorter than a block): the same bits per output. */
+static inline float tp_one(const float *w, const float *taps, int64_t ntaps)
+{
+    float acc = 0.0f;
+    for (int64_t q = 0; q < ntaps; q++)
+        acc = acc + taps[q] * w[q];
+    return acc;
+}
+
+/* Oversampled grid of npos positions: out[i * factor + p] = y(i + p / factor), where the
+ * input sample of position i is w[i + back] and w holds npos + ntaps - 1 samples; phase 0 is
+ * that sample itself. taps: (factor - 1) x ntaps, phase p's taps at (p - 1) * ntaps. */
+CLONES EXPORT void dc_tp_grid(const float *w, int64_t npos, const float *taps, int64_t factor,
+                              int64_t ntaps, int64_t back, float *out)
+{
+    const int64_t nph = factor - 1;
+    int64_t i = 0;
+    if (nph > 0 && nph <= TP_MAX_PHASES) {
+        v8f acc[TP_MAX_PHASES][TP_BLOCK / 8];
+        for (; i + TP_BLOCK <= npos; i += TP_BLOCK) {
+            tp_block(w + i, taps, nph, ntaps, acc);
+            for (int k = 0; k < TP_BLOCK; k++) {
+                out[(i + k) * factor] = w[i + k + back];
+                for (int64_t p = 0; p < nph; p++)
+                    out[(i + k) * factor + p + 1] = acc[p][k / 8][k % 8];
+            }
+        }
+    }
+    for (; i < npos; i++) {
+        out[i * factor] = w[i + back];
+        for (int64_t p = 0; p < nph; p++)
+            out[i * factor + p + 1] = tp_one(w + i, taps + p * ntaps, ntaps);
+    }
+}
+
+#define V8F_ABS(v) ((v8f)((v8i)(v) & (v8i){0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff, \
+                                           0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff}))
+/* element-wise a > b ? a : b */
+#define V8F_MAX(a, b) ((v8f)((((v8i)((a) > (b))) & (v8i)(a)) | (~((v8i)((a) > (b))) & (v8i)(b))))
+
+static inline float v8f_hmax(const v8f *v)
+{
+    float m = (*v)[0];
+    for (int k = 1; k < 8; k++)
+        m = (*v)[k] > m ? (*v)[k] : m;
+    return m;
+}
+
+/* Largest |x| and largest |x[t + 1] - x[t]| over x[0..n) (float32 differences, as numpy's
+ * np.diff on float32). Maxima are exact whatever the order. */
+static void tp_peak_and_step(const float *x, int64_t n, float *peak, float *step)
+{
+    v8f pk = {0, 0, 0, 0, 0, 0, 0, 0}, st = pk;
+    int64_t t = 0;
+    for (; t + 9 <= n; t += 8) {
+        v8f a = v8f_load(x + t), b = v8f_load(x + t + 1);
+        pk = V8F_MAX(V8F_ABS(a), pk);
+        st = V8F_MAX(V8F_ABS(b - a), st);
+    }
+    float p = v8f_hmax(&pk), s = v8f_hmax(&st);
+    for (; t < n; t++) {
+        float a = fabsf(x[t]);
+        p = a > p ? a : p;
+        if (t + 1 < n) {
+            float d = fabsf(x[t + 1] - x[t]);
+            s = d > s ? d : s;
+        }
+    }
+    *peak = p;
+    *step = s;
+}
+
+/* Bound on |y| anywhere inside a window whose samples peak at `peak` and step by at most
+ * `step` (see truepeak.py, "Speed: skipping chunks"): min(sum |taps| * peak, dc * peak +
+ * steps * step), times (1 + margin). bound[0..3] = sum |taps|, dc gain, steps, margin. */
+static inline double tp_reach(double peak, double step, const double *bound)
+{
+    double a = bound[0] * peak, b = bound[1] * peak + bound[2] * step;
+    return (a < b ? a : b) * (1.0 + bound[3]);
+}
+
+/* Several chunks of several channels in one call. Channel c's input is the row
+ * buf + c * row; chunk j's window starts at first + j * hop and holds `window` samples;
+ * its centres are the grid points of npos positions from window sample lead (position i:
+ * sample lead + i, window from lead + i - back). For each chunk, channel by channel:
+ *   - skip test: reach * fine_gain <= best and reach <= ceiling (tp_reach over the whole
+ *     window), with best[c] raised to each computed chunk's top as it goes (a lower bound
+ *     of the meter's maximum, which only grows);
+ *   - else the grid: top[j * ch + c] = largest |y| over the centres (-1 when skipped),
+ *     overs: runs of |y| > ceiling_f carried over chunks by in_run[c] (a skipped chunk ends
+ *     a run), counted in *overs; the first `cap` run starts of each channel (grid index
+ *     relative to chunk 0's first centre) go to starts[c * cap ...], their number to
+ *     nstarts[c].
+ * Returns the number of chunk-channels computed. */
+CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, int64_t first,
+                                   int64_t hop, int64_t nchunks, int64_t window, int64_t lead,
+                                   int64_t npos, const float *taps, int64_t factor,
+                                   int64_t ntaps, int64_t back, const double *bound,
+                                   double fine_gain, double ceiling, float ceiling_f,
+                                   double *best, uint8_t *in_run, float *top, int64_t *overs,
+                                   int64_t *starts, int64_t cap, int64_t *nstarts)
+{
+    const int64_t nph = factor - 1;
+    int64_t computed = 0;
+    for (int64_t j = 0; j < nchunks; j++) {
+        for (int64_t c = 0; c < ch; c++) {
+            const float *win = buf + c * row + first + j * hop;
+            float peak, step;
+            tp_peak_and_step(win, window, &peak, &step);
+            const double reach = tp_reach(peak, step, bound);
+            if (reach * fine_gain <= best[c] && reach <= ceiling) {
+                top[j * ch + c] = -1.0f;
+                in_run[c] = 0;
+                continue;
+            }
+            computed++;
+            const float *w = win + lead - back;
+            const int64_t base = j * npos * factor; /* grid index of this chunk's first centre */
+            float m = 0.0f;
+            int run = in_run[c];
+            int64_t i = 0;
+            v8f acc[TP_MAX_PHASES][TP_BLOCK / 8];
+            for (; i < npos; i += TP_BLOCK) {
+                const int64_t len = npos - i < TP_BLOCK ? npos - i : TP_BLOCK;
+                if (len == TP_BLOCK && nph > 0 && nph <= TP_MAX_PHASES) {
+                    tp_block(w + i, taps, nph, ntaps, acc);
+                } else {
+                    for (int64_t k = 0; k < len; k++)
+                        for (int64_t p = 0; p < nph; p++)
+                            acc[p][k / 8][k % 8] = tp_one(w + i + k, taps + p * ntaps, ntaps);
+                }
+                v8f mv = {0, 0, 0, 0, 0, 0, 0, 0};
+                float bm = 0.0f;
+                if (len == TP_BLOCK) {
+                    for (int k = 0; k < TP_BLOCK / 8; k++) {
+                        mv = V8F_MAX(V8F_ABS(v8f_load(w + i + 8 * k + back)), mv);
+                        for (int64_t p = 0; p < nph; p++)
+                            mv = V8F_MAX(V8F_ABS(acc[p][k]), mv);
+                    }
+                    bm = v8f_hmax(&mv);
+                } else {
+                    for (int64_t k = 0; k < len; k++) {
+                        float a = fabsf(w[i + k + back]);
+                        bm = a > bm ? a : bm;
+                        for (int64_t p = 0; p < nph; p++) {
+                            a = fabsf(acc[p][k / 8][k % 8]);
+                            bm = a > bm ? a : bm;
+                        }
+                    }
+                }
+                m = bm > m ? bm : m;
+                if (!(bm > ceiling_f)) {
+                    run = 0;
+                    continue;
+                }
+                for (int64_t k = 0; k < len; k++) {
+                    for (int64_t p = 0; p < factor; p++) {
+                        const float a = p == 0 ? fabsf(w[i + k + back])
+                                               : fabsf(acc[p - 1][k / 8][k % 8]);
+                        const int above = a > ceiling_f;
+                        if (above && !run) {
+                            ++*overs;
+                            if (nstarts[c] < cap)
+                                starts[c * cap + nstarts[c]++] = base + (i + k) * factor + p;
+                        }
+                        run = above;
+                    }
+                }
+            }
+            in_run[c] = (uint8_t)run;
+            top[j * ch + c] = m;
+            if (m > best[c])
+                best[c] = m;
+        }
+    }
+    return computed;
 }

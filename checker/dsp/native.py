@@ -29,11 +29,12 @@ from pathlib import Path
 import numpy as np
 
 ENV = "DELIVERYCHECK_KERNELS"
-ABI_VERSION = 7
+ABI_VERSION = 8
 
 _P = ctypes.c_void_p
 _I = ctypes.c_int64
 _D = ctypes.c_double
+_F = ctypes.c_float
 _SIGNATURES = {
     "dc_abi_version": (_I, []),
     "dc_deinterleave_i32": (None, [_P, _I, _I, _P, _P, _D]),
@@ -42,6 +43,13 @@ _SIGNATURES = {
     "dc_channel_stats": (None, [_P, _P, _I, _I, _P, _I, _P, _P, _P, _P, _P, _P, _P, _I]),
     "dc_pair_products": (None, [_P, _I, _P, _P, _I, _P]),
     "dc_frame_scan": (_I, [_P, _I, _I, _D, _P, _P]),
+    # true peak (section at the end of kernels.c)
+    "dc_tp_grid": (None, [_P, _I, _P, _I, _I, _I, _P]),
+    "dc_tp_chunks": (
+        _I,
+        [_P, _I, _I, _I, _I, _I, _I, _I, _I, _P, _I, _I, _I, _P, _D, _D, _F]
+        + [_P, _P, _P, _P, _P, _I, _P],
+    ),
 }
 
 
@@ -231,3 +239,98 @@ def pair_products(xt: np.ndarray, first: np.ndarray, second: np.ndarray) -> np.n
     out = np.empty(first.size)
     _lib.dc_pair_products(_ptr(xt), n, _ptr(first), _ptr(second), first.size, _ptr(out))
     return out
+
+
+# ------------------------------------------------------------------------------ true peak
+
+
+def _need_taps(taps: np.ndarray, factor: int, what: str) -> int:
+    _need(taps, np.float32, 2, what)
+    if factor not in (1, 2, 3, 4) or taps.shape[0] != factor - 1 or taps.shape[1] < 1:
+        raise ValueError(
+            f"native.{what}: taps {taps.shape} for factor {factor} "
+            "(expected (factor - 1, taps per phase), factor 1 to 4)"
+        )
+    return taps.shape[1]
+
+
+def tp_grid(window: np.ndarray, positions: int, taps: np.ndarray, factor: int) -> np.ndarray:
+    """Oversampled grid of ``positions`` positions (``positions * factor`` values, time
+    order) from ``window`` (float32, ``positions + T - 1`` samples; position i's sample is
+    window[i + T // 2 - 1]); ``taps`` (factor - 1, T) float32 holds phases 1..factor-1."""
+    ntaps = _need_taps(taps, factor, "tp_grid")
+    _need(window, np.float32, 1, "tp_grid")
+    if positions < 0 or window.size != positions + ntaps - 1:
+        raise ValueError(
+            f"native.tp_grid: window of {window.size} samples for {positions} positions "
+            f"(expected {positions + ntaps - 1})"
+        )
+    out = np.empty(positions * factor, dtype=np.float32)
+    _lib.dc_tp_grid(_ptr(window), positions, _ptr(taps), factor, ntaps, ntaps // 2 - 1, _ptr(out))
+    return out
+
+
+def tp_chunks(
+    buf: np.ndarray,
+    hop: int,
+    nchunks: int,
+    window: int,
+    lead: int,
+    positions: int,
+    taps: np.ndarray,
+    factor: int,
+    bound: np.ndarray,
+    fine_gain: float,
+    ceiling: float,
+    best: np.ndarray,
+    in_run: np.ndarray,
+    cap: int,
+) -> tuple[int, np.ndarray, int, list[list[int]]]:
+    """True-peak work on ``nchunks`` chunks of every row of ``buf`` (channels, frames)
+    float32, rows contiguous (any row stride): chunk j's window is
+    ``buf[:, j * hop :][:, :window]``, its centres the
+    grid of ``positions`` positions from window sample ``lead``. Skip test with
+    ``bound`` (sum |taps|, dc gain, steps, margin; see kernels.c) against ``best``
+    (float64 per row, raised in place to each computed chunk's top) and ``ceiling``.
+    ``in_run`` (uint8 per row) carries over runs. Returns (chunk-rows computed, top
+    (nchunks, rows) float32 with -1 where skipped, overs counted, each row's first ``cap``
+    over starts as grid indices from chunk 0's first centre)."""
+    ntaps = _need_taps(taps, factor, "tp_chunks")
+    if buf.dtype != np.float32 or buf.ndim != 2 or buf.strides[1] != 4 or buf.strides[0] % 4:
+        raise ValueError(
+            f"native.tp_chunks: buf {buf.dtype} {buf.shape} strides {buf.strides} "
+            "(expected float32 (channels, frames) with contiguous rows)"
+        )
+    _need(bound, np.float64, 1, "tp_chunks")
+    _need(best, np.float64, 1, "tp_chunks")
+    _need(in_run, np.uint8, 1, "tp_chunks")
+    ch, frames = buf.shape
+    back = ntaps // 2 - 1
+    last = (nchunks - 1) * hop + window
+    if (
+        nchunks < 1
+        or hop < 1
+        or last > frames
+        or bound.size != 4
+        or best.size != ch
+        or in_run.size != ch
+        or lead < back
+        or lead + positions + ntaps - 1 - back > window
+        or cap < 0
+    ):
+        raise ValueError(
+            f"native.tp_chunks: {nchunks} chunks by {hop}, window {window}, lead "
+            f"{lead}, {positions} positions, {ntaps} taps over {ch}x{frames} frames "
+            f"(expected windows inside the buffer and centres inside the windows)"
+        )
+    top = np.empty((nchunks, ch), dtype=np.float32)
+    overs = np.zeros(1, dtype=np.int64)
+    starts = np.empty((ch, max(cap, 1)), dtype=np.int64)
+    nstarts = np.zeros(ch, dtype=np.int64)
+    computed = _lib.dc_tp_chunks(
+        _ptr(buf), ch, buf.strides[0] // 4, 0, hop, nchunks, window, lead, positions,
+        _ptr(taps), factor, ntaps, back, _ptr(bound), fine_gain, ceiling, np.float32(ceiling),
+        _ptr(best), _ptr(in_run), _ptr(top), _ptr(overs), _ptr(starts), cap, _ptr(nstarts),
+    )  # fmt: skip
+    found = [starts[c, : nstarts[c]].tolist() for c in range(ch)]
+    return int(computed), top, int(overs[0]), found

@@ -4,8 +4,10 @@ Method
 ------
 - Oversampling reaching at least 192 kHz: 4x below 96 kHz, 2x from 96 kHz,
   1x from 192 kHz (``true_peak_oversampling``). Our own filter
-  (checker/dsp/interp.py): Kaiser-windowed sinc, 32 taps per phase, cutoff at
-  the input Nyquist, so phase 0 is the input sample itself. All channels
+  (checker/dsp/interp.py): Kaiser-windowed sinc, 64 taps per phase, beta 4.5,
+  cutoff at the input Nyquist, so phase 0 is the input sample itself; flat to
+  0.47 fs (gain of every phase within -0.035 / +0.042 dB), down to -0.29 dB at
+  0.48 fs, falling to 0 at Nyquist for the half-sample phase. All channels
   (LFE included) are measured.
 - Between the oversampled points: around the local maxima that could beat the
   running maximum, the 4 with the largest three-point sinusoid-fit estimates
@@ -13,12 +15,17 @@ Method
   per input sample over +-1 grid step, and the largest of those is refined once
   more by the sinusoid fit (at most +0.01 dB at that spacing). The reading is
   the filter's own band-limited reconstruction, not a model of it.
-- Bound reached by the default, measured on sines of amplitude A, 0.005-0.45 fs,
-  24 phases each, at 44.1 / 48 / 96 kHz away from file edges (tests assert
-  0.02 dB low and 0.05 dB high): at most 0.002 dB below 20 log10(A), at most
-  0.04 dB above (the filter's passband ripple near 0.45 fs). At 192 kHz and up
-  (1x: the grid is the samples, the fine evaluation still interpolates) the
-  same bound is tested for tones up to fs / 4 only.
+- Accuracy (measured; tests/test_truepeak.py, tests/test_truepeak_transients.py;
+  the README's accuracy table): sines of amplitude A, 0.01-0.45 fs, 12 phases,
+  44.1 / 48 / 96 kHz, away from file edges: 0.002 dB below to 0.032 dB above
+  20 log10(A) (tests assert 0.02 / 0.05). Gaussian-envelope bursts (1.5 and 3
+  periods) and noise band-limited to 0.45 or 0.48 fs, against FFT interpolation:
+  0.004 dB low to 0.010 dB high (bursts), 0.07 dB low at worst (noise in
+  0.46-0.48 fs). Above 0.48 fs the transition band reads low: band-pass noise
+  0.48-0.49 fs up to 0.3 dB, 0.49-0.5 fs up to 2 dB; full-band white noise from
+  0.15 dB low to 0.22 dB high. At 192 kHz and up (1x: the grid is the samples,
+  the fine evaluation still interpolates) the sine bound is tested for tones up
+  to fs / 4 only.
 - Samples are converted to float32 before interpolation (exact for 8-24 bit
   PCM; about 1e-6 dB for 32-bit and float data). Non-finite samples of float
   files (NaN, Inf; counted by the levels meter) are taken as 0 here.
@@ -26,13 +33,13 @@ Method
 Edges (decision)
 ----------------
 Outside the file the signal is zero, and an interpolated point counts only when
-the filter's whole window (16 samples back, 16 ahead) lies inside the file; in
-the first and last 16 samples (0.33 ms at 48 kHz) only the samples themselves
+the filter's whole window (32 samples back, 32 ahead) lies inside the file; in
+the first and last 32 samples (0.67 ms at 48 kHz) only the samples themselves
 count. Reason: a file that starts or stops mid-waveform (as the published EBU
 Tech 3341 test tones do) is a step, and any interpolator rings on it; with zero
 padding this filter read cases 17 and 18 0.43 and 0.73 dB high, outside the
-document's +0.2 dB. With the rule they read within 0.01 dB. The price: a real
-inter-sample peak within 0.33 ms of either end is read as its sample value.
+document's +0.2 dB. With the rule they read within 0.03 dB. The price: a real
+inter-sample peak within 0.67 ms of either end is read as its sample value.
 ``true_peak_at_edge`` is set when the maximum lies within the first or last
 5 ms AND exceeds every point in between by more than 0.05 dB (our over-read
 bound): a steady tone, whose maximum recurs all through the file, is not an
@@ -54,16 +61,32 @@ Speed: skipping chunks
 ----------------------
 The input is processed in fixed chunks of 4096 frames aligned to file positions
 (so any block split gives bit-identical results). A chunk of a channel is not
-interpolated when ``E * F * B * max|x over its window| * (1 + 1e-4)`` cannot
-exceed the channel's running maximum and ``B * max|x| * (1 + 1e-4)`` cannot
-exceed the ceiling, with B the largest sum of |taps| of any grid phase or fine
-offset (2.54), F = 1.0012 the largest gain of the final sinusoid fit and
-E = 0.05 dB the edge-dominance margin (so a skipped chunk cannot change the
-edge decision either): an exact bound (the margin covers float32 rounding), so
-the result equals the unskipped computation bit for bit
-(``TruePeakMeter(..., skip=False)`` to check). The test runs for all of a block's
-chunks at once (one reduction over their windows, against the maxima as they stand
-before the block); only chunks that some channel cannot skip reach the per-chunk code.
+interpolated when ``E * F * R`` cannot exceed the channel's running maximum and
+``R`` cannot exceed the ceiling, where R bounds every interpolated value in the
+chunk from its window's largest sample P and largest step between neighbouring
+samples D (both float32, exact maxima):
+``R = min(B * P, S * P + C * D) * (1 + 1e-4)``, with, over every grid phase and
+fine offset, B the largest sum of |taps| (3.02), S the largest |sum of taps|
+(1, the DC gain) and C the largest sum of |w_i| of the step form
+``y = x[m] * sum(taps) + sum_i w_i (x[m+i+1] - x[m+i])`` (1.58;
+interp.step_weights). The step form makes the bound follow the content: a
+chunk of low-pass programme whose samples step by a tenth of its peak reaches
+at most 1.16 P instead of 3.02 P. F = 1.0012 is the largest gain of the final
+sinusoid fit and E = 0.05 dB the edge-dominance margin (so a skipped chunk
+cannot change the edge decision either); the margin covers float32 rounding
+(sums of 64 products err below 2e-5 of the bound). The bound is exact, so the
+result equals the unskipped computation bit for bit
+(``TruePeakMeter(..., skip=False)`` to check).
+
+With the compiled kernels (checker/dsp/kernels.c, true-peak section) one call
+per block does, for every chunk and channel, the skip test, the grid, its
+largest value and the overs (``dc_tp_chunks``; its numpy twin is the per-chunk
+code here); maxima found earlier in the same call tighten the test for later
+chunks. Only chunk-channels whose grid could raise the running maximum come
+back to Python for the refinement (their grid recomputed by ``dc_tp_grid``,
+the same bits). The numpy path tests all of a block's chunks at once (one
+reduction over their windows, against the maxima as they stand before the
+block) and sends the rest to the per-chunk code.
 """
 
 from __future__ import annotations
@@ -77,6 +100,7 @@ from typing import Any
 import numpy as np
 
 from checker.audio import Block, StreamInfo
+from checker.dsp import native
 from checker.dsp.interp import (
     CHUNK_FRAMES,
     ROW_POSITIONS,
@@ -89,6 +113,7 @@ from checker.dsp.interp import (
     phase_abs_sums,
     refine_gain_bound,
     refine_peaks,
+    step_weights,
 )
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
@@ -140,20 +165,37 @@ class _State:
     over_index: list[int] = field(default_factory=list)  # grid indices of first run starts
 
 
+@dataclass(frozen=True)
+class _Design:
+    interp: ChunkInterpolator
+    phase_rows: np.ndarray  # phases 1..factor-1 as rows (float32), for the compiled grid
+    fine_taps: np.ndarray
+    tap_bound: float
+    bound: np.ndarray
+
+
 @functools.lru_cache(maxsize=4)
-def _design(factor: int) -> tuple[ChunkInterpolator, np.ndarray, float]:
-    """The filters for one oversampling factor, built once per process (about 3 ms per file
-    otherwise) and shared read-only: (interpolator, fine taps, the skip bound's tap sum)."""
+def _design(factor: int) -> _Design:
+    """The filters for one oversampling factor, built once per process (a few ms per file
+    otherwise) and shared read-only by every meter of that factor."""
     phases = design_phases(factor)
     interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
-    fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS)
-    tap_bound = max(
-        float(phase_abs_sums(phases.astype(np.float32)).max()),
-        float(phase_abs_sums(fine_taps.T).max()),
+    phase_rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
+    fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS, phases.shape[0])
+    # Skip bound over every grid phase (as the float32 product uses them) and fine offset.
+    rows = np.concatenate([phases.T.astype(np.float32).astype(np.float64), fine_taps])
+    tap_bound = float(phase_abs_sums(rows.T).max())
+    bound = np.array(
+        [
+            tap_bound,
+            float(np.abs(rows.sum(axis=1)).max()),
+            float(step_weights(rows).max()),
+            BOUND_MARGIN,
+        ]
     )
-    interp.matrix.flags.writeable = False
-    fine_taps.flags.writeable = False
-    return interp, fine_taps, tap_bound
+    for a in (interp.matrix, phase_rows, fine_taps, bound):
+        a.flags.writeable = False
+    return _Design(interp, phase_rows, fine_taps, tap_bound, bound)
 
 
 class TruePeakMeter:
@@ -178,8 +220,10 @@ class TruePeakMeter:
         if factor not in (1, 2, 4):
             raise ValueError(f"TruePeakMeter: oversampling = {factor} (expected 1, 2 or 4)")
         self.factor = factor
-        self.interp, self.fine_taps, self.tap_bound = _design(factor)
+        d = _design(factor)
+        self.interp, self.phase_rows, self.fine_taps = d.interp, d.phase_rows, d.fine_taps
         self.interp_taps = self.interp.taps
+        self.tap_bound, self.bound = d.tap_bound, d.bound
         self.fine_omega = math.pi / FINE_STEPS
         self.fine_bound = refine_gain_bound(self.fine_omega)
         # Candidate selection only (not part of the skip bound): band-limited content.
@@ -194,6 +238,9 @@ class TruePeakMeter:
             holdback=math.ceil(EDGE_S * self.rate_hz) + 1,  # the last 5 ms wait for result()
         )
         self.edge_dominance = 10.0 ** (EDGE_DOMINANCE_DB / 20.0)
+        #: Largest gain from a grid value to the reading that can change the result.
+        self.fine_gain = self.fine_bound * self.edge_dominance
+        self.native = native.enabled()
         self.state = _State(
             best=np.zeros(self.channels),
             best_index=np.full(self.channels, -1, dtype=np.int64),
@@ -209,13 +256,70 @@ class TruePeakMeter:
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
         chunks = list(self.stream.push(x))  # views of one buffer, valid until the next push
-        skipped = self._skipped_chunks(chunks) if self.skip and chunks else None
+        if chunks and chunks[0][0] == 0:  # the file's start: edge rule, per chunk below
+            self._chunk(self.state, 0, chunks[0][1], None)
+            chunks = chunks[1:]
+        if not chunks:
+            return
+        if self.native and self.skip and self._evenly_spaced(chunks):
+            self._native_chunks(chunks)
+            return
+        skipped = self._skipped_chunks(chunks) if self.skip else None
         for i, (j, window) in enumerate(chunks):
             if skipped is not None and skipped[i]:
                 self.seen += self.channels
                 self.state.in_run[:] = False
                 continue
             self._chunk(self.state, j, window, None)
+
+    def _evenly_spaced(self, chunks: list[tuple[int, np.ndarray]]) -> bool:
+        first = chunks[0][1]
+        hop = self.stream.step * first.strides[1]
+        return chunks[-1][1].ctypes.data == first.ctypes.data + (len(chunks) - 1) * hop
+
+    def _native_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
+        """Compiled twin of the numpy path below (kernels.c, dc_tp_chunks): skip test,
+        grid, maxima and overs of all of a block's chunks in one call; the refinement of
+        chunks that could raise a maximum stays here, in chunk order."""
+        st = self.state
+        first = chunks[0][1]  # (channels, window) view; the others follow it evenly
+        step = self.stream.step
+        span = (len(chunks) - 1) * step + first.shape[1]
+        buf = np.lib.stride_tricks.as_strided(
+            first, (self.channels, span), first.strides, writeable=False
+        )
+        cap = max(self.max_positions - len(st.over_index), 0)
+        in_run = st.in_run.astype(np.uint8)
+        computed, top, overs, starts = native.tp_chunks(
+            buf, step, len(chunks), self.interp.window_frames,
+            self.interp.history + ROW_POSITIONS, CHUNK_FRAMES, self.phase_rows, self.factor,
+            self.bound, self.fine_gain, self.ceiling_amp, st.best.copy(), in_run, cap,
+        )  # fmt: skip
+        self.seen += len(chunks) * self.channels
+        self.computed += computed
+        st.in_run[:] = in_run.astype(bool)
+        st.overs += overs
+        origin = chunks[0][0] * CHUNK_FRAMES * self.factor  # grid index of the first centre
+        events = sorted((origin + k, c) for c, ks in enumerate(starts) for k in ks)
+        st.over_index.extend(k for k, _ in events[:cap])
+        lo = ROW_POSITIONS * self.factor
+        for i, (j, window) in enumerate(chunks):
+            for c in np.flatnonzero(top[i] * self.refine_bound > st.best):
+                if top[i, c] > 0.0 and top[i, c] * self.refine_bound > st.best[c]:
+                    y = self._grid(window[c])
+                    a = np.abs(y)
+                    centres = a[lo : lo + CHUNK_FRAMES * self.factor]
+                    base = (j * CHUNK_FRAMES - ROW_POSITIONS) * self.factor
+                    self._refine(st, c, window[c], y, a, centres, lo, float(top[i, c]), base)
+
+    def _grid(self, window: np.ndarray) -> np.ndarray:
+        """Oversampled grid of one chunk-channel window (compiled or numpy)."""
+        if not self.native or self.factor == 1:
+            return self.interp.grid(window)
+        back = self.interp_taps // 2 - 1
+        lo = self.interp.history - back
+        w = window[lo : lo + self.interp.positions + self.interp_taps - 1]
+        return native.tp_grid(w, self.interp.positions, self.phase_rows, self.factor)
 
     def _skipped_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> np.ndarray:
         """Per chunk: True when _chunk would skip it on every channel. Tested for all of a
@@ -226,19 +330,27 @@ class TruePeakMeter:
         count, width = len(chunks), first.shape[1]
         size = first.strides[1]
         hop = self.stream.step * size
-        if chunks[-1][1].ctypes.data != first.ctypes.data + (count - 1) * hop:
+        if not self._evenly_spaced(chunks):
             return np.zeros(count, dtype=bool)  # not evenly spaced views: test per chunk
         windows = np.lib.stride_tricks.as_strided(
             first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
         )
-        peaks = np.maximum(windows.max(axis=2), -windows.min(axis=2))
-        return self._skippable(peaks, self.state.best[:, None]).all(axis=0)
+        return self._skippable(windows, self.state.best[:, None]).all(axis=0)
 
-    def _skippable(self, peaks: np.ndarray, best: np.ndarray) -> np.ndarray:
-        """Where a window whose samples peak at ``peaks`` cannot beat the running maxima
-        ``best`` nor reach the ceiling (the exact bound in the module docstring)."""
-        reach = peaks.astype(np.float64) * (self.tap_bound * (1.0 + BOUND_MARGIN))
-        return (reach * self.fine_bound * self.edge_dominance <= best) & (reach <= self.ceiling_amp)
+    def _skippable(self, windows: np.ndarray, best: np.ndarray) -> np.ndarray:
+        """Where a window (last axis: samples) cannot beat the running maxima ``best`` nor
+        reach the ceiling: the exact bound of the module docstring, from the window's
+        largest sample and largest step (kernels.c tp_reach does the same arithmetic).
+        The steps are only looked at when the samples alone leave the question open
+        (``S * P`` is a lower bound of the reach, as B >= S)."""
+        b = self.bound
+        p = np.maximum(windows.max(axis=-1), -windows.min(axis=-1)).astype(np.float64)
+        floor = b[1] * p * (1.0 + b[3])
+        if not ((floor * self.fine_gain <= best) & (floor <= self.ceiling_amp)).any():
+            return np.zeros(np.broadcast_shapes(p.shape, np.shape(best)), dtype=bool)
+        d = np.abs(np.diff(windows, axis=-1)).max(axis=-1).astype(np.float64)
+        reach = np.minimum(b[0] * p, b[1] * p + b[2] * d) * (1.0 + b[3])
+        return (reach * self.fine_gain <= best) & (reach <= self.ceiling_amp)
 
     def _edge_masks(
         self, base: int, lo: int, hi: int, last_frame: int | None
@@ -275,8 +387,7 @@ class TruePeakMeter:
             hi = lo + (last_frame - j * CHUNK_FRAMES) * factor + 1
         base = (j * CHUNK_FRAMES - ROW_POSITIONS) * factor  # grid index of window grid 0
         masks = self._edge_masks(base, lo, hi, last_frame)
-        peaks = np.maximum(window.max(axis=1), -window.min(axis=1))
-        skippable = self._skippable(peaks, st.best) if self.skip else None
+        skippable = self._skippable(window, st.best) if self.skip else None
         events: list[tuple[int, int]] = []
         for c in range(self.channels):
             self.seen += 1
@@ -284,7 +395,7 @@ class TruePeakMeter:
                 st.in_run[c] = False
                 continue
             self.computed += 1
-            y = self.interp.grid(window[c])
+            y = self._grid(window[c])
             a = np.abs(y)
             centres = a[lo:hi] if masks is None else a[lo:hi] * masks[0]
             top = float(centres.max())
@@ -308,7 +419,7 @@ class TruePeakMeter:
             events.sort()
             st.over_index.extend(k for k, _ in events[: self.max_positions - len(st.over_index)])
 
-    def _refine(self, st, c, win, y, a, centres, lo, top, base, masks, last_frame) -> None:
+    def _refine(self, st, c, win, y, a, centres, lo, top, base, masks=None, last_frame=None):
         """Update channel c's maximum from this chunk: grid values, plus a fine evaluation
         of the filter around the FINE_CANDIDATES local maxima with the largest
         sinusoid-fit estimates among those that could beat the running maximum."""
