@@ -153,7 +153,6 @@ def run_batch(
     total = len(found.files) + sum(1 for p in found.problems if p.missed)
     try:
         store.start_run(run)
-        store.start_grouping()  # rows commit together, every Store.GROUP_S
         progress.start(total)
         for problem in found.problems:
             if problem.missed:
@@ -219,7 +218,6 @@ def run_batch(
         progress.close()
         raise Interrupted(run, len(results), total) from None
     finally:
-        store.stop_grouping()
         progress.close()
         if own_store:
             store.close()

@@ -14,11 +14,9 @@ measured (tests use it to show that a resumed run re-read nothing).
 
 from __future__ import annotations
 
-import contextlib
 import json
 import os
 import sqlite3
-import time
 from dataclasses import dataclass, replace
 from datetime import UTC, datetime
 from pathlib import Path
@@ -166,28 +164,8 @@ class Store:
                 f"{self.path}: schema_version = {row[0]!r} (expected an integer)"
             ) from None
 
-    #: While grouped(): writes share one transaction, committed at least this often.
-    GROUP_S = 0.5
-    _group_started: float | None = None  # monotonic time of the open group's BEGIN
-    _grouping = False
-
-    def start_grouping(self) -> None:
-        """Batch writes from now on: one commit per GROUP_S instead of one per write (a batch
-        of short files writes two rows per file). A crash loses at most the last GROUP_S of
-        rows, which a resumed run measures again; each write stays atomic (a savepoint)."""
-        self._grouping = True
-
-    def stop_grouping(self) -> None:
-        """Commit what the group holds; writes commit one by one again."""
-        self._grouping = False
-        if self._group_started is not None:
-            self._group_started = None
-            self.db.execute("COMMIT")
-
     def _tx(self):
         db = self.db
-        if self._grouping:
-            return self._group_tx()
 
         class _Tx:
             def __enter__(self):
@@ -198,23 +176,6 @@ class Store:
                 return False
 
         return _Tx()
-
-    @contextlib.contextmanager
-    def _group_tx(self):
-        if self._group_started is None:
-            self.db.execute("BEGIN IMMEDIATE")
-            self._group_started = time.monotonic()
-        self.db.execute("SAVEPOINT one_write")
-        try:
-            yield
-        except BaseException:
-            self.db.execute("ROLLBACK TO one_write")
-            self.db.execute("RELEASE one_write")
-            raise
-        self.db.execute("RELEASE one_write")
-        if time.monotonic() - self._group_started >= self.GROUP_S:
-            self._group_started = None
-            self.db.execute("COMMIT")
 
     def close(self) -> None:
         self.db.close()
