@@ -28,6 +28,7 @@ import queue
 import threading
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
+from typing import BinaryIO
 
 import numpy as np
 import soundfile as sf
@@ -35,6 +36,7 @@ from soundfile import _ffi, _snd  # libsndfile's C functions (see the loop)
 
 from checker.dsp import native
 from checker.errors import AudioReadError, UnsupportedAudioError
+from checker.names import for_libsndfile
 
 MIN_SAMPLE_RATE_HZ = 8_000
 MAX_SAMPLE_RATE_HZ = 768_000
@@ -63,6 +65,11 @@ FLOAT_SUBTYPES = {"FLOAT": 32, "DOUBLE": 64}
 UNKNOWN_FRAMES = 2**62
 
 INT32_SCALE = 1.0 / 2**31
+
+#: Float samples larger than this in magnitude (2**100, about +602 dBFS) are not audio but
+#: damage: squares and sums of them overflow float64 and the true-peak filter's float32 path.
+#: They are counted and treated as 0, like NaN and Inf (docs/standards.md#sample-domain).
+MAX_SAMPLE_MAGNITUDE = 2.0**100
 
 
 @dataclass(frozen=True)
@@ -118,11 +125,26 @@ class Block:
         return t if t.flags.c_contiguous else np.ascontiguousarray(t)
 
 
+def out_of_range(block: Block) -> bool:
+    """True when a float block holds NaN, Inf or a sample beyond MAX_SAMPLE_MAGNITUDE
+    (integer PCM never does). Kept in ``block.memo``: measure() and the meters' prepare
+    steps both ask."""
+    if block.raw is not None or block.frames == 0:
+        return False
+    found = block.memo.get("out_of_range")
+    if found is None:
+        x = block.x
+        # NaN makes max() NaN, and a comparison with NaN is False: caught without a mask.
+        found = not (x.max() <= MAX_SAMPLE_MAGNITUDE and x.min() >= -MAX_SAMPLE_MAGNITUDE)
+        block.memo["out_of_range"] = found
+    return found
+
+
 def open_info(path: str) -> StreamInfo:
     """Read the header only. Raises AudioReadError with a one-line message."""
     check_file(path)
     try:
-        info = sf.info(path)
+        info = sf.info(for_libsndfile(path))
     except Exception as exc:  # soundfile raises several types (LibsndfileError, RuntimeError)
         raise AudioReadError(f"{path}: cannot open as audio ({_clean(exc)})") from None
     return _check_info(path, info)
@@ -192,6 +214,7 @@ def read_blocks(
     *,
     read_ahead: bool = False,
     prepare: list[Callable[[Block], None]] | None = None,
+    source: BinaryIO | None = None,
 ) -> tuple[StreamInfo, Iterator[Block]]:
     """Open ``path`` and return its StreamInfo and an iterator of Blocks.
 
@@ -207,12 +230,16 @@ def read_blocks(
     ``prepare``: functions called with every block, in order, right after it is
     decoded (in the read-ahead thread when there is one) and before the caller
     sees it; the list may be filled after this call, before iterating.
+
+    ``source``: a file-like view of ``path`` to decode instead of the file itself (a FLAC
+    whose STREAMINFO understates its length, read with the total marked unknown:
+    checker.streamlength.FlacUnknownLength); it is closed with the iterator.
     """
     if block_frames is not None and block_frames < 1:
         raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
     check_file(path)
     try:
-        handle = sf.SoundFile(path)
+        handle = sf.SoundFile(for_libsndfile(path) if source is None else source)
     except Exception as exc:
         reason = _clean(exc)
         if "does not exist" in reason:  # libsndfile's words for a codec stream it cannot start

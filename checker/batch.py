@@ -3,12 +3,18 @@ parallel, evaluate the profile, and keep every finished file in the store.
 
     run, results = run_batch(["deliveries/"], profile, Path("out"), jobs=4)
 
-Per-file problems are rows with status "error", never exceptions. Files whose
-identity (resolved path, size, mtime) and engine version are already in the
-store are not read again, so an interrupted run resumes where it stopped and a
-re-check against another profile opens no audio. ``fresh=True`` ignores the
-cache. A Ctrl-C raises :class:`Interrupted` after everything finished so far
-has been committed.
+Per-file problems are rows with status "error", never exceptions. Every file
+under the inputs is accounted for (checker.discover): measured, an error row
+saying why, or listed in ``RunInfo.not_checked`` with its reason. Paths in
+results are in readable form (checker.names): a name that is not valid UTF-8
+gets its own row with its odd bytes shown ``\\xNN``; the file itself is opened
+by its real name. Files whose identity (resolved path, size, mtime, ctime) and
+engine version are already in the store are not read again, so an interrupted
+run resumes where it stopped and a re-check against another profile opens no
+audio. ``fresh=True`` ignores the cache. A Ctrl-C raises :class:`Interrupted`
+after everything finished so far has been committed. When the store fails
+part-way (disk full, damaged file), the batch goes on without it and raises
+:class:`StoreFailed` at the end, carrying every result for the reports.
 """
 
 from __future__ import annotations
@@ -23,9 +29,10 @@ from pathlib import Path
 from typing import Any
 
 from checker.discover import discover
-from checker.errors import UsageError
+from checker.errors import StoreError, UsageError
 from checker.measure import ENGINE_VERSION, Measurement
 from checker.meters.base import MeasureOptions
+from checker.names import readable
 from checker.progress import Progress
 from checker.results import FileResult, RunInfo
 from checker.store import FileIdentity, Store, open_store
@@ -50,8 +57,57 @@ class Interrupted(Exception):
         self.total = total
 
 
+class StoreFailed(StoreError):
+    """The store failed part-way; the batch finished without it. ``results`` holds every
+    file's result (for the reports); the message says what, where and what to do."""
+
+    def __init__(self, message: str, run: RunInfo, results: list[FileResult]):
+        super().__init__(message)
+        self.run = run
+        self.results = results
+
+
+class _GuardedStore:
+    """The batch's view of the store: the first StoreError is kept in ``failure`` and from
+    then on reads find nothing and writes are skipped, so measuring goes on."""
+
+    def __init__(self, store: Store):
+        self.store = store
+        self.failure: StoreError | None = None
+
+    def __getattr__(self, name: str):
+        method = getattr(self.store, name)
+
+        def call(*args, **kwargs):
+            if self.failure is not None:
+                return None
+            try:
+                return method(*args, **kwargs)
+            except StoreError as exc:
+                self.failure = exc
+                return None
+
+        return call
+
+
 def default_jobs() -> int:
     return usable_cores()
+
+
+def capped_jobs(jobs: int | None, on_note: Callable[[str], Any] | None = None) -> int:
+    """``jobs`` (default: one per usable core), capped to the usable cores with a note: a
+    local worker process per core is the most that helps, and more only costs memory."""
+    cores = usable_cores()
+    if jobs is None:
+        return cores
+    if jobs > cores:
+        if on_note:
+            on_note(
+                f"jobs = {jobs} capped to {cores}, the usable cores "
+                "(more worker processes than cores do not help)"
+            )
+        return cores
+    return jobs
 
 
 def measure_options(profile, layout: str | None = None) -> MeasureOptions:
@@ -59,17 +115,23 @@ def measure_options(profile, layout: str | None = None) -> MeasureOptions:
     stored measurements serve every profile: true-peak overs are counted against the fixed
     reference in MeasureOptions (recorded with each measurement as
     ``true_peak_ceiling_dbtp``), while rules judge ``true_peak_dbtp`` against the
-    profile's own ceiling. The one input they take is the files' channel order: ``layout``
+    profile's own ceiling. The inputs they take are the files' channel order: ``layout``
     (the command line's), else the profile's ``[format] channel_layout``; it applies to the
-    files with as many channels as it names."""
+    files with as many channels as it names; and the encode round trip a profile's
+    ``[encode]`` section asks for (a measurement option, part of the cache key)."""
     given = layout or getattr(profile, "channel_layout", None)
-    return MeasureOptions(layout=given, layout_strict=False) if given else MeasureOptions()
+    encode = getattr(profile, "encode", None)  # the round trip asked for, or None
+    if given:
+        return MeasureOptions(layout=given, layout_strict=False, encode=encode)
+    return MeasureOptions(encode=encode)
 
 
 def options_key(options: MeasureOptions) -> str:
     """The measurement options that change values (block size does not)."""
     d = dataclasses.asdict(options)
     d.pop("block_frames", None)
+    if d.get("encode") is None:
+        d.pop("encode", None)  # no round trip: the key of every earlier measurement
     return json.dumps(d, sort_keys=True)
 
 
@@ -83,7 +145,7 @@ def new_run(paths, profile) -> RunInfo:
     return RunInfo(
         run_id=started.replace(":", "").replace("-", "")[:15] + "-" + uuid.uuid4().hex[:8],
         started_at=started,
-        inputs=tuple(str(p) for p in paths),
+        inputs=tuple(readable(str(p)) for p in paths),
         profile_name=str(getattr(profile, "name", "")),
         profile_title=str(getattr(profile, "title", "")),
         profile_limits=tuple(dict(x) for x in limits),
@@ -97,9 +159,13 @@ def _default_evaluate():
     return evaluate
 
 
-def _judge(path: str, m: Measurement, profile, evaluate) -> FileResult:
+def _judge(path: str, m: Measurement, profile, evaluate, remark: str | None = None) -> FileResult:
+    """Evaluate one measurement; ``remark`` (a note about the file's name from discovery)
+    joins its findings for the reports (it is not stored: the name may change)."""
     if m.path != path:
         m = dataclasses.replace(m, path=path)
+    if remark and remark not in m.findings:
+        m = dataclasses.replace(m, findings=(*m.findings, remark))
     try:
         verdict = evaluate(m, profile)
     except Exception as exc:  # a rules bug must not sink the batch
@@ -133,22 +199,30 @@ def run_batch(
     ``layout``: the channel order of files with as many channels (else the profile's)."""
     if timeout_s is not None and not timeout_s > 0:
         raise UsageError(f"--timeout-s: timeout_s = {timeout_s} (expected > 0)")
-    jobs = default_jobs() if jobs is None else int(jobs)
-    if jobs < 1:
+    if jobs is not None and int(jobs) < 1:
         raise UsageError(f"--jobs: jobs = {jobs} (expected >= 1)")
+    # The Dask path sizes itself (local:N, or the scheduler's workers): no cap there.
+    jobs = capped_jobs(None if jobs is None else int(jobs), None if cluster else on_note)
     evaluate = evaluate or _default_evaluate()
     found = discover(list(paths))
     if not found.files and not any(p.missed for p in found.problems):
+        skipped = f" ({len(found.not_checked)} other files, not audio)" if found.not_checked else ""
         raise UsageError(
-            f"inputs: audio files = 0 under {', '.join(map(str, paths))} "
-            "(expected at least one file libsndfile reads)"
+            f"inputs: audio files = 0 under {', '.join(readable(str(p)) for p in paths)}"
+            f"{skipped} (expected at least one file libsndfile reads)"
         )
     options = measure_options(profile, layout)
     okey = options_key(options)
     progress = progress or Progress(None)
     own_store = store is None
-    store = store or open_store(out_dir)
+    store = _GuardedStore(store or open_store(out_dir))
     run = new_run(paths, profile)
+    run = dataclasses.replace(
+        run,
+        not_checked=tuple(
+            {"path": readable(s.path), "reason": readable(s.reason)} for s in found.not_checked
+        ),
+    )
     results: dict[str, FileResult] = {}
     total = len(found.files) + sum(1 for p in found.problems if p.missed)
     try:
@@ -156,30 +230,34 @@ def run_batch(
         progress.start(total)
         for problem in found.problems:
             if problem.missed:
-                _keep(store, run, results, FileResult.failed(problem.path, problem.message))
+                failed = FileResult.failed(readable(problem.path), readable(problem.message))
+                _keep(store, run, results, failed)
                 progress.advance()
             elif on_note:
-                on_note(problem.message)
+                on_note(readable(problem.message))
 
         tasks: list[Task] = []
         idents: dict[int, FileIdentity] = {}
         for index, path in enumerate(found.files):
+            shown = readable(path)
+            remark = found.remarks.get(path)
             try:
                 ident = FileIdentity.of(path)
             except OSError as exc:
-                msg = f"{path}: file vanished or cannot be read ({exc.strerror or exc})"
-                _keep(store, run, results, FileResult.failed(path, msg))
+                msg = f"{shown}: file vanished or cannot be read ({exc.strerror or exc})"
+                _keep(store, run, results, FileResult.failed(shown, msg))
                 progress.advance()
                 continue
             if not fresh:
                 cached = store.get_measurement(ident, ENGINE_VERSION, okey)
                 if cached is not None:
-                    _keep(store, run, results, _judge(path, cached, profile, evaluate))
+                    result = _judge(shown, cached, profile, evaluate, remark)
+                    _keep(store, run, results, result)
                     progress.advance()
                     continue
                 error = store.get_error(ident, ENGINE_VERSION, okey)
                 if error is not None:
-                    _keep(store, run, results, FileResult.failed(path, error))
+                    _keep(store, run, results, FileResult.failed(shown, error))
                     progress.advance()
                     continue
             idents[index] = ident
@@ -190,7 +268,7 @@ def run_batch(
         else:
             workers = min(jobs, max(1, len(tasks)))
             if measure_fn is None and workers < jobs:  # fewer files than jobs: cores to spare
-                measure_fn = worker_measure_fn(workers, min(jobs, usable_cores()))
+                measure_fn = worker_measure_fn(workers, jobs)
             pool = LocalPool(
                 workers, memory_mb=memory_mb, measure_fn=measure_fn, timeout_s=timeout_s
             )
@@ -198,15 +276,18 @@ def run_batch(
         try:
             for task, outcome in outcomes:
                 ident = idents[task.index]
+                shown = readable(task.path)
                 if outcome[0] == "ok":
                     m: Measurement = outcome[1]
                     store.put_measurement(ident, okey, m)
-                    result = _judge(task.path, m, profile, evaluate)
+                    remark = found.remarks.get(task.path)
+                    result = _judge(shown, m, profile, evaluate, remark)
                     audio_s = m.get("duration_s")
                 else:
                     _, message, retry = outcome
+                    message = readable(message)
                     store.put_error(ident, ENGINE_VERSION, okey, message, retry)
-                    result = FileResult.failed(task.path, message)
+                    result = FileResult.failed(shown, message)
                     audio_s = None
                 _keep(store, run, results, result)
                 progress.advance(audio_s, measured=True)
@@ -220,11 +301,15 @@ def run_batch(
     finally:
         progress.close()
         if own_store:
-            store.close()
+            store.store.close()
     ordered = sorted(results.values(), key=lambda r: (os.path.normcase(r.path), r.path))
+    if store.failure is not None:
+        raise StoreFailed(str(store.failure), run, ordered)
     return run, ordered
 
 
-def _keep(store: Store, run: RunInfo, results: dict[str, FileResult], result: FileResult) -> None:
+def _keep(
+    store: Store | _GuardedStore, run: RunInfo, results: dict[str, FileResult], result: FileResult
+) -> None:
     store.put_result(run.run_id, result)
     results[result.path] = result

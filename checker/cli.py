@@ -14,7 +14,8 @@ import traceback
 from typing import TextIO
 
 from checker import __version__
-from checker.errors import EXIT_UNCHECKED, EXIT_USAGE, CheckerError
+from checker.errors import EXIT_INTERRUPTED, EXIT_UNCHECKED, EXIT_USAGE, CheckerError
+from checker.names import for_terminal
 from checker.threads import claim_process
 
 # The command line owns its process: library pools run one thread (checker/threads.py).
@@ -57,7 +58,7 @@ def main(
     try:
         args = parser.parse_args(argv)
     except _ArgError as exc:
-        print(str(exc), file=err)
+        print(for_terminal(str(exc)), file=err)
         print("try: deliverycheck --help", file=err)
         return EXIT_USAGE
     if not getattr(args, "_run", None):
@@ -68,16 +69,19 @@ def main(
     except CheckerError as exc:
         if args.debug:
             traceback.print_exc(file=err)
-        print(f"deliverycheck: {exc}", file=err)
+        print(for_terminal(f"deliverycheck: {exc}"), file=err)
         return exc.exit_code
     except KeyboardInterrupt:
         print("deliverycheck: interrupted", file=err)
-        return 130
+        return EXIT_INTERRUPTED
     except Exception as exc:  # a bug: say so plainly
         if args.debug:
             traceback.print_exc(file=err)
         print(
-            f"deliverycheck: internal error: {type(exc).__name__}: {exc} (run with --debug for details)",
+            for_terminal(
+                f"deliverycheck: internal error: {type(exc).__name__}: {exc} "
+                "(run with --debug for details)"
+            ),
             file=err,
         )
         return EXIT_UNCHECKED

@@ -11,7 +11,8 @@ Kinds:
   target         |measured - value| <= tolerance_lu (integrated loudness)
   one_of         measured is one of a list (format)
   allowed        value = false: the measured list (e.g. silent channels) must be empty
-  declared       |declared - measured| <= value (bext loudness vs measurement)
+  declared       |declared - measured| <= value, for every carrier's declared key (all
+                 keys but the last; the last is the measured one)
   required       value = true: every listed measured key must be present (not None)
   must_be_true   value = true: the measured flag must be True (stem sets)
   no_cutoff_below  a steep cutoff, if found, must not lie below value
@@ -26,6 +27,7 @@ missing from the values is still "could not be measured".
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -54,7 +56,13 @@ SECTIONS = (
     "downmix",
     "metadata",
     "stems",
+    "encode",
 )
+
+#: The encode round trip a profile may ask for ([encode] codec, bit_rate_kbps): the
+#: codecs libsndfile writes and the bit rates offered (kbit/s).
+ENCODE_CODECS = ("mp3", "vorbis", "opus")
+ENCODE_BIT_RATES = (32, 48, 64, 80, 96, 112, 128, 160, 192, 224, 256, 320)
 
 #: Unit suffix of a key -> the unit shown to people.
 UNIT_SUFFIXES = {
@@ -66,6 +74,7 @@ UNIT_SUFFIXES = {
     "s": "s",
     "hz": "Hz",
     "frames": "frames",
+    "kbps": "kbit/s",
 }
 
 DECLARED_KEYS = (
@@ -97,6 +106,8 @@ class LimitDef:
     #: (bool key, words): when the measured flag is False the value is unreliable, so a
     #: violation is at most a warning and the words say why
     caveat: tuple[str, str] | None = None
+    #: (values, measured, limit) -> words appended to a max/min violation (gain advice)
+    advice: Callable[[Mapping[str, Any], float, float], str] | None = None
 
 
 def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
@@ -104,6 +115,30 @@ def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
 
 
 _LOWER = "lower the level or use a true-peak limiter"
+_REWRITE = "rewrite the declared loudness from the measurement"
+
+
+def _encode_advice(values: Mapping[str, Any], measured: float, limit: float) -> str:
+    """ "lower by 0.8 dB to keep -1.0 dBTP after 128 kbit/s MP3" (the encoded true peak
+    moves with the master's gain, so the excess is the gain to take off)."""
+    excess = math.ceil((measured - limit) * 10 - 1e-9) / 10
+    codec = {"mp3": "MP3", "vorbis": "Ogg Vorbis", "opus": "Opus"}.get(
+        str(values.get("encoded_codec")), str(values.get("encoded_codec"))
+    )
+    rate = values.get("encoded_bit_rate_kbps")
+    after = f"{rate:g} kbit/s {codec}" if isinstance(rate, (int, float)) else codec
+    encoder = values.get("encoded_encoder") or "libsndfile's encoder"
+    return (
+        f" (lower the master by {excess:.1f} dB, or limit its true peak that much lower, "
+        f"to keep {limit:.1f} dBTP after {after}; measured with {encoder} through "
+        "libsndfile: one encoder's behaviour, an estimate for others)"
+    )
+
+
+def _carriers(quantity: str) -> tuple[str, ...]:
+    """The declared_* keys of one quantity: bext's, then iXML's and axml's."""
+    return tuple(f"declared_{c}{quantity}" for c in ("", "ixml_", "axml_"))
+
 
 # fmt: off
 CATALOGUE: tuple[LimitDef, ...] = (
@@ -118,6 +153,11 @@ CATALOGUE: tuple[LimitDef, ...] = (
        hint="re-export with an allowed channel count"),
     _d("containers", ONE_OF, "container", "", "file type", "format", item="str",
        hint="re-export in an allowed file type"),
+    _d("codecs", ONE_OF, "codec", "", "codec", "format", item="str",
+       hint="encode again from the master with an allowed codec"),
+    _d("bit_rate_min_kbps", MIN, "bit_rate_kbps", "kbit/s", "bit rate", "format",
+       none_means_ok=True,  # None: a lossless file (FLAC) has no nominal bit rate
+       hint="encode again from the master (never from a lossy file) at a higher bit rate"),
     _d("duration_min_s", MIN, "duration_s", "s", "duration", "format",
        hint="check the export range: the file is too short"),
     _d("duration_max_s", MAX, "duration_s", "s", "duration", "format",
@@ -126,6 +166,11 @@ CATALOGUE: tuple[LimitDef, ...] = (
        "number of frames the header promises but the file lacks", "format", item="int",
        none_means_ok=True,
        hint="the file was cut off (an interrupted copy or upload): send it again"),
+    _d("container_intact_required", MUST_BE_TRUE, "container_ok", "",
+       "file complete by its container (no chunk or page cut off, no audio past the "
+       "declared length)", "format", item="bool", none_means_ok=True,
+       hint="the file was cut off, or its header misstates its length (players that trust "
+            "it stop early): export or copy it again"),
     # loudness
     _d("integrated_target_lufs", TARGET, "integrated_lufs", "LUFS", "integrated loudness",
        "loudness", hint="apply the gain in the advice"),
@@ -153,7 +198,7 @@ CATALOGUE: tuple[LimitDef, ...] = (
     _d("over_full_scale_samples_max", MAX, "over_full_scale_samples", "",
        "number of samples beyond full scale", "peaks", item="int",
        hint="float samples above 1.0 clip when converted to fixed point: lower the level"),
-    _d("nonfinite_samples_max", MAX, "nonfinite_samples", "", "number of NaN/Inf samples",
+    _d("nonfinite_samples_max", MAX, "nonfinite_samples", "", "number of NaN, Inf or out-of-range samples",
        "peaks", item="int", hint="the file holds invalid samples: re-export it"),
     # levels
     _d("dc_offset_max_dbfs", MAX, "dc_offset_dbfs", "dBFS", "DC offset", "levels",
@@ -216,26 +261,33 @@ CATALOGUE: tuple[LimitDef, ...] = (
        "maximum short-term loudness of the stereo fold-down", "downmix",
        applies_if="downmix_method",
        hint="the fold-down is louder than allowed: check the centre and surround levels"),
-    # metadata (Broadcast WAV bext, EBU Tech 3285 v2)
+    # metadata: declared loudness in bext (EBU Tech 3285 v2), iXML and axml (ADM
+    # loudnessMetadata), each carrier checked; gain tags (R128 in Opus, ReplayGain)
     _d("declared_integrated_tolerance_lu", DECLARED,
-       ("declared_integrated_lufs", "integrated_lufs"), "LU", "declared integrated loudness",
-       "metadata", hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("integrated_lufs"), "integrated_lufs"), "LU",
+       "declared integrated loudness", "metadata", hint=_REWRITE),
     _d("declared_loudness_range_tolerance_lu", DECLARED,
-       ("declared_loudness_range_lu", "loudness_range_lu"), "LU", "declared loudness range",
-       "metadata", hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("loudness_range_lu"), "loudness_range_lu"), "LU", "declared loudness range",
+       "metadata", hint=_REWRITE),
     _d("declared_true_peak_tolerance_db", DECLARED,
-       ("declared_true_peak_dbtp", "true_peak_dbtp"), "dB", "declared true peak", "metadata",
-       hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("true_peak_dbtp"), "true_peak_dbtp"), "dB", "declared true peak", "metadata",
+       hint=_REWRITE),
     _d("declared_momentary_tolerance_lu", DECLARED,
-       ("declared_max_momentary_lufs", "max_momentary_lufs"), "LU",
-       "declared maximum momentary loudness", "metadata",
-       hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("max_momentary_lufs"), "max_momentary_lufs"), "LU",
+       "declared maximum momentary loudness", "metadata", hint=_REWRITE),
     _d("declared_short_term_tolerance_lu", DECLARED,
-       ("declared_max_short_term_lufs", "max_short_term_lufs"), "LU",
-       "declared maximum short-term loudness", "metadata",
-       hint="rewrite the bext loudness fields from the measurement"),
+       (*_carriers("max_short_term_lufs"), "max_short_term_lufs"), "LU",
+       "declared maximum short-term loudness", "metadata", hint=_REWRITE),
+    _d("gain_tag_tolerance_lu", DECLARED,
+       ("declared_gain_tag_integrated_lufs", "integrated_lufs"), "LU",
+       "integrated loudness implied by the track gain tag", "metadata",
+       hint="rewrite the gain tag from the measurement: players apply it as it is"),
     _d("declared_loudness_required", REQUIRED, DECLARED_KEYS, "", "bext loudness fields",
        "metadata", item="bool", hint="write a version 2 bext chunk with all five loudness values"),
+    # encode round trip (only measured when the profile's [encode] section asks for it)
+    _d("encoded_true_peak_max_dbtp", MAX, "encoded_true_peak_dbtp", "dBTP",
+       "true peak after the encode round trip", "encode", advice=_encode_advice,
+       hint="leave more headroom for the codec"),
     # stem sets (issue 8): judged on the set-level values, not on each stem
     _d("formats_must_match", MUST_BE_TRUE, "set_formats_match", "", "stem formats match",
        "stems", item="bool", scope=SET,
@@ -285,11 +337,21 @@ def _missing_frames(v: Mapping[str, Any]) -> int | None:
     return None
 
 
+def _container_ok(v: Mapping[str, Any]) -> bool | None:
+    """The container is intact, or its only damage is frames missing from the end, which
+    truncation_max_frames counts (so a cut-short file is not flagged twice)."""
+    intact = v.get("container_intact")
+    if intact is None:
+        return None
+    return intact or bool(_missing_frames(v))
+
+
 #: Values computed from other measured values, for limits: key -> (inputs, function).
 #: Added only when absent and when every input key is present in the values.
 DERIVED: dict[str, tuple[tuple[str, ...], Callable[[Mapping[str, Any]], Any]]] = {
     "unused_low_bits": (("subtype", "format_bits", "effective_bits"), _unused_low_bits),
     "missing_frames": (("frames_declared", "frames"), _missing_frames),
+    "container_ok": (("container_intact", "frames_declared", "frames"), _container_ok),
 }
 
 

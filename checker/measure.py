@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import os
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -9,7 +10,9 @@ from typing import Any
 import numpy as np
 
 from checker import __version__
-from checker.audio import Block, StreamInfo, read_blocks
+from checker.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range, read_blocks
+from checker.carriers import add_player_loudness, read_carriers
+from checker.containers import ContainerLength, length_values, read_container_length, with_declared
 from checker.errors import AudioReadError, UnsupportedAudioError
 from checker.layout import (
     Layout,
@@ -19,15 +22,19 @@ from checker.layout import (
     mask_disagreement,
     parse_layout,
 )
+from checker.limitdefs import UNIT_SUFFIXES
+from checker.lossy import finish_lossy, read_lossy
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
+from checker.roundtrip import add_shifts, round_trip_meters
 from checker.serial import plain
+from checker.streamlength import FlacUnknownLength
 from checker.threads import one_thread_pools
 from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine6"
+ENGINE_VERSION = f"{__version__}+engine8"  # 7: containers, extremes; 8: carriers, lossy
 
 
 class FlatValues:
@@ -110,6 +117,23 @@ def stream_values(info: StreamInfo, frames: int, layout: Layout) -> dict[str, An
     }
 
 
+#: The note of a value that came out NaN or +inf (a guard: the meters should not produce one).
+NOT_MEASURABLE = "not measurable: the arithmetic overflowed on these samples"
+
+#: Values whose +inf has a meaning: the headroom of digital silence (the mirror of its
+#: -inf sample peak, checker/meters/levels.py).
+UNBOUNDED_OK = ("headroom_db",)
+
+#: (true peak, sample peak, their time keys) of the same signal: the file and its downmix.
+PEAK_PAIRS = (
+    ("true_peak_dbtp", "sample_peak_dbfs", "true_peak_time_s", "sample_peak_time_s"),
+    ("downmix_true_peak_dbtp", "downmix_sample_peak_dbfs", "", ""),
+)
+
+#: What a file with no frames is called, in its findings and in every undefined value's note.
+NO_AUDIO = "no audio (0 frames)"
+
+
 def stream_findings(info: StreamInfo, frames: int) -> list[str]:
     findings = []
     declared = info.frames_declared
@@ -123,7 +147,7 @@ def stream_findings(info: StreamInfo, frames: int) -> list[str]:
     if declared is None:
         findings.append(f"header gives no length; {frames / rate:.3f} s ({frames} frames) decoded")
     if frames == 0:
-        findings.append("no audio: 0 frames decoded")
+        findings.append(NO_AUDIO)
     return findings
 
 
@@ -181,7 +205,11 @@ def check_header(path: str, info: StreamInfo, header: WavHeader | None) -> Strea
 
 
 def open_error(path: str, exc: AudioReadError) -> AudioReadError:
-    """The open failure, naming an undecodable WAV format tag, plus the header's findings."""
+    """The open failure, naming an undecodable WAV format tag, plus the header's findings
+    (the WAV header's, or another container's length findings)."""
+    length = read_container_length(path)
+    if length is not None and length.findings:
+        return type(exc)(f"{exc}; header: {'; '.join(length.findings)}")
     header = read_wav_header(path)
     tag = _wav_tag(header) if header is not None else None
     if tag is not None and tag not in DECODABLE_TAGS and not isinstance(exc, UnsupportedAudioError):
@@ -201,15 +229,44 @@ def _stat(path: str) -> tuple[int, int]:
     return (st.st_size, st.st_mtime_ns)
 
 
+def name_no_audio(values: dict[str, Any]) -> None:
+    """A file without frames: every undefined value's note says so, instead of the meter's
+    reason for a short file ("shorter than one 400 ms block")."""
+    for key, value in values.items():
+        if key.endswith("_note") and value and key != "container_intact_note":
+            values[key] = NO_AUDIO
+
+
 def has_nonfinite(block: Block) -> bool:
-    """True when a float block holds NaN or Inf (integer PCM never does)."""
-    return block.raw is None and not np.isfinite(block.x).all()
+    """True when a float block holds NaN, Inf or an out-of-range sample."""
+    return out_of_range(block)
 
 
 def zero_nonfinite(block: Block) -> None:
-    """Set NaN/Inf samples to 0 in place (the buffer is the reader's own, refilled on the
-    next read), once, so every meter after the levels meter sees finite samples."""
-    np.copyto(block.x, 0.0, where=~np.isfinite(block.x))
+    """Set NaN/Inf and out-of-range samples to 0 in place (the buffer is the reader's own,
+    refilled on the next read), once, so every meter after the levels meter sees finite
+    samples whose squares and sums cannot overflow."""
+    np.copyto(block.x, 0.0, where=~(np.abs(block.x) <= MAX_SAMPLE_MAGNITUDE))
+
+
+def guard_values(values: dict[str, Any]) -> None:
+    """The last line of defence before values leave: true peak is never below sample peak
+    (the interpolated signal passes through every sample), and no number is NaN or +inf
+    (None with a note instead; -inf stays: digital silence; so does UNBOUNDED_OK's +inf)."""
+    for tp_key, sp_key, tp_time, sp_time in PEAK_PAIRS:
+        tp, sp = values.get(tp_key), values.get(sp_key)
+        if isinstance(tp, float) and isinstance(sp, float) and math.isfinite(sp) and tp < sp:
+            values[tp_key] = sp
+            if tp_time in values and sp_time in values:
+                values[tp_time] = values[sp_time]
+    for key, value in list(values.items()):
+        if key in UNBOUNDED_OK:
+            continue
+        if isinstance(value, float) and (math.isnan(value) or value == math.inf):
+            values[key] = None
+            stem = key.rsplit("_", 1)[0] if key.rsplit("_", 1)[-1] in UNIT_SUFFIXES else key
+            values.setdefault(f"{stem}_note", None)
+            values[f"{stem}_note"] = values[f"{stem}_note"] or NOT_MEASURABLE
 
 
 def measure(
@@ -228,20 +285,30 @@ def measure(
 
 def _measure(path: str, options: MeasureOptions, read_ahead: bool) -> Measurement:
     before = _stat(str(path))
-    hooks: list = []  # the meters' prepare steps, filled once the meters exist
+    length = read_container_length(str(path))  # AIFF, W64, AU, CAF, FLAC, Ogg; else None
+    source = _unknown_length_view(str(path), length)
     try:
-        info, blocks = read_blocks(
-            str(path), options.block_frames, read_ahead=read_ahead, prepare=hooks
-        )
-    except AudioReadError as exc:  # say what the WAV header reader saw, if anything
-        raise open_error(str(path), exc) from None
-    header = read_wav_header(str(path))  # header only (seeks past the audio); None if not WAV
-    info = check_header(str(path), info, header)
-    layout = resolve_layout(info, options, header)
-    meters = [cls(info, layout, options) for cls in meter_classes()]
-    # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
-    # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
-    hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
+        return _measure(str(path), options, read_ahead, before, length, source)
+    finally:
+        if source is not None:
+            source.close()
+
+
+def _unknown_length_view(path: str, length: ContainerLength | None) -> FlacUnknownLength | None:
+    """A FLAC whose last frame header shows more frames than STREAMINFO declares is read
+    with the total marked unknown: libsndfile stops at the declared total otherwise."""
+    if length is None or length.kind != "FLAC" or length.frames_declared is None:
+        return None
+    if length.frames_held is None or length.frames_held <= length.frames_declared:
+        return None
+    try:
+        return FlacUnknownLength(path)
+    except OSError:
+        return None
+
+
+def _feed_all(blocks, meters: list) -> int:
+    """Feed every block to every meter; the frames decoded."""
     # Meters that count NaN/Inf (class attribute sees_nonfinite = True) get the untouched
     # block; every other meter then gets those samples as 0.
     counting = [m for m in meters if getattr(m, "sees_nonfinite", False)]
@@ -258,10 +325,52 @@ def _measure(path: str, options: MeasureOptions, read_ahead: bool) -> Measuremen
         else:
             for meter in meters:
                 meter.feed(block)
+    return frames
+
+
+def _measure(
+    path: str,
+    options: MeasureOptions,
+    read_ahead: bool,
+    before: tuple[int, int],
+    length: ContainerLength | None,
+    source: FlacUnknownLength | None,
+) -> Measurement:
+    hooks: list = []  # the meters' prepare steps, filled once the meters exist
+    try:
+        info, blocks = read_blocks(
+            path, options.block_frames, read_ahead=read_ahead, prepare=hooks, source=source
+        )
+    except AudioReadError as exc:  # say what the header readers saw, if anything
+        raise open_error(path, exc) from None
+    header = read_wav_header(path)  # header only (seeks past the audio); None if not WAV
+    info = with_declared(check_header(path, info, header), length)
+    layout = resolve_layout(info, options, header)
+    meters = [cls(info, layout, options) for cls in meter_classes()]
+    meters += round_trip_meters(info, layout, options)  # only when a profile asks for one
+    # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
+    # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
+    hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
+    try:
+        frames = _feed_all(blocks, meters)
+    except AudioReadError as exc:  # a cut FLAC loses sync at its end: say so
+        if length is None or not length.findings:
+            raise
+        raise type(exc)(f"{exc}; header: {'; '.join(length.findings)}") from None
     values = stream_values(info, frames, layout)
     values.update(header.values() if header else empty_values())
+    values.update(read_carriers(path, header))  # iXML, axml, Vorbis/Opus gain tags
+    values.update(
+        read_lossy(
+            path, info.subtype, info.container, info.sample_rate_hz, info.channels, info.format_bits
+        )
+    )  # codec, bit rate, gapless
+    finish_lossy(values, frames)
     findings = stream_findings(info, frames)
-    after = _stat(str(path))
+    container, container_findings = length_values(info, frames, length, header)
+    values.update(container)
+    findings.extend(container_findings)
+    after = _stat(path)
     if after != before:
         findings.append(
             f"file changed while it was read (size {before[0]} -> {after[0]} bytes): "
@@ -277,8 +386,15 @@ def _measure(path: str, options: MeasureOptions, read_ahead: bool) -> Measuremen
         findings.extend(getattr(result, "findings", ()) or ())
         if hasattr(meter, "series"):
             series.update(meter.series())
+    add_player_loudness(values)
+    add_shifts(values)
+    findings.extend(values["metadata_findings"])
+    findings.extend(values["lossy_findings"])
+    guard_values(values)
+    if frames == 0:
+        name_no_audio(values)
     return Measurement(
-        path=str(path),
+        path=path,
         values=plain(values),  # plain data; NaN would become None (plain maps it)
         timeline=build_timeline(series),
         findings=tuple(findings),

@@ -19,6 +19,8 @@ from checker.limitdefs import (
     ALLOWED,
     BY_KEY,
     DECLARED,
+    ENCODE_BIT_RATES,
+    ENCODE_CODECS,
     MAX,
     MIN,
     MUST_BE_TRUE,
@@ -34,7 +36,11 @@ META_KEYS = ("name", "title", "version", "description", "extends")
 SEVERITIES = ("fail", "warn")
 MONO_CONVENTIONS = ("single_channel", "dual_mono")
 #: Settings that are not limits: (section, key) -> allowed values.
-SETTINGS = {("loudness", "mono_loudness"): MONO_CONVENTIONS}
+SETTINGS = {
+    ("loudness", "mono_loudness"): MONO_CONVENTIONS,
+    ("encode", "codec"): ENCODE_CODECS,
+    ("encode", "bit_rate_kbps"): ENCODE_BIT_RATES,
+}
 #: The channel order of the delivery's files (a setting, not a limit): "L C R Ls Rs LFE".
 LAYOUT_SETTING = ("format", "channel_layout")
 #: An entry that drops a limit inherited from the parent.
@@ -44,24 +50,67 @@ OFF = "off"
 # ---------------------------------------------------------------- helpers
 
 
-def show_value(v: Any) -> str:
+#: Values are shown in messages up to this many characters (a 400-digit number or a deeply
+#: nested list is summarised, not echoed).
+SHOW_MAX_CHARS = 60
+#: Deeper nesting than this in a profile is refused (no limit needs more than a list).
+MAX_NESTING = 8
+#: Field names a message may repeat from another file (anything else is "a key").
+FIELDS = ("value", "severity", "source", "tolerance_lu", "warn_value")
+
+
+def show_value(v: Any, depth: int = 0) -> str:
+    """``v`` as TOML-like text, at most SHOW_MAX_CHARS characters."""
+    if depth > MAX_NESTING:
+        return "..."
     if isinstance(v, str):
-        return f'"{v}"'
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, dict):
-        return "{" + ", ".join(f"{k} = {show_value(x)}" for k, x in v.items()) + "}"
-    if isinstance(v, list):
-        return "[" + ", ".join(show_value(x) for x in v) + "]"
-    return str(v)
+        text = f'"{v}"'
+    elif isinstance(v, bool):
+        text = "true" if v else "false"
+    elif isinstance(v, int) and v.bit_length() > 64:
+        text = f"a {len(str(v))}-digit integer"
+    elif isinstance(v, dict):
+        text = "{" + ", ".join(f"{k} = {show_value(x, depth + 1)}" for k, x in v.items()) + "}"
+    elif isinstance(v, list):
+        text = "[" + ", ".join(show_value(x, depth + 1) for x in v) + "]"
+    else:
+        text = str(v)
+    if len(text) > SHOW_MAX_CHARS:
+        text = f"{text[: SHOW_MAX_CHARS - 20]}... ({len(text)} characters)"
+    return text
 
 
 def err(where: str, key: str, got: Any, expected: str) -> ProfileError:
-    return ProfileError(f"{where}: {key} = {show_value(got)} (expected {expected})")
+    exc = ProfileError(f"{where}: {key} = {show_value(got)} (expected {expected})")
+    # The same without the value and with unknown key names hidden, for when the file is
+    # not the one the user named (a parent reached through extends).
+    shown = key if all(_known(part) for part in key.split(".")) else "a key"
+    exc.redacted = f"{where}: {shown} is not valid (expected {expected})"
+    return exc
+
+
+def redacted(exc: ProfileError) -> str:
+    """The message of ``exc`` without values or key names read from the file."""
+    return getattr(exc, "redacted", None) or str(exc)
+
+
+def _known(part: str) -> bool:
+    return (
+        part in BY_KEY
+        or part in META_KEYS
+        or part in SECTIONS
+        or part in FIELDS
+        or any(part == key for _section, key in SETTINGS)
+    )
 
 
 def is_number(v: Any) -> bool:
-    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        return False
+    try:
+        return math.isfinite(float(v))
+    except OverflowError:  # an integer beyond the float range
+        return False
 
 
 def _unit_word(d: LimitDef) -> str:
@@ -79,11 +128,43 @@ def _read_toml(path: Path) -> dict[str, Any]:
     except UnicodeDecodeError:
         raise ProfileError(f"{path}: not UTF-8 text (expected a TOML profile)") from None
     try:
-        return tomllib.loads(text)
+        raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         m = re.search(r"line (\d+)", str(exc))
         line = f", line {m.group(1)}" if m else ""
         raise ProfileError(f"{path}{line}: TOML syntax error: {exc}") from None
+    except RecursionError:
+        raise ProfileError(
+            f"{path}: nesting too deep (expected at most {MAX_NESTING} levels of tables and lists)"
+        ) from None
+    except ValueError as exc:  # e.g. an integer of more than 4300 digits
+        raise ProfileError(f"{path}: unreadable value ({_first_words(exc)})") from None
+    if _depth(raw) > MAX_NESTING:
+        raise ProfileError(
+            f"{path}: nesting too deep (expected at most {MAX_NESTING} levels of tables and lists)"
+        )
+    return raw
+
+
+def _first_words(exc: BaseException) -> str:
+    return str(exc).split(";")[0].split(":")[0].strip() or type(exc).__name__
+
+
+def _depth(value: Any) -> int:
+    """Nesting depth of tables and lists, without recursion (what tomllib parsed)."""
+    deepest, stack = 0, [(value, 0)]
+    while stack:
+        v, d = stack.pop()
+        if isinstance(v, dict):
+            children = v.values()
+        elif isinstance(v, list):
+            children = v
+        else:
+            continue
+        deepest = max(deepest, d + 1)
+        if d + 1 <= MAX_NESTING:
+            stack.extend((c, d + 1) for c in children)
+    return deepest
 
 
 def _unknown_key(where: str, section: str, key: str, got: Any) -> ProfileError:

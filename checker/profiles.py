@@ -48,6 +48,7 @@ from checker.profile_syntax import (  # noqa: F401  (re-exported for callers)
     SEVERITIES,
     err,
     parse_layer,
+    redacted,
 )
 
 BUILTIN_DIR = Path(__file__).parent / "profiles"
@@ -104,6 +105,8 @@ class Profile:
     #: Channel order of the delivery's files with as many channels ("L C R Ls Rs LFE"), or None.
     channel_layout: str | None = None
     lineage: tuple[str, ...] = field(default_factory=tuple)  # root ancestor first, self last
+    #: The encode round trip asked for ([encode] codec, bit_rate_kbps), or None.
+    encode: tuple[str, float] | None = None
 
     def limit(self, key: str) -> Limit | None:
         for lim in self.limits:
@@ -169,27 +172,85 @@ def _find(name_or_path: str, relative_to: Path | None = None) -> Path:
     raise ProfileError(f'profile = "{s}" (expected a built-in profile: {names}; or a .toml path)')
 
 
-def _resolve(path: Path, seen: tuple[Path, ...]) -> tuple[dict, dict, dict, tuple[str, ...]]:
-    real = path.resolve()
-    if real in seen:
-        chain = " -> ".join(str(p) for p in (*seen, real))
-        raise ProfileError(
-            f"{path}: extends forms a cycle: {chain} (expected a chain ending in a profile without extends)"
-        )
-    layer = parse_layer(path)
-    meta, settings, limits = {}, {}, {}
-    lineage: tuple[str, ...] = ()
-    parent = layer["meta"].get("extends")
-    if parent is not None:
+#: The longest ``extends`` chain: the file named plus this many ancestors.
+MAX_EXTENDS_DEPTH = 16
+
+
+def _chain(path: Path) -> list[tuple[Path, dict[str, Any]]]:
+    """The file and its ancestors through ``extends``, each parsed: [(path, layer)], the
+    file named first. Errors in an ancestor name it but never repeat its contents."""
+    chain: list[tuple[Path, dict[str, Any]]] = []
+    seen: list[Path] = []
+    while True:
+        real = path.resolve()
+        if real in seen:
+            cycle = " -> ".join(str(p) for p in (*seen, real))
+            raise ProfileError(
+                f"{chain[0][0]}: extends forms a cycle: {cycle} "
+                "(expected a chain ending in a profile without extends)"
+            )
+        if len(chain) > MAX_EXTENDS_DEPTH:
+            raise ProfileError(
+                f"{chain[0][0]}: extends chain longer than {MAX_EXTENDS_DEPTH} parents "
+                f"(expected at most {MAX_EXTENDS_DEPTH}; stopped at {path})"
+            )
+        seen.append(real)
         try:
-            ppath = _find(parent, relative_to=path.parent)
+            layer = parse_layer(path)
         except ProfileError as exc:
-            raise ProfileError(f'{path}: extends = "{parent}": parent not found ({exc})') from None
-        meta, settings, limits, lineage = _resolve(ppath, (*seen, real))
+            if not chain:
+                raise
+            raise _in_parent(chain, exc) from None
+        chain.append((path, layer))
+        parent = layer["meta"].get("extends")
+        if parent is None:
+            return chain
+        try:
+            path = _find(parent, relative_to=path.parent)
+        except ProfileError as exc:
+            if len(chain) == 1:
+                raise ProfileError(
+                    f'{path}: extends = "{parent}": parent not found ({exc})'
+                ) from None
+            raise ProfileError(
+                f"{chain[0][0]}: extends (from {path}): parent not found "
+                "(expected a built-in profile name or a readable .toml file)"
+            ) from None
+
+
+def _in_parent(chain: list[tuple[Path, dict[str, Any]]], exc: ProfileError) -> ProfileError:
+    """An error in an ancestor, told from the file the user named, without the ancestor's
+    values (they may be anything: a path can point extends at any file)."""
+    child, layer = chain[-1]
+    return ProfileError(
+        f'{chain[0][0]}: extends = "{layer["meta"]["extends"]}" (from {child}): '
+        f"the parent is not a valid profile: {redacted(exc)}"
+    )
+
+
+def _resolve(path: Path) -> tuple[dict, dict, dict, tuple[str, ...]]:
+    chain = _chain(path)
+    meta: dict[str, Any] = {}
+    settings: dict[str, Any] = {}
+    limits: dict[str, Any] = {}
+    for depth in range(len(chain) - 1, -1, -1):
+        layer_path, layer = chain[depth]
         meta = {k: v for k, v in meta.items() if k != "extends"}
-    meta.update(layer["meta"])
-    settings.update(layer["settings"])
-    limits = {k: dict(v) for k, v in limits.items()}
+        meta.update(layer["meta"])
+        settings.update(layer["settings"])
+        try:
+            limits = _merge(layer_path, layer, limits)
+        except ProfileError as exc:
+            if depth == 0:
+                raise
+            raise _in_parent(chain[: depth + 1], exc) from None
+    lineage = tuple(layer["meta"]["name"] for _, layer in reversed(chain))
+    return meta, settings, limits, lineage
+
+
+def _merge(path: Path, layer: dict[str, Any], inherited_limits: dict) -> dict:
+    """The limits of ``layer`` over the inherited ones."""
+    limits = {k: dict(v) for k, v in inherited_limits.items()}
     for key, entry in layer["limits"].items():
         section = BY_KEY[key].section
         if entry == OFF:
@@ -221,7 +282,7 @@ def _resolve(path: Path, seen: tuple[Path, ...]) -> tuple[dict, dict, dict, tupl
                     'on a limit with severity = "fail"',
                 )
         limits[key] = merged
-    return meta, settings, limits, (*lineage, layer["meta"]["name"])
+    return limits
 
 
 def load_profile(name_or_path: str) -> Profile:
@@ -230,7 +291,7 @@ def load_profile(name_or_path: str) -> Profile:
 
 
 def _load_path(path: Path) -> Profile:
-    meta, settings, limits, lineage = _resolve(path, ())
+    meta, settings, limits, lineage = _resolve(path)
     ordered = tuple(
         Limit(
             key=d.key,
@@ -254,7 +315,22 @@ def _load_path(path: Path) -> Profile:
         mono_loudness=settings.get("mono_loudness", "single_channel"),
         channel_layout=settings.get("channel_layout"),
         lineage=lineage,
+        encode=_encode_request(path, settings, limits),
     )
+
+
+def _encode_request(path: Path, settings: dict, limits: dict) -> tuple[str, float] | None:
+    codec, rate = settings.get("codec"), settings.get("bit_rate_kbps")
+    if (codec is None) != (rate is None):
+        raise ProfileError(
+            f"{path}: encode = codec {codec!r}, bit_rate_kbps {rate!r} (expected both or neither)"
+        )
+    if codec is None and "encoded_true_peak_max_dbtp" in limits:
+        raise ProfileError(
+            f"{path}: encode.encoded_true_peak_max_dbtp without a round trip (expected "
+            '[encode] codec = "mp3" and bit_rate_kbps = 128, for example)'
+        )
+    return None if codec is None else (str(codec), float(rate))
 
 
 def _typed(d: LimitDef, v: Any) -> Any:

@@ -12,6 +12,9 @@ from typing import Any
 from checker.measure import Measurement
 from checker.verdict import ERROR, Verdict
 
+#: The status written in the reports for a file that is clearly not a deliverable.
+NOT_CHECKED = "not checked"
+
 
 @dataclass(frozen=True)
 class FileResult:
@@ -68,6 +71,9 @@ class RunInfo:
     profile_limits: tuple[dict[str, Any], ...] = field(default_factory=tuple)
     engine_version: str = ""
     finished_at: str | None = None
+    #: files under the inputs that are clearly not deliverables, each {"path", "reason"}:
+    #: listed as "not checked" in every report (checker.discover)
+    not_checked: tuple[dict[str, str], ...] = field(default_factory=tuple)
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -79,4 +85,5 @@ class RunInfo:
             "profile_title": self.profile_title,
             "profile_limits": [dict(x) for x in self.profile_limits],
             "engine_version": self.engine_version,
+            "not_checked": [dict(x) for x in self.not_checked],
         }

@@ -46,9 +46,9 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import soundfile as sf
 
 from checker.audio import DEFAULT_BLOCK_FRAMES, Block, StreamInfo, read_blocks
+from checker.discover import is_audio
 from checker.errors import AudioReadError
 from checker.measure import FlatValues, Measurement, resolve_layout
 from checker.meters.base import MeasureOptions
@@ -69,24 +69,20 @@ class StemSet:
     mix_path: str | None = None
 
 
-def audio_extensions() -> set[str]:
-    return {ext.lower() for ext in sf.available_formats()} | {"wav", "aif", "aiff", "mp3", "ogg"}
-
-
 def stem_set_from_folder(folder: str, mix_path: str | None = None) -> StemSet:
     """The audio files directly inside ``folder`` (not recursive), sorted by name.
 
-    The mix is left out of the stems when it lies in the same folder. Hidden
-    files are ignored. The set's name is the folder's name.
+    What is audio is decided by checker.discover.classify, the same function that
+    decides which files a batch measures: every file it counts as audio is a stem
+    (one it cannot read makes the set an error, never a smaller sum that passes);
+    text, images, sidecars and ``._*`` resource forks are not. The mix is left out
+    of the stems when it lies in the same folder. The set's name is the folder's name.
     """
     folder = os.path.abspath(folder)
-    exts = audio_extensions()
     mix_real = os.path.realpath(mix_path) if mix_path else None
     stems = []
     for entry in sorted(os.scandir(folder), key=lambda e: e.name):
-        if entry.name.startswith(".") or not entry.is_file():
-            continue
-        if entry.name.rsplit(".", 1)[-1].lower() not in exts or "." not in entry.name:
+        if not entry.is_file() or not is_audio(entry.path):
             continue
         if mix_real and os.path.realpath(entry.path) == mix_real:
             continue

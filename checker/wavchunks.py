@@ -49,6 +49,9 @@ BEXT_NOT_SET = 0x7FFF
 BEXT_FIXED_BYTES = 602
 BEXT_READ_BYTES = 422  # enough for the version and the five loudness fields
 
+#: Words of the finding on bytes after the 'data' chunk that are not a chunk (probably
+#: audio past a 'data' size that is too small).
+WAV_TRAILING_AUDIO = "probably audio past a 'data' size that is too small"
 #: A chunk list longer than this is not followed further (a file of empty chunks).
 MAX_CHUNKS = 4096
 
@@ -157,8 +160,7 @@ def _read(fh: BinaryIO, file_size: int) -> WavHeader | None:
                 findings.append(
                     f"{file_size - pos} bytes after the 'data' chunk ({chunks[-1].size} bytes "
                     f"declared) are not a chunk (unreadable chunk header at byte {pos}): "
-                    "probably audio past a 'data' size that is too small; only the declared "
-                    "audio was measured"
+                    f"{WAV_TRAILING_AUDIO}; only the declared audio was measured"
                 )
             else:
                 findings.append(

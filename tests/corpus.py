@@ -266,6 +266,123 @@ def directory_named_wav(d: Path) -> Path:
     return p
 
 
+# --- Containers other than WAV (length lies and cut files) ---------------------------------
+# Each holds the -20 dBFS 1 kHz sine; "cut" items keep 2/3 of a 3.000 s file's audio bytes.
+
+CUT_FRAMES = 96_000  # 2.000 s at 48 kHz of the 3.000 s (144000-frame) sine
+
+
+def extended_80(value: int) -> bytes:
+    """An integer as the 80-bit IEEE 754 extended float of AIFF's COMM sample rate
+    (sign + 15-bit exponent biased by 16383, 64-bit mantissa with an explicit integer bit)."""
+    exponent = value.bit_length() - 1
+    return struct.pack(">HQ", 16383 + exponent, value << (63 - exponent))
+
+
+def aiff_bytes(pcm_be: bytes, frames: int, channels: int = 1, rate: int = RATE_HZ) -> bytes:
+    """AIFF: "FORM" size "AIFF", COMM (channels, frames, 16 bits, rate), SSND (offset 0,
+    block size 0, samples); big-endian; sizes true for ``pcm_be`` (Apple AIFF 1.3)."""
+    comm = struct.pack(">hIh", channels, frames, 16) + extended_80(rate)
+    ssnd = struct.pack(">II", 0, 0) + pcm_be
+    body = b"AIFF" + b"COMM" + struct.pack(">I", len(comm)) + comm
+    body += b"SSND" + struct.pack(">I", len(ssnd)) + ssnd
+    return b"FORM" + struct.pack(">I", len(body)) + body
+
+
+def sine_pcm16_be(duration_s: float) -> bytes:
+    return np.frombuffer(sine_pcm16(duration_s), "<i2").astype(">i2").tobytes()
+
+
+def aiff_cut(d: Path) -> Path:
+    """AIFF whose COMM and SSND declare 3.000 s; the file ends after 2.000 s of samples."""
+    p = d / "cut.aiff"
+    p.write_bytes(aiff_bytes(sine_pcm16_be(3.0), 3 * RATE_HZ)[: 54 + 2 * CUT_FRAMES])
+    return p
+
+
+def au_bytes(pcm_be: bytes, data_size: int | None = None) -> bytes:
+    """Sun AU: ".snd", data offset 24, data size, encoding 3 (16-bit linear), rate, 1 channel."""
+    size = len(pcm_be) if data_size is None else data_size
+    return b".snd" + struct.pack(">5I", 24, size, 3, RATE_HZ, 1) + pcm_be
+
+
+def au_cut(d: Path) -> Path:
+    """AU declaring 3.000 s of data; 2.000 s present."""
+    p = d / "cut.au"
+    p.write_bytes(au_bytes(sine_pcm16_be(2.0), data_size=2 * 3 * RATE_HZ))
+    return p
+
+
+def _written_then_cut(d: Path, name: str, fmt: str, subtype: str) -> Path:
+    """A 3.000 s file written by libsndfile, then cut to the first 2/3 of its bytes."""
+    p = d / name
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * np.arange(3 * RATE_HZ) / RATE_HZ)
+    sf.write(str(p), x, RATE_HZ, format=fmt, subtype=subtype)
+    raw = p.read_bytes()
+    p.write_bytes(raw[: len(raw) * 2 // 3])
+    return p
+
+
+def w64_cut(d: Path) -> Path:
+    return _written_then_cut(d, "cut.w64", "W64", "PCM_16")
+
+
+def caf_cut(d: Path) -> Path:
+    return _written_then_cut(d, "cut.caf", "CAF", "PCM_16")
+
+
+def flac_cut(d: Path) -> Path:
+    return _written_then_cut(d, "cut.flac", "FLAC", "PCM_16")
+
+
+def ogg_cut(d: Path) -> Path:
+    return _written_then_cut(d, "cut.ogg", "OGG", "VORBIS")
+
+
+def voc_cut(d: Path) -> Path:
+    """Creative VOC (no reader of ours: libsndfile's own log is the evidence)."""
+    return _written_then_cut(d, "cut.voc", "VOC", "PCM_16")
+
+
+def half_length_samples() -> np.ndarray:
+    """2.000 s: the -20 dBFS sine, then a second half driven 20x into full scale (clipped)."""
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * np.arange(2 * RATE_HZ) / RATE_HZ)
+    x[RATE_HZ:] = np.clip(20 * x[RATE_HZ:], -1.0, 1.0)
+    return x
+
+
+def flac_half_length(d: Path) -> Path:
+    """A 2.000 s FLAC whose STREAMINFO total samples is patched to 48000 (half): the clipped
+    second half lies past the declared length (byte layout: see flac_no_length)."""
+    p = d / "half-length.flac"
+    sf.write(str(p), half_length_samples(), RATE_HZ, subtype="PCM_16", format="FLAC")
+    raw = bytearray(p.read_bytes())
+    assert raw[:4] == b"fLaC" and raw[4] & 0x7F == 0  # first block is STREAMINFO
+    half = RATE_HZ
+    raw[21] = (raw[21] & 0xF0) | (half >> 32)
+    raw[22:26] = (half & 0xFFFFFFFF).to_bytes(4, "big")
+    p.write_bytes(bytes(raw))
+    return p
+
+
+#: Out-of-range float items: 64-bit float WAV, 1.000 s mono: the -20 dBFS sine for the first
+#: 0.500 s, then alternating +-EXTREME for the rest (24000 samples from 0.500 s).
+EXTREME_FIRST_FRAME = 24_000
+
+
+def float_extreme(d: Path, value: float = 1e200, name: str = "extreme-1e200.wav") -> Path:
+    p = d / name
+    x = 0.1 * np.sin(2 * np.pi * 1000.0 * np.arange(RATE_HZ) / RATE_HZ)
+    x[EXTREME_FIRST_FRAME::2] = value
+    x[EXTREME_FIRST_FRAME + 1 :: 2] = -value
+    p.write_bytes(wav_bytes(x.astype("<f8").tobytes(), bits=64, format_tag=FORMAT_FLOAT))
+    return p
+
+
+def float_extreme_f32_max(d: Path) -> Path:
+    return float_extreme(d, 3.4e38, "extreme-3.4e38.wav")
+
+
 #: name -> maker of every broken item (hostile names are separate: they hold good audio).
 CORPUS: dict[str, Callable[[Path], Path]] = {
     "zero_byte": zero_byte,
@@ -290,6 +407,16 @@ CORPUS: dict[str, Callable[[Path], Path]] = {
     "unreadable": unreadable,
     "dangling_symlink": dangling_symlink,
     "directory_named_wav": directory_named_wav,
+    "aiff_cut": aiff_cut,
+    "au_cut": au_cut,
+    "w64_cut": w64_cut,
+    "caf_cut": caf_cut,
+    "flac_cut": flac_cut,
+    "ogg_cut": ogg_cut,
+    "voc_cut": voc_cut,
+    "flac_half_length": flac_half_length,
+    "float_extreme": float_extreme,
+    "float_extreme_f32_max": float_extreme_f32_max,
 }
 
 #: Hostile but legal file names; each holds a good 1 s WAV.
@@ -308,3 +435,54 @@ NAMED_FILES: dict[str, str] = {
 
 def named_file(d: Path, key: str) -> Path:
     return good_wav(d / NAMED_FILES[key])
+
+
+# --- Intake: what a batch finds in a delivery folder -------------------------------------------
+# Each maker writes one file into a folder and returns its path. tests/test_intake.py holds the
+# expected outcome of each (measured / error row / not checked) and the batch that mixes them.
+
+#: ISO base media (MP4/M4A) starts with a box: uint32 size, "ftyp", major brand (ISO/IEC 14496-12).
+M4A_HEAD = struct.pack(">I", 24) + b"ftypM4A " + struct.pack(">I", 0) + b"M4A isom"
+#: AppleDouble header: magic 0x00051607, version 0x00020000 (RFC 1740), then filler and no entries.
+APPLEDOUBLE = b"\x00\x05\x16\x07\x00\x02\x00\x00" + b"Mac OS X        " + b"\x00\x00"
+#: A Finder .DS_Store begins with 00 00 00 01 "Bud1" (from memory: its buddy-allocator header).
+DS_STORE = b"\x00\x00\x00\x01Bud1" + bytes(24)
+
+
+def _wav_named(d: Path, name: str | bytes) -> Path:
+    data = wav_bytes(sine_pcm16(0.5))
+    if isinstance(name, bytes):  # a name that is not valid UTF-8: write it through the OS bytes
+        raw = os.path.join(os.fsencode(d), name)
+        with open(raw, "wb") as fh:
+            fh.write(data)
+        return Path(os.fsdecode(raw))
+    p = d / name
+    p.write_bytes(data)
+    return p
+
+
+INTAKE: dict[str, Callable[[Path], Path]] = {
+    "wav_no_extension": lambda d: _wav_named(d, "episode-12"),
+    "wav_trailing_space": lambda d: _wav_named(d, "final.wav "),
+    "wav_wrong_extension": lambda d: _wav_named(d, "take.dat"),
+    "wav_bwf_extension": lambda d: _wav_named(d, "scene.bwf"),
+    "wav_part": lambda d: _wav_named(d, "episode.wav.part"),
+    "wav_crdownload": lambda d: _wav_named(d, "promo.wav.crdownload"),
+    "wav_non_utf8_name": lambda d: _wav_named(d, b"caf\xe9-latin1.wav"),
+    "wav_escape_sequence_name": lambda d: _wav_named(d, "x\x1b[2K\x1b[32mok\x1b[0m.wav"),
+    "m4a": lambda d: _write(d / "episode.m4a", M4A_HEAD + bytes(200)),
+    "m4a_renamed_wav": lambda d: _write(d / "interview.wav", M4A_HEAD + bytes(200)),
+    "text_as_wav": text_as_wav,
+    "unknown_binary": lambda d: _write(d / "data.bin", bytes(range(1, 200))),
+    "text": lambda d: _write(d / "notes.txt", b"Deliver by Friday.\n"),
+    "image": lambda d: _write(d / "cover.png", png_bytes()),
+    "resource_fork": lambda d: _write(d / "._final.wav", APPLEDOUBLE + bytes(64)),
+    "ds_store": lambda d: _write(d / ".DS_Store", DS_STORE),
+    "peak_sidecar": lambda d: _write(d / "final.wav.reapeaks", bytes(range(1, 100))),
+    "empty_no_extension": lambda d: _write(d / "placeholder", b""),
+}
+
+
+def _write(p: Path, data: bytes) -> Path:
+    p.write_bytes(data)
+    return p

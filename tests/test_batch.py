@@ -81,10 +81,12 @@ def test_discover_walks_sorted_and_reports_problems(tmp_path):
     write(root / "folder.wav" / "inside.WAV", sine(1000.0, -20.0, 1.0))
     os.symlink(root, root / "b" / "loop")  # a symlink loop back to the top
     os.symlink(root / "missing.wav", root / "dangling.wav")
-    explicit = tmp_path / "take.bin"  # a named file is taken whatever its extension
-    explicit.write_bytes(b"x")
+    explicit = tmp_path / "take.bin"  # audio by its content: measured whatever its extension
+    write(explicit, sine(1000.0, -20.0, 1.0), format="WAV")
+    junk = tmp_path / "junk.bin"  # named, but no known content and no audio extension
+    junk.write_bytes(b"\x00\x01\x02x")
 
-    found = discover([str(root), str(explicit), str(tmp_path / "nope")])
+    found = discover([str(root), str(explicit), str(junk), str(tmp_path / "nope")])
 
     assert list(found.files) == [
         str(root / "a" / "one.flac"),
@@ -98,8 +100,19 @@ def test_discover_walks_sorted_and_reports_problems(tmp_path):
     assert "does not exist" in by_path[str(tmp_path / "nope")].message
     assert by_path[str(root / "b" / "loop")].missed is False  # a note, nothing was missed
     assert "loop" in by_path[str(root / "b" / "loop")].message
+    # A file named on the command line is never "not checked": refused with the reason.
+    assert by_path[str(junk)].missed
+    assert by_path[str(junk)].message == (
+        f"{junk}: not audio: the content matches no audio format (no known signature) "
+        "and the name ends in '.bin'"
+    )
+    # Found in a folder, a text file is listed as not checked, with why.
+    assert [(s.path, s.reason) for s in found.not_checked] == [(str(root / "notes.txt"), "text")]
+    assert found.remarks == {
+        str(explicit): "the file name ends in '.bin', not an audio extension; its content is WAV"
+    }
     # The same call again gives the same answer (stable order).
-    assert discover([str(root), str(explicit), str(tmp_path / "nope")]) == found
+    assert discover([str(root), str(explicit), str(junk), str(tmp_path / "nope")]) == found
 
 
 def test_discover_same_file_twice_is_one_file(tmp_path):
@@ -154,8 +167,10 @@ def test_batch_statuses_errors_and_cache(tmp_path):
     status = {os.path.basename(r.path): r.status for r in results}
     assert status == {"empty.wav": ERROR, "long.wav": FAIL, "short.wav": PASS, "text.wav": ERROR}
     errors = {os.path.basename(r.path): r.error for r in results if r.status == ERROR}
-    assert "cannot open as audio" in errors["text.wav"]
-    assert errors["text.wav"].startswith(str(src / "text.wav"))
+    # Refused at intake by its content (checker.discover), never handed to the reader.
+    assert errors["text.wav"] == (
+        f"{src / 'text.wav'}: named like audio ('.wav') but its content is text, not audio"
+    )
     assert [r.path for r in results] == sorted(r.path for r in results)
     assert run.finished_at is not None
     # 1 kHz sine written for exactly 1.0 s at 48 kHz: 48000 frames (by construction).
@@ -170,7 +185,7 @@ def test_batch_statuses_errors_and_cache(tmp_path):
     with open_store(out) as store:
         assert set(store.measurement_attempts().values()) == {1}
         assert store.counts()["runs"] == 2
-        assert store.counts()["errors"] == 2
+        assert store.counts()["errors"] == 1  # empty.wav; text.wav never reached the reader
     # --fresh measures everything again: the attempt counter shows it.
     run_batch([src], StubProfile(), out, jobs=1, fresh=True, evaluate=duration_rule)
     with open_store(out) as store:

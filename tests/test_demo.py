@@ -88,7 +88,8 @@ def test_podcast_week_gets_what_the_readme_promises(batch, tmp_path):
     code, results = check([str(week), "--profile", "podcast-stereo", "--out", str(out)])
     compare(results, promised("## The podcast week"))
     assert code == 3  # README: an unreadable file outranks the failures
-    assert "cannot open as audio" in results["ep111-show-notes.wav"]["error"]
+    # checker.discover: refused by its content before any decoding
+    assert "its content is text, not audio" in results["ep111-show-notes.wav"]["error"]
 
 
 def test_stem_handoff_gets_what_the_readme_promises(batch, tmp_path):

@@ -86,6 +86,8 @@ PUBLISHED = [
     # podcast: about -16 LUFS stereo / -19 mono, about +-1 LU, -1 dBTP (common practice)
     ("podcast-stereo", "integrated_target_lufs", -16.0, 1.0, "common practice"),
     ("podcast-stereo", "true_peak_max_dbtp", -1.0, None, "common practice"),
+    ("podcast-stereo-mp3", "integrated_target_lufs", -16.0, 1.0, "common practice"),
+    ("podcast-stereo-mp3", "encoded_true_peak_max_dbtp", -1.0, None, "common practice"),
     ("podcast-mono", "integrated_target_lufs", -19.0, 1.0, "common practice"),
     ("podcast-mono", "true_peak_max_dbtp", -1.0, None, "common practice"),
     # audiobook chapter: RMS -23 to -18 dBFS, sample peak <= -3 dBFS, noise floor <= -60 dBFS,
@@ -366,3 +368,69 @@ def test_cli_validate(tmp_path):
     assert f'{bad}: peaks.true_peak_max_dbtp.value = "x" (expected a number in dBTP)' in err
     code, _, err = run_cli("profiles", "show", "nope")
     assert code == EXIT_USAGE and "expected a built-in profile" in err
+
+
+# ---------------------------------------------------------------- hostile profiles
+
+
+def _limit_line(value: str) -> str:
+    return f'name = "h"\n[format]\ntruncation_max_frames = {{ value = {value}, severity = "fail", source = "x" }}\n'
+
+
+HOSTILE = {
+    # A 400-digit integer parses (TOML integers are unbounded in tomllib) but is no number
+    # a float can hold: shown summarised, never echoed in full.
+    "digits_400": (_limit_line("9" * 400), "format.truncation_max_frames.value = a 400-digit "
+                   "integer (expected a number)"),  # fmt: skip
+    # Python refuses integer strings over 4300 digits (sys.get_int_max_str_digits default).
+    "digits_5000": (_limit_line("9" * 5000), "unreadable value (Exceeds the limit"),
+    "nested_5000": ('name = "h"\ntitle = ' + "[" * 5000 + "]" * 5000 + "\n",
+                    "nesting too deep (expected at most 8 levels of tables and lists)"),
+    "nested_400": ('name = "h"\ntitle = ' + "[" * 400 + "]" * 400 + "\n",
+                   "nesting too deep (expected at most 8 levels of tables and lists)"),
+    "long_string": ('name = "h"\ntitle = ' + "[" + '"' + "x" * 5000 + '"]\n',
+                    "title = [\"xxxxxxxx"),
+}  # fmt: skip
+
+
+@pytest.mark.parametrize("case", sorted(HOSTILE))
+def test_hostile_profiles_are_exit_2_with_a_short_message(tmp_path, case):
+    text, fragment = HOSTILE[case]
+    path = write(tmp_path, f"{case}.toml", text)
+    code, out, err = run_cli("profiles", "validate", str(path))
+    assert code == EXIT_USAGE, err
+    assert err.startswith(f"deliverycheck: {path}") and fragment in err, err
+    assert "internal error" not in err and len(err) < 400, err
+
+
+def test_extends_chain_has_a_depth_limit(tmp_path):
+    # 3000 files, each extending the next: refused at MAX_EXTENDS_DEPTH (16) parents.
+    for i in range(3000):
+        parent = f'extends = "c{i + 1}.toml"\n' if i < 2999 else ""
+        write(tmp_path, f"c{i}.toml", f'name = "c{i}"\n{parent}')
+    code, _, err = run_cli("profiles", "validate", str(tmp_path / "c0.toml"))
+    assert code == EXIT_USAGE
+    assert f"{tmp_path / 'c0.toml'}: extends chain longer than 16 parents" in err
+    # 16 parents are fine: c2983 -> ... -> c2999 is 17 files.
+    assert load_profile(str(tmp_path / "c2983.toml")).lineage[-1] == "c2983"
+
+
+def test_errors_in_a_parent_never_repeat_its_contents(tmp_path):
+    write(tmp_path, "other.toml", 'name = "o"\npassword = "hunter2"\n[peaks]\n')
+    child = write(tmp_path, "child.toml", 'name = "c"\nextends = "other.toml"\n')
+    msg = expect_error(child, f'{child}: extends = "other.toml"', "the parent is not a valid "
+                       "profile", "other.toml: a key is not valid (expected one of name")  # fmt: skip
+    assert "hunter2" not in msg and "password" not in msg
+    write(tmp_path, "other2.toml", 'name = "o"\n[peaks]\ntrue_peak_max_dbtp = { value = '
+          '"hunter2", severity = "fail", source = "x" }\n')  # fmt: skip
+    write(tmp_path, "mid.toml", 'name = "m"\nextends = "other2.toml"\n')
+    child2 = write(tmp_path, "child2.toml", 'name = "c"\nextends = "mid.toml"\n')
+    msg = expect_error(child2, "other2.toml: peaks.true_peak_max_dbtp.value is not valid "
+                       "(expected a number in dBTP)")  # fmt: skip
+    assert "hunter2" not in msg
+    # A merge error in a parent (a changed value without a source) names it, not its values.
+    write(tmp_path, "p3.toml", 'name = "p"\nextends = "ebu-r128"\n[peaks]\n'
+          "true_peak_max_dbtp = { value = -7.25 }\n")  # fmt: skip
+    child3 = write(tmp_path, "child3.toml", 'name = "c"\nextends = "p3.toml"\n')
+    msg = expect_error(child3, "p3.toml: peaks.true_peak_max_dbtp changes the inherited value")
+    assert "-7.25" not in msg

@@ -404,7 +404,10 @@ def test_a_set_is_the_audio_files_of_one_folder_without_the_mix(tmp_path):
         sf.write(str(folder / name), np.zeros((100, 1)), RATE)
     sf.write(str(folder / "mix.wav"), np.zeros((100, 1)), RATE)
     (folder / "notes.txt").write_text("x")
-    (folder / ".hidden.wav").write_bytes(b"")
+    # macOS copies leave '._' resource forks (AppleDouble magic 00 05 16 07) and .DS_Store
+    # beside the stems: checker.discover.classify says they are not audio.
+    (folder / "._b_bass.wav").write_bytes(b"\x00\x05\x16\x07" + bytes(60))
+    (folder / ".DS_Store").write_bytes(b"\x00\x00\x00\x01Bud1" + bytes(60))
     (folder / "sub").mkdir()
     s = stem_set_from_folder(str(folder), str(folder / "mix.wav"))
     assert s.name == "song" and s.mix_path == str(folder / "mix.wav")

@@ -66,7 +66,7 @@ def test_a_version_1_store_gains_the_stem_set_table(tmp_path):
         store.db.execute("UPDATE meta SET value='1' WHERE key='schema_version'")
         store.put_measurement(_ident(tmp_path), OPTS, _measurement("kept"))
     with open_store(tmp_path) as store:
-        assert store.schema_version() == SCHEMA_VERSION == 2
+        assert store.schema_version() == SCHEMA_VERSION == 3
         assert store.get_stem_set("no such set") is None
         store.put_stem_set("k", "folder", {"path": "folder", "values": {"x_db": -math.inf}})
         assert store.get_stem_set("k") == {"path": "folder", "values": {"x_db": -math.inf}}
@@ -168,5 +168,11 @@ def test_runs_and_verdicts(tmp_path):
 
 def test_store_in_a_folder_that_cannot_be_created(tmp_path):
     (tmp_path / "file").write_text("x")
-    with pytest.raises(StoreError, match="cannot open the results store"):
-        Store(tmp_path / "file" / "sub" / "results.sqlite")
+    where = tmp_path / "file" / "sub" / "results.sqlite"
+    with pytest.raises(StoreError) as info:
+        Store(where)
+    assert str(info.value) == (
+        f"results store {where}: cannot create its folder: a part of the path is a file, not a "
+        "folder (Not a directory); choose another output folder"
+    )
+    assert info.value.exit_code == 4  # errors.EXIT_OUTPUT: the output folder, not the audio

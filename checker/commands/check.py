@@ -11,16 +11,26 @@ import sys
 from pathlib import Path
 from typing import TextIO
 
-from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, UsageError
+from checker.errors import (
+    EXIT_FAILED,
+    EXIT_INTERRUPTED,
+    EXIT_OK,
+    EXIT_OUTPUT,
+    EXIT_UNCHECKED,
+    OutputError,
+    StoreError,
+    UsageError,
+    os_cause,
+)
 from checker.layout import check_layout_text
+from checker.names import for_terminal
 from checker.progress import Progress
 from checker.verdict import ERROR, FAIL, PASS, STATUS_ORDER, WARN
 from checker.workers import DEFAULT_MEMORY_MB
 
 DEFAULT_OUT = "deliverycheck-report"
-#: How many problem files the summary lists.
+#: How many problem files (and files not checked) the summary lists.
 WORST_SHOWN = 10
-EXIT_INTERRUPTED = 130
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
@@ -29,9 +39,11 @@ def add_parser(sub) -> argparse.ArgumentParser:
         help="check a batch of files against a delivery profile",
         description=(
             "Find the audio files under each PATH, measure each once, judge it against the "
-            "profile, and write the reports and the results store to --out. Files already "
-            "measured (same path, size and modification time) are not read again, so running "
-            "the same command after an interruption resumes the batch."
+            "profile, and write the reports and the results store to --out. Every file found "
+            "is measured, refused with the reason (status error), or listed as not checked "
+            "when it is clearly not a deliverable (text, images, sidecar files). Files already "
+            "measured (same path, size, modification and change time) are not read again, so "
+            "running the same command after an interruption resumes the batch."
         ),
     )
     p.add_argument("paths", nargs="+", metavar="PATH", help="audio files or folders")
@@ -39,7 +51,12 @@ def add_parser(sub) -> argparse.ArgumentParser:
     p.add_argument(
         "--out", default=DEFAULT_OUT, metavar="DIR", help=f"output folder (default: {DEFAULT_OUT})"
     )
-    p.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: one per core)")
+    p.add_argument(
+        "--jobs",
+        type=int,
+        metavar="N",
+        help="worker processes (default and most: one per usable core)",
+    )
     p.add_argument("--fresh", action="store_true", help="measure every file again (ignore store)")
     p.add_argument("--quiet", action="store_true", help="no progress line")
     p.add_argument(
@@ -100,7 +117,7 @@ def stem_set_folders(args, profile) -> list[str]:
 
 def stem_set_key(stem_set, options) -> str | None:
     """What a stem set's stored values depend on: every file's identity (resolved path, size,
-    modification time), the engine version and the options; None when a file cannot be
+    modification and change time), the engine version and the options; None when a file cannot be
     stat'ed (then the set is checked again, and says why)."""
     from checker.batch import options_key
     from checker.measure import ENGINE_VERSION
@@ -112,8 +129,8 @@ def stem_set_key(stem_set, options) -> str | None:
     except OSError:
         return None
     parts = [ENGINE_VERSION, options_key(options), stem_set.name, os.path.realpath(stem_set.folder)]
-    parts += [[f.path, f.size_bytes, f.mtime_ns] for f in files]
-    parts.append([mix.path, mix.size_bytes, mix.mtime_ns] if mix else None)
+    parts += [[f.path, f.size_bytes, f.mtime_ns, f.ctime_ns] for f in files]
+    parts.append([mix.path, mix.size_bytes, mix.mtime_ns, mix.ctime_ns] if mix else None)
     return json.dumps(parts)
 
 
@@ -177,11 +194,13 @@ def _first_problem(result) -> str:
 
 
 def _one_line(text: str, width: int = 110) -> str:
-    text = " ".join(str(text).split())
+    text = " ".join(for_terminal(text).split())
     return text if len(text) <= width else text[: width - 3] + "..."
 
 
 def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> list[str]:
+    """The console summary. Every line goes through names.for_terminal (a file name cannot
+    move the cursor or recolour a line)."""
     counts = {s: 0 for s in (PASS, WARN, FAIL, ERROR)}
     for r in results:
         counts[r.status] = counts.get(r.status, 0) + 1
@@ -193,6 +212,7 @@ def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> lis
         f"profile {run.profile_name}: {checked}: "
         + ", ".join(f"{counts[s]} {s}" for s in (PASS, WARN, FAIL, ERROR))
     ]
+    lines += intake_lines(results, getattr(run, "not_checked", ()))
     worst = [r for r in results if r.status in (ERROR, FAIL, WARN)]
     worst.sort(key=lambda r: (STATUS_ORDER.get(r.status, 9), r.path))
     if worst:
@@ -205,13 +225,30 @@ def summary_lines(run, results, paths: dict[str, Path], notes: list[str]) -> lis
         lines.append(_one_line(f"note: {note}"))
     for name, path in paths.items():
         lines.append(f"{name}: {path}")
+    return [for_terminal(line) for line in lines]
+
+
+def intake_lines(results, not_checked) -> list[str]:
+    """What happened to every file found: measured / error (not measured) / not checked,
+    then the files not checked with their reasons (the first WORST_SHOWN)."""
+    files = [r for r in results if r.kind != "set"]
+    measured = sum(1 for r in files if r.measurement is not None)
+    lines = [
+        f"files found: {len(files) + len(not_checked)}: {measured} measured, "
+        f"{len(files) - measured} error (not measured), {len(not_checked)} not checked"
+    ]
+    if not_checked:
+        lines.append("not checked (not deliverables):")
+    for item in not_checked[:WORST_SHOWN]:
+        lines.append(_one_line(f"  {item['path']}: {item['reason']}"))
+    if len(not_checked) > WORST_SHOWN:
+        lines.append(f"  ... and {len(not_checked) - WORST_SHOWN} more (see the report)")
     return lines
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
-    from checker.batch import Interrupted, run_batch
+    from checker.batch import Interrupted, StoreFailed, run_batch
     from checker.profiles import load_profile
-    from checker.report import write_reports
 
     if args.jobs is not None and args.jobs < 1:
         raise UsageError(f"--jobs: jobs = {args.jobs} (expected >= 1)")
@@ -238,6 +275,8 @@ def run(args, out: TextIO, err: TextIO) -> int:
             on_note=notes.append,
             layout=args.layout,
         )
+    except StoreFailed as exc:  # the store failed part-way: report what was measured
+        return _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err)
     except Interrupted as exc:
         # --fresh would measure everything again: the resume command leaves it out.
         resume = [a for a in sys.argv[1:] if a != "--fresh"]
@@ -249,17 +288,70 @@ def run(args, out: TextIO, err: TextIO) -> int:
             f"{out_dir / 'results.sqlite'}; no report written.",
             file=err,
         )
-        print(f"to resume, run again: {again}", file=err)
+        print(for_terminal(f"to resume, run again: {again}"), file=err)
         return EXIT_INTERRUPTED
+    failure = None
     if folders:
-        from checker.store import open_store
+        results, failure = _with_stem_sets(folders, args, profile, results, out_dir)
+    code = _report(out_dir, run_info, results, notes, out, err)
+    if failure is not None:
+        print(for_terminal(f"deliverycheck: {failure}"), file=err)
+        return EXIT_OUTPUT
+    return code
 
+
+def _with_stem_sets(folders, args, profile, results, out_dir):
+    """Results with the stem sets' rows; (rows, the store's failure or None). A store that
+    fails leaves the sets measured without it."""
+    from checker.store import open_store
+
+    try:
         with open_store(out_dir) as store:
-            results = add_stem_sets(
+            rows = add_stem_sets(
                 folders, args.mix, profile, results, store, args.fresh, args.layout
             )
-    written = write_reports(out_dir, run_info, results)
+            return rows, None
+    except StoreError as exc:
+        rows = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
+        return rows, exc
+
+
+def _report(out_dir: Path, run_info, results, notes, out, err, stored: bool = True) -> int:
+    """Write the reports and print the summary; the run's exit code, or EXIT_OUTPUT (with a
+    one-line message) when the reports cannot be written."""
+    from checker.report import write_reports
+
+    try:
+        written = write_reports(out_dir, run_info, results)
+    except OSError as exc:
+        what, todo = os_cause(exc)
+        where = exc.filename or out_dir
+        kept = (
+            "the measurements are kept in the results store, so nothing is measured twice"
+            if stored
+            else "files finished before the store failed are kept in it"
+        )
+        raise OutputError(
+            f"reports: cannot write {where}: {what} ({exc.strerror or exc}); {todo}, then run "
+            f"the same command again: {kept}"
+        ) from None
     written = {"store": out_dir / "results.sqlite", **written}
     for line in summary_lines(run_info, results, written, notes):
         print(line, file=out)
     return exit_code(results)
+
+
+def _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err) -> int:
+    """The batch finished without its store: write the reports if possible, then say what
+    failed. Exit EXIT_OUTPUT either way."""
+    results = exc.results
+    if folders:
+        results = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
+    try:
+        _report(out_dir, exc.run, results, notes, out, err, stored=False)
+        where = f"the reports in {out_dir} hold all {len(exc.results)} files of this run"
+    except OutputError as report_failure:
+        print(for_terminal(f"deliverycheck: {report_failure}"), file=err)
+        where = "the reports could not be written either"
+    print(for_terminal(f"deliverycheck: {exc} ({where})"), file=err)
+    return EXIT_OUTPUT

@@ -9,6 +9,7 @@ from typing import TextIO
 from checker.errors import EXIT_OK, EXIT_UNCHECKED, CheckerError
 from checker.measure import measure
 from checker.meters.base import MeasureOptions
+from checker.names import for_terminal, readable_data
 from checker.serial import dumps
 
 
@@ -65,18 +66,19 @@ def run(args, out: TextIO, err: TextIO) -> int:
             m = measure(path, options, read_ahead=True)  # one file at a time: a core to spare
         except CheckerError as exc:
             status = max(status, EXIT_UNCHECKED)
-            if args.json:
-                print(dumps({"path": path, "error": str(exc)}), file=out, flush=True)
+            if args.json:  # names in readable form: a non-UTF-8 name cannot stop the output
+                line = dumps(readable_data({"path": path, "error": str(exc)}))
+                print(line, file=out, flush=True)
             else:
-                print(f"{path}: error: {exc}", file=err, flush=True)
+                print(for_terminal(f"{path}: error: {exc}"), file=err, flush=True)
             continue
         if args.json:
-            print(dumps(m.to_dict(timeline=args.timeline)), file=out, flush=True)
+            print(dumps(readable_data(m.to_dict(timeline=args.timeline))), file=out, flush=True)
         else:
-            print(path, file=out)
+            print(for_terminal(path), file=out)
             for key in SUMMARY_KEYS:
                 if key in m.values and m.values[key] is not None:
                     print(f"  {key:<28} {_fmt(m.values[key])}", file=out)
             for finding in m.findings:
-                print(f"  note: {finding}", file=out)
+                print(for_terminal(f"  note: {finding}"), file=out)
     return status

@@ -55,6 +55,9 @@ class MeasureOptions:
     dropout_min_s: float = 0.010
     #: How many first positions to keep for overs, clips, dropouts.
     max_positions: int = 10
+    #: Encode round trip (codec, kbit/s) asked for by a profile's [encode] section, or None
+    #: (checker.roundtrip; part of the store's cache key like every option).
+    encode: tuple[str, float] | None = None
 
 
 class MeterResult(Protocol):

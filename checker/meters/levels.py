@@ -44,7 +44,7 @@ from typing import Any
 
 import numpy as np
 
-from checker.audio import INT32_SCALE, Block, StreamInfo
+from checker.audio import INT32_SCALE, MAX_SAMPLE_MAGNITUDE, Block, StreamInfo
 from checker.dsp import native
 from checker.layout import Layout
 from checker.meters.base import MeasureOptions
@@ -58,6 +58,15 @@ NOISE_BLOCK_MAX_ZERO_FRACTION = 0.5
 MAX_GRID_BITS = 24
 
 _EMPTY = np.empty(0, dtype=np.int64)
+#: Finite float samples beyond MAX_SAMPLE_MAGNITUDE (about +602 dBFS), counted with NaN/Inf.
+OUT_OF_RANGE = "Out-of-range (beyond +-2**100, about +602 dBFS)"
+_KINDS = ("NaN", "Inf", OUT_OF_RANGE)
+
+
+def _kind_order(item: tuple[str, Any]) -> int:
+    return _KINDS.index(item[0])
+
+
 #: Per-segment records are joined into one array once this many pieces have piled up
 #: (a numpy array costs ~100 bytes of bookkeeping: 3 hours of 1 s blocks would add ~20 MB).
 COMPACT_AFTER = 64
@@ -269,11 +278,14 @@ class LevelsMeter:
         self.frames += n
 
     def _count_nonfinite(self, x: np.ndarray, start: int) -> np.ndarray:
-        finite = np.isfinite(x)
+        """NaN, Inf and samples beyond MAX_SAMPLE_MAGNITUDE counted, returned as 0."""
+        finite = np.abs(x) <= MAX_SAMPLE_MAGNITUDE  # False for NaN, Inf and huge values
         if finite.all():
             return x
         nan = np.isnan(x)
-        for kind, mask in (("NaN", nan), ("Inf", ~finite & ~nan)):
+        inf = np.isinf(x)
+        huge = ~finite & ~nan & ~inf
+        for kind, mask in (("NaN", nan), ("Inf", inf), (OUT_OF_RANGE, huge)):
             count = int(np.count_nonzero(mask))
             if count:
                 first = start + int(np.flatnonzero(mask.any(axis=1))[0])
@@ -431,5 +443,5 @@ class LevelsMeter:
         return tuple(
             f"{kind} samples: {count}, first at {first / self.rate:.3f} s "
             "(treated as 0 by the sample-domain meters)"
-            for kind, (count, first) in sorted(self.nonfinite.items(), reverse=True)
+            for kind, (count, first) in sorted(self.nonfinite.items(), key=_kind_order)
         )

@@ -49,7 +49,7 @@ import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
 from checker import units
-from checker.audio import Block, StreamInfo
+from checker.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range
 from checker.dsp import native
 from checker.dsp.iir import sosfilt_rows
 from checker.dsp.kweighting import k_weighting_sos
@@ -253,7 +253,11 @@ class LoudnessMeter:
             return
         start = block.start
         last, cuts = self._substeps(start, n, ((start + 1) * 1000 - 1) // self.rate)
-        pieces = native.kweight_sums(block.xt, self.rows, self.sos, self.zi, self.weights, cuts)
+        xt = block.xt
+        if out_of_range(block):  # NaN/Inf/huge (counted by the levels meter) filtered as 0;
+            # here, not in feed(): with read-ahead the next block's prepare may already run
+            xt = np.where(np.abs(xt) <= MAX_SAMPLE_MAGNITUDE, xt, 0.0)
+        pieces = native.kweight_sums(xt, self.rows, self.sos, self.zi, self.weights, cuts)
         block.memo["loudness"] = (start, last, cuts, pieces)
 
     def feed(self, block: Block) -> None:
@@ -293,8 +297,8 @@ class LoudnessMeter:
         # A channel-major copy of the channels that count, filtered in place.
         xt = block.x.T
         y = np.array(xt if self.all_active else xt[self.active], dtype=np.float64, order="C")
-        if block.raw is None and not np.isfinite(y).all():
-            y[~np.isfinite(y)] = 0.0  # NaN/Inf in a float file (counted by the levels meter)
+        if out_of_range(block):  # NaN/Inf/huge in a float file (counted by the levels meter)
+            y[~(np.abs(y) <= MAX_SAMPLE_MAGNITUDE)] = 0.0
         sosfilt_rows(self.sos, y, self.zi)
         np.multiply(y, y, out=y)
         p = self.weights @ y

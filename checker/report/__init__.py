@@ -10,11 +10,13 @@ from collections.abc import Sequence
 from datetime import UTC, datetime
 from pathlib import Path
 
+import pandas as pd
+
 from checker.report.atomic import write_text_atomic
 from checker.report.csv_out import write_csv
 from checker.report.html import render_html
 from checker.report.jsonl import write_jsonl
-from checker.report.table import flags_frame, results_frame, sorted_results
+from checker.report.table import flags_frame, not_checked_frame, results_frame, sorted_results
 from checker.results import FileResult, RunInfo
 
 REPORT_FILES = {
@@ -31,9 +33,12 @@ def write_reports(out_dir: Path, run: RunInfo, results: Sequence[FileResult]) ->
     out_dir.mkdir(parents=True, exist_ok=True)
     ordered = sorted_results(results)
     paths = {name: out_dir / file for name, file in REPORT_FILES.items()}
-    write_csv(results_frame(ordered), paths["csv"])
+    frame = results_frame(ordered)
+    if run.not_checked:  # files that are clearly not deliverables: listed after the rest
+        frame = pd.concat([frame, not_checked_frame(run, list(frame.columns))], ignore_index=True)
+    write_csv(frame, paths["csv"])
     write_csv(flags_frame(ordered), paths["flags"])
-    write_jsonl(ordered, paths["jsonl"])
+    write_jsonl(ordered, paths["jsonl"], not_checked=run.not_checked)
     generated_at = datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     write_text_atomic(paths["html"], render_html(run, ordered, generated_at=generated_at))
     return paths

@@ -304,6 +304,25 @@ def _totals(counts: Counter, total: int) -> tuple[str, str]:
     return tile_html, "".join(filters)
 
 
+def _not_checked(run: RunInfo) -> str:
+    """A section listing the files that were not checked, with the reason; "" when none."""
+    if not run.not_checked:
+        return ""
+    rows = "".join(
+        f"<tr><td><code>{escape(x['path'])}</code></td><td>{escape(x['reason'])}</td></tr>"
+        for x in run.not_checked
+    )
+    n = len(run.not_checked)
+    return (
+        '<section aria-labelledby="not-checked-h">'
+        f'<h2 id="not-checked-h">Not checked ({n} file{"s" if n != 1 else ""})</h2>'
+        '<p class="muted">Found under the inputs but clearly not deliverables, so not measured. '
+        "Name such a file on the command line to have it checked anyway.</p>"
+        '<table class="limits"><thead><tr><th>File</th><th>Why not checked</th></tr></thead>'
+        f"<tbody>{rows}</tbody></table></section>"
+    )
+
+
 def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) -> str:
     """The complete page as one string."""
     ordered = sorted_results(results)
@@ -353,6 +372,7 @@ def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) 
         "head": _header_cells(),
         "rows": "\n".join(rows_html),
         "empty": "" if ordered else '<p class="muted">No files were checked.</p>',
+        "not_checked": _not_checked(run),
         "rows_json": embed_json({"rows": rows_data}),
         "details": "\n".join(details),
     }

@@ -7,7 +7,7 @@ Column order of the per-file table (``file_columns``):
    plain_gain_enough, advice), error, findings;
 2. ``MEASUREMENT_COLUMNS``: every measurement key of the shared vocabulary, always present
    (empty when a file has no value), grouped as loudness, true peak, sample levels, silence,
-   channels, bandwidth, stream format, WAV metadata;
+   channels, bandwidth, stream format, WAV metadata, other loudness carriers, lossy stream;
 3. any other measurement key (for example stem-set ``set_`` / ``sum_`` keys), sorted by name.
 
 Cells keep plain Python values: numbers stay numbers, ``None`` stays ``None`` (an empty
@@ -23,7 +23,9 @@ from typing import Any
 
 import pandas as pd
 
-from checker.results import FileResult
+from checker.carriers import CARRIER_KEYS
+from checker.lossy import LOSSY_KEYS
+from checker.results import NOT_CHECKED, FileResult, RunInfo
 from checker.verdict import STATUS_ORDER
 
 GAIN_COLUMNS: tuple[str, ...] = (
@@ -140,6 +142,9 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "declared_max_momentary_lufs",
     "declared_max_short_term_lufs",
     "header_findings",
+    # other loudness carriers and lossy stream facts (checker.carriers, checker.lossy)
+    *CARRIER_KEYS,
+    *LOSSY_KEYS,
 )
 
 FLAG_COLUMNS: tuple[str, ...] = (
@@ -257,6 +262,22 @@ def results_frame(results: Sequence[FileResult]) -> pd.DataFrame:
     """One row per file (worst first), columns in the documented order."""
     ordered = sorted_results(results)
     return _frame([file_row(r) for r in ordered], file_columns(ordered))
+
+
+def not_checked_frame(run: RunInfo, columns: Sequence[str]) -> pd.DataFrame:
+    """One row per file that was not checked (``RunInfo.not_checked``), status "not checked",
+    the reason in ``findings``; the other columns empty. Appended after the checked files."""
+    rows = [
+        {
+            "path": x["path"],
+            "kind": "file",
+            "status": NOT_CHECKED,
+            "flag_count": 0,
+            "findings": x["reason"],
+        }
+        for x in run.not_checked
+    ]
+    return _frame(rows, columns)
 
 
 def flags_frame(results: Sequence[FileResult]) -> pd.DataFrame:
