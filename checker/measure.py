@@ -280,10 +280,10 @@ def measure(
     the same either way. Library thread pools (BLAS) run one thread meanwhile
     (checker/threads.py): parallelism is deliverycheck's own."""
     with one_thread_pools():
-        return _measure(str(path), options or MeasureOptions(), read_ahead)
+        return _measure_one(str(path), options or MeasureOptions(), read_ahead)
 
 
-def _measure(path: str, options: MeasureOptions, read_ahead: bool) -> Measurement:
+def _measure_one(path: str, options: MeasureOptions, read_ahead: bool) -> Measurement:
     before = _stat(str(path))
     length = read_container_length(str(path))  # AIFF, W64, AU, CAF, FLAC, Ogg; else None
     source = _unknown_length_view(str(path), length)
