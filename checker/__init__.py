@@ -46,10 +46,12 @@ def check(paths, profile, out_dir, jobs: int | None = None, fresh: bool = False,
     from checker.batch import run_batch
     from checker.report import write_reports
     from checker.report.byprofile import keep_profile_copy
+    from checker.threads import one_thread_pools
 
     if isinstance(profile, str | Path):
         profile = load_profile(str(profile))
-    run, results = run_batch(list(paths), profile, out_dir, jobs=jobs, fresh=fresh, **kwargs)
+    with one_thread_pools():  # library pools at one thread here; workers claim their own
+        run, results = run_batch(list(paths), profile, out_dir, jobs=jobs, fresh=fresh, **kwargs)
     written = write_reports(Path(out_dir), run, results)
     keep_profile_copy(Path(out_dir), run, results, written)
     return run, results

@@ -16,6 +16,10 @@ from typing import TextIO
 from checker import __version__
 from checker.errors import EXIT_INTERRUPTED, EXIT_UNCHECKED, EXIT_USAGE, CheckerError
 from checker.names import for_terminal
+from checker.threads import claim_process
+
+# The command line owns its process: library pools run one thread (checker/threads.py).
+claim_process()
 
 #: Subcommand modules under checker.commands, in help order.
 COMMANDS = ("measure", "check", "profiles")

@@ -29,6 +29,7 @@ from checker.meters.base import MeasureOptions
 from checker.roundtrip import add_shifts, round_trip_meters
 from checker.serial import plain
 from checker.streamlength import FlacUnknownLength
+from checker.threads import one_thread_pools
 from checker.timeline import Timeline, build_timeline
 from checker.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 
@@ -276,8 +277,13 @@ def measure(
     ``read_ahead``: decode in a second thread, overlapping the meters, and run the
     meters' prepare steps there (for a lone measurement with a core to spare; batch
     workers keep one thread each unless there are fewer files than jobs). The values are
-    the same either way."""
-    options = options or MeasureOptions()
+    the same either way. Library thread pools (BLAS) run one thread meanwhile
+    (checker/threads.py): parallelism is deliverycheck's own."""
+    with one_thread_pools():
+        return _measure_one(str(path), options or MeasureOptions(), read_ahead)
+
+
+def _measure_one(path: str, options: MeasureOptions, read_ahead: bool) -> Measurement:
     before = _stat(str(path))
     length = read_container_length(str(path))  # AIFF, W64, AU, CAF, FLAC, Ogg; else None
     source = _unknown_length_view(str(path), length)

@@ -33,6 +33,7 @@ from multiprocessing.connection import wait
 
 from checker.errors import CheckerError, UsageError
 from checker.meters.base import MeasureOptions
+from checker.threads import claim_process
 
 MIB = 1024 * 1024
 #: Default per-worker address-space ceiling (virtual memory, includes libraries).
@@ -140,6 +141,7 @@ def _die_with_parent() -> None:
 def _worker_main(conn, memory_mb, measure_fn) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides how to stop
     _die_with_parent()
+    claim_process()  # one thread per library pool: parallelism is the pool's workers
     _limit_memory(memory_mb)
     while True:
         try:
@@ -260,7 +262,7 @@ class LocalPool:
                 for w in list(workers):
                     if w.task is None and pending:
                         task = pending.popleft()
-                        if w.assign(task, options, time_limit_s(task, None, self.timeout_s)):
+                        if w.assign(task, options, self._limit(task)):
                             continue
                         w.kill()  # its pipe broke: try a new worker, but not forever
                         workers.remove(w)
@@ -280,6 +282,7 @@ class LocalPool:
                 wait_s = max(0.0, min(w.deadline for w in busy) - now)
                 handles = [w.conn for w in busy] + [w.process.sentinel for w in busy]
                 ready = set(wait(handles, timeout=min(wait_s, 3600.0)))
+                finished = []
                 for w in busy:
                     result = self._service(w, ready)
                     if result is None:
@@ -288,13 +291,19 @@ class LocalPool:
                     if replace:
                         w.kill()
                         workers.remove(w)
-                    yield task, outcome
+                    elif pending and w.assign(pending[0], options, self._limit(pending[0])):
+                        pending.popleft()  # its next file first: it measures while we store
+                    finished.append((task, outcome))
+                yield from finished
         finally:
             for w in workers:
                 if w.task is not None:
                     w.kill()
                 else:
                     w.stop()
+
+    def _limit(self, task: Task) -> float:
+        return time_limit_s(task, None, self.timeout_s)
 
     def _service(self, w: _Worker, ready: set):
         """Handle what happened to one busy worker; (task, outcome, replace) or None."""

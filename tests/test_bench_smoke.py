@@ -22,7 +22,18 @@ def test_bench_runs_on_tiny_files(tmp_path):
     assert proc.returncode == 0, proc.stderr[-2000:]
     out = proc.stdout
     # Every workload produced a row, and the ratio lines were computed.
-    for name in ("a decode", "b deliverycheck", "c pyloudnorm", "d pyebur128"):
+    for name in (
+        "a decode",
+        "b deliverycheck",
+        "b1 one thread",
+        "c pyloudnorm",
+        "d pyebur128",
+        "d1 pyebur128 I",
+    ):
         assert name in out
-    assert "b/a = " in out and "d/b = " in out
-    assert "throughput ratio jobs2/jobs1" in out
+    for ratio in ("b/a = ", "b1/a = ", "d/b1 = ", "d1/b1 = ", "c/b = "):
+        assert ratio in out
+    # the 5.1, 96 kHz and FLAC rows
+    assert "6 ch" in out and "96000 Hz" in out and "FLAC" in out
+    assert "throughput ratio jobs2/jobs1" in out and "under load / unloaded" in out
+    assert "overhead per file" in out

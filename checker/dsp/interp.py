@@ -207,6 +207,7 @@ class ChunkInterpolator:
                 f"ChunkInterpolator: positions = {positions} (expected a multiple of {rows})"
             )
         self.factor = factor
+        self.taps = taps
         self.positions = positions
         self.rows = rows
         back, fwd = taps // 2 - 1, taps // 2

@@ -78,6 +78,7 @@ whole analysis takes.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import asdict, dataclass
 
@@ -119,11 +120,15 @@ FFT_BATCH_FRAMES = 32
 COMMON_RATES_HZ = (8000, 11025, 16000, 22050, 24000, 32000, 44100, 48000, 88200, 96000)
 
 
+@functools.lru_cache(maxsize=8)
 def kaiser_periodic(n: int, beta: float) -> np.ndarray:
     """Periodic Kaiser window (the symmetric one of n + 1 points, last dropped), as
     scipy.signal.windows.kaiser(n, beta, sym=False); numpy's, to keep scipy.signal
-    (about 0.7 s of imports) out of the measuring process."""
-    return np.kaiser(n + 1, beta)[:-1]
+    (about 0.7 s of imports) out of the measuring process. Cached per size (about 1.5 ms
+    per file otherwise) and read-only, since every meter of that rate shares it."""
+    window = np.kaiser(n + 1, beta)[:-1]
+    window.flags.writeable = False
+    return window
 
 
 def median_filter_nearest(x: np.ndarray, size: int) -> np.ndarray:

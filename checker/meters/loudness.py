@@ -41,6 +41,7 @@ Tech 3342 example code). Not stable for programmes under 60 s.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import asdict, dataclass
 
@@ -196,6 +197,13 @@ class _SlidingMax:
         return lufs, self.max_end_frame / self.rate
 
 
+@functools.lru_cache(maxsize=8)
+def _k_weighting(rate: int) -> np.ndarray:
+    """The K-weighting sections for one rate, designed once per process and shared by every
+    meter of that rate: never modify (scipy's sosfilt kernel refuses read-only arrays)."""
+    return np.ascontiguousarray(k_weighting_sos(rate), dtype=np.float64)
+
+
 class LoudnessMeter:
     """BS.1770 momentary / short-term / integrated loudness and EBU Tech 3342 LRA."""
 
@@ -211,7 +219,7 @@ class LoudnessMeter:
         self.active = np.flatnonzero(weights > 0.0)
         self.all_active = self.active.size == weights.size
         self.weights = weights[self.active]
-        self.sos = np.ascontiguousarray(k_weighting_sos(self.rate), dtype=np.float64)
+        self.sos = _k_weighting(self.rate)
         self.zi = np.zeros((self.active.size, self.sos.shape[0], 2))  # per channel, section
         # Compiled K-weighting (checker/dsp/native.py): filters without copying the block.
         self.native = native.enabled() and self.sos.shape == (2, 6)

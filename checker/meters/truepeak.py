@@ -92,6 +92,7 @@ block) and sends the rest to the per-chunk code.
 from __future__ import annotations
 
 import copy
+import functools
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -164,6 +165,39 @@ class _State:
     over_index: list[int] = field(default_factory=list)  # grid indices of first run starts
 
 
+@dataclass(frozen=True)
+class _Design:
+    interp: ChunkInterpolator
+    phase_rows: np.ndarray  # phases 1..factor-1 as rows (float32), for the compiled grid
+    fine_taps: np.ndarray
+    tap_bound: float
+    bound: np.ndarray
+
+
+@functools.lru_cache(maxsize=4)
+def _design(factor: int) -> _Design:
+    """The filters for one oversampling factor, built once per process (a few ms per file
+    otherwise) and shared read-only by every meter of that factor."""
+    phases = design_phases(factor)
+    interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
+    phase_rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
+    fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS, phases.shape[0])
+    # Skip bound over every grid phase (as the float32 product uses them) and fine offset.
+    rows = np.concatenate([phases.T.astype(np.float32).astype(np.float64), fine_taps])
+    tap_bound = float(phase_abs_sums(rows.T).max())
+    bound = np.array(
+        [
+            tap_bound,
+            float(np.abs(rows.sum(axis=1)).max()),
+            float(step_weights(rows).max()),
+            BOUND_MARGIN,
+        ]
+    )
+    for a in (interp.matrix, phase_rows, fine_taps, bound):
+        a.flags.writeable = False
+    return _Design(interp, phase_rows, fine_taps, tap_bound, bound)
+
+
 class TruePeakMeter:
     """Streaming true-peak meter; see the module docstring for the method."""
 
@@ -186,23 +220,10 @@ class TruePeakMeter:
         if factor not in (1, 2, 4):
             raise ValueError(f"TruePeakMeter: oversampling = {factor} (expected 1, 2 or 4)")
         self.factor = factor
-        phases = design_phases(factor)
-        self.interp_taps = phases.shape[0]
-        self.interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
-        #: Phases 1..factor-1 as rows (float32), for the compiled grid.
-        self.phase_rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
-        self.fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS, self.interp_taps)
-        # Skip bound over every grid phase (as the float32 product uses them) and fine offset.
-        rows = np.concatenate([phases.T.astype(np.float32).astype(np.float64), self.fine_taps])
-        self.tap_bound = float(phase_abs_sums(rows.T).max())
-        self.bound = np.array(
-            [
-                self.tap_bound,
-                float(np.abs(rows.sum(axis=1)).max()),
-                float(step_weights(rows).max()),
-                BOUND_MARGIN,
-            ]
-        )
+        d = _design(factor)
+        self.interp, self.phase_rows, self.fine_taps = d.interp, d.phase_rows, d.fine_taps
+        self.interp_taps = self.interp.taps
+        self.tap_bound, self.bound = d.tap_bound, d.bound
         self.fine_omega = math.pi / FINE_STEPS
         self.fine_bound = refine_gain_bound(self.fine_omega)
         # Candidate selection only (not part of the skip bound): band-limited content.

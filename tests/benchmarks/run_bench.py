@@ -1,16 +1,22 @@
 """`make bench`: the one-pass analysis against plain decoding and the reference libraries.
 
-Every command runs in its own process; commands alternate within each
-repetition; the table shows medians and ratios measured side by side in this
-one run (the machine is shared and noisy: compare ratios, not lone times).
-Peak RSS comes from os.wait4 on each child (started by spawner.py).
+Every command runs in its own process (started by spawner.py, without
+OPENBLAS_CORETYPE / OPENBLAS_L2_SIZE); commands alternate within each repetition;
+the tables show medians and ratios measured side by side in this one run (the
+machine is shared and noisy: compare ratios, not lone times). CPU is user + system
+time of the command's whole process tree (workers included); peak RSS comes from
+os.wait4 on the command's own process.
 
-Rows: (a) decode only; (b) `deliverycheck measure` as users run it (it decodes
-ahead in a second thread); (b1) the same analysis on one thread, what a batch
-worker spends per file; (c) pyloudnorm integrated; (d) pyebur128 integrated +
-LRA + true peak + sample peak.
+Per file (threads used by each row in brackets): (a) decode only [1]; (b)
+`deliverycheck measure` as users run it [2: it decodes ahead in a second thread];
+(b1) the same analysis on one thread, what a batch worker spends per file [1]; (b0)
+b with the compiled kernels off [2]; (c) pyloudnorm integrated [1]; (d) pyebur128
+integrated + LRA + true peak + sample peak [1]; (d1) pyebur128 integrated only [1].
+Then: a batch with --jobs 1 and --jobs 2, the same with a second process spinning
+on one core; the per-file overhead of one-second files against the same audio as
+one file (--jobs 1); with --long, peak RSS of a 3-hour file against a 10-minute one.
 
-    python tests/benchmarks/run_bench.py            # full set (generates ~3.5 GB once, cached)
+    python tests/benchmarks/run_bench.py            # full set (generates ~5 GB once, cached)
     python tests/benchmarks/run_bench.py --quick    # shorter files, fewer repetitions
     python tests/benchmarks/run_bench.py --tiny     # seconds-long smoke run (used by the test suite)
     python tests/benchmarks/run_bench.py --long     # adds the memory check: a 3-hour file
@@ -20,12 +26,14 @@ LRA + true peak + sample peak.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import os
 import statistics
 import subprocess
 import sys
 import zlib
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -61,14 +69,22 @@ def programme_chunk(rng: np.random.Generator, n: int, channels: int, rate: int) 
     return x * 0.05
 
 
-def make_file(path: Path, minutes: float, channels: int, rate: int, subtype: str, limited: bool):
+def make_file(
+    path: Path,
+    minutes: float,
+    channels: int,
+    rate: int,
+    subtype: str,
+    limited: bool,
+    fmt: str = "WAV",
+):
     if path.exists():
         return path
     path.parent.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(zlib.crc32(path.name.encode()))  # stable across processes
-    tmp = path.with_suffix(".part")
+    tmp = path.with_name(path.name + ".part")
     total = int(minutes * 60 * rate)
-    with sf.SoundFile(str(tmp), "w", rate, channels, subtype=subtype, format="WAV") as f:
+    with sf.SoundFile(str(tmp), "w", rate, channels, subtype=subtype, format=fmt) as f:
         done = 0
         while done < total:
             n = min(60 * rate, total - done)
@@ -95,9 +111,16 @@ def precompile() -> None:
 _spawner: subprocess.Popen | None = None
 
 
-def run_once(cmd: list[str]) -> tuple[float, float, int]:
-    """(wall seconds, peak RSS MB, exit status) of one child process, started by the
-    small spawner process (see spawner.py: why not from this one)."""
+@dataclass
+class Run:
+    wall_s: float
+    rss_mb: float
+    cpu_s: float
+
+
+def run_once(cmd: list[str]) -> Run:
+    """One command in its own process, started by the small spawner process (see
+    spawner.py: why not from this one, and how CPU of a process tree is counted)."""
     global _spawner
     if _spawner is None:
         _spawner = subprocess.Popen(
@@ -109,16 +132,38 @@ def run_once(cmd: list[str]) -> tuple[float, float, int]:
     assert _spawner.stdin is not None and _spawner.stdout is not None
     _spawner.stdin.write(json.dumps(cmd) + "\n")
     _spawner.stdin.flush()
-    wall, mb, status, err = json.loads(_spawner.stdout.readline())
+    wall, mb, status, err, cpu = json.loads(_spawner.stdout.readline())
     if status not in (0, 1):
         raise SystemExit(f"bench: {' '.join(cmd)} exited {status}: {err.strip()[-400:]}")
-    return wall, mb, status
+    return Run(wall, mb, cpu)
+
+
+def medians(runs: list[Run]) -> Run:
+    return Run(
+        statistics.median(r.wall_s for r in runs),
+        max(r.rss_mb for r in runs),
+        statistics.median(r.cpu_s for r in runs),
+    )
+
+
+#: Threads each per-file command runs (the rows' labels).
+THREADS = {
+    "a decode": 1,
+    "b deliverycheck": 2,
+    "b0 numpy kernels": 2,
+    "b1 one thread": 1,
+    "c pyloudnorm": 1,
+    "d pyebur128": 1,
+    "d1 pyebur128 I": 1,
+    "s speech gate": 2,
+}
 
 
 def commands(path: Path) -> dict[str, list[str]]:
     w = str(HERE / "workloads.py")
+    block = engine_block(path)
     return {
-        "a decode": [PY, w, "decode", str(path), engine_block(path)],
+        "a decode": [PY, w, "decode", str(path), block],
         "b deliverycheck": [EXE, "measure", "--json", str(path)],
         "b0 numpy kernels": [
             "env",
@@ -131,47 +176,62 @@ def commands(path: Path) -> dict[str, list[str]]:
         "b1 one thread": [PY, w, "measure1", str(path)],
         "s speech gate": [EXE, "measure", "--speech", "--json", str(path)],  # 44.1 kHz file only
         "c pyloudnorm": [PY, w, "pyloudnorm", str(path)],
-        "d pyebur128": [PY, w, "pyebur128", str(path), engine_block(path)],
+        "d pyebur128": [PY, w, "pyebur128", str(path), block],
+        "d1 pyebur128 I": [PY, w, "pyebur128i", str(path), block],
     }
 
 
-def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, tuple[float, float]]:
+def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, Run]:
     info = sf.info(str(path))
     cmds = {k: v for k, v in commands(path).items() if k not in skip}
-    times: dict[str, list[float]] = {k: [] for k in cmds}
-    rss: dict[str, float] = dict.fromkeys(cmds, 0.0)
+    runs: dict[str, list[Run]] = {k: [] for k in cmds}
     for _ in range(reps):
         for name, cmd in cmds.items():  # alternate the commands inside each repetition
-            wall, mb, _ = run_once(cmd)
-            times[name].append(wall)
-            rss[name] = max(rss[name], mb)
-    result = {k: (statistics.median(v), rss[k]) for k, v in times.items()}
+            runs[name].append(run_once(cmd))
+    result = {k: medians(v) for k, v in runs.items()}
     dur = info.frames / info.samplerate
     print(
-        f"\n{path.name}: {dur / 60:.1f} min, {info.channels} ch, {info.samplerate} Hz, {info.subtype}"
+        f"\n{path.name}: {dur / 60:.1f} min, {info.channels} ch, {info.samplerate} Hz, "
+        f"{info.format} {info.subtype}"
     )
-    print(f"  {'command':<18} {'median s':>9} {'x realtime':>11} {'peak RSS MB':>12}")
-    for k, (t, mb) in result.items():
-        print(f"  {k:<18} {t:>9.2f} {dur / t:>11.0f} {mb:>12.0f}")
+    a_cpu = result["a decode"].cpu_s
+    print(
+        f"  {'command':<18} {'threads':>7} {'wall s':>8} {'x realtime':>11} {'CPU s':>8}"
+        f" {'CPU/a':>6} {'peak RSS MB':>12}"
+    )
+    for k, r in result.items():
+        print(
+            f"  {k:<18} {THREADS[k]:>7} {r.wall_s:>8.2f} {dur / r.wall_s:>11.0f} {r.cpu_s:>8.2f}"
+            f" {r.cpu_s / a_cpu:>6.2f} {r.rss_mb:>12.0f}"
+        )
     computed, seen = truepeak_skip(path)
     if seen:
         print(
             f"  true peak: {computed} of {seen} chunk-channels interpolated "
             f"({100 * computed / seen:.0f} %; the rest skipped by the exact bound)"
         )
-    b = result["b deliverycheck"][0]
-    ratios = [f"b/a = {b / result['a decode'][0]:.2f}"]
+    b, b1 = result["b deliverycheck"], result.get("b1 one thread")
+    ratios = [f"b/a = {b.wall_s / result['a decode'].wall_s:.2f} (wall)"]
+    if b1:
+        ratios.append(f"b1/a = {b1.cpu_s / a_cpu:.2f} (CPU, one thread each; target <= 2.5)")
     if "b0 numpy kernels" in result:
-        ratios.append(f"b0/a = {result['b0 numpy kernels'][0] / result['a decode'][0]:.2f}")
-    if "b1 one thread" in result:
-        ratios.append(f"b1/a = {result['b1 one thread'][0] / result['a decode'][0]:.2f}")
+        ratios.append(f"b0/a = {result['b0 numpy kernels'].cpu_s / a_cpu:.2f} (CPU)")
     if "s speech gate" in result:
-        ratios.append(f"s/b = {result['s speech gate'][0] / b:.2f}")
+        s = result["s speech gate"]
+        ratios.append(f"s/b = {s.cpu_s / b.cpu_s:.2f} (CPU: the speech gate's cost)")
     if "c pyloudnorm" in result:
-        ratios.append(f"c/b = {result['c pyloudnorm'][0] / b:.2f}")
+        c = result["c pyloudnorm"]
+        ratios.append(
+            f"c/b = {c.wall_s / b.wall_s:.2f} (wall), RSS c/b = {c.rss_mb / b.rss_mb:.0f}"
+        )
     if "d pyebur128" in result:
-        ratios.append(f"d/b = {result['d pyebur128'][0] / b:.2f}")
-    print("  ratios: " + ", ".join(ratios))
+        d = result["d pyebur128"]
+        ratios.append(f"d/b = {d.wall_s / b.wall_s:.2f} (wall)")
+        if b1:
+            ratios.append(f"d/b1 = {d.cpu_s / b1.cpu_s:.2f} (CPU, one thread each; target >= 4)")
+    if "d1 pyebur128 I" in result and b1:
+        ratios.append(f"d1/b1 = {result['d1 pyebur128 I'].cpu_s / b1.cpu_s:.2f} (CPU)")
+    print("  ratios: " + "; ".join(ratios))
     return result
 
 
@@ -186,18 +246,17 @@ def truepeak_skip(path: Path) -> tuple[int, int]:
 
 def bench_memory(long_file: Path, short_file: Path, reps: int) -> None:
     """Peak RSS of (b) on a 3-hour file against a 10-minute one: streaming keeps it flat."""
-    print("\nmemory: deliverycheck measure, peak RSS (MB) by file length")
+    print("\nmemory: deliverycheck measure (2 threads), peak RSS (MB) by file length")
     rows, minutes = [], []
     for path in (short_file, long_file):
         info = sf.info(str(path))
-        runs = [run_once(commands(path)["b deliverycheck"]) for _ in range(reps)]
-        wall = statistics.median(r[0] for r in runs)
-        mb = max(r[1] for r in runs)
+        r = medians([run_once(commands(path)["b deliverycheck"]) for _ in range(reps)])
         dur = info.frames / info.samplerate
-        rows.append(mb)
+        rows.append(r.rss_mb)
         minutes.append(dur / 60)
         print(
-            f"  {dur / 60:6.1f} min: {mb:6.0f} MB peak RSS, {wall:7.2f} s, {dur / wall:5.0f}x realtime"
+            f"  {dur / 60:6.1f} min: {r.rss_mb:6.0f} MB peak RSS, {r.wall_s:7.2f} s, "
+            f"{dur / r.wall_s:5.0f}x realtime"
         )
     print(
         f"  peak RSS {minutes[1]:.0f} min / {minutes[0]:.0f} min = {rows[1] / rows[0]:.2f} "
@@ -205,16 +264,79 @@ def bench_memory(long_file: Path, short_file: Path, reps: int) -> None:
     )
 
 
+def check_cmd(inputs: list[Path], jobs: int, out: Path) -> list[str]:
+    cmd = [EXE, "check", *map(str, inputs), "--profile", "measure-only", "--jobs", str(jobs)]
+    return cmd + ["--out", str(out), "--fresh", "--quiet"]
+
+
+@contextlib.contextmanager
+def spinning_core():
+    """A second process spinning on one core for the duration (the concurrent load)."""
+    spin = subprocess.Popen([PY, "-c", "while True: pass"])
+    try:
+        yield
+    finally:
+        spin.kill()
+        spin.wait()
+
+
 def bench_jobs(files: list[Path], reps: int, out: Path) -> None:
-    walls = {1: [], 2: []}
+    """--jobs 1 against --jobs 2 on a batch, unloaded and with one core kept busy."""
+    walls: dict[tuple[int, bool], list[Run]] = {(j, s): [] for j in (1, 2) for s in (False, True)}
     for _ in range(reps):
-        for jobs in (1, 2):
-            cmd = [EXE, "check", *map(str, files), "--profile", "measure-only", "--jobs", str(jobs)]
-            cmd += ["--out", str(out / f"jobs{jobs}"), "--fresh", "--quiet"]
-            walls[jobs].append(run_once(cmd)[0])
-    m1, m2 = statistics.median(walls[1]), statistics.median(walls[2])
-    print(f"\nbatch of {len(files)} files: --jobs 1 {m1:.1f} s, --jobs 2 {m2:.1f} s")
-    print(f"  throughput ratio jobs2/jobs1 = {m1 / m2:.2f} (target >= 1.8 on 2 cores)")
+        for loaded in (False, True):
+            with spinning_core() if loaded else contextlib.nullcontext():
+                for jobs in (1, 2):
+                    walls[jobs, loaded].append(run_once(check_cmd(files, jobs, out / f"j{jobs}")))
+    m = {k: medians(v) for k, v in walls.items()}
+    print(f"\nbatch of {len(files)} files, check (one thread per worker), {CORES} cores:")
+    for (jobs, loaded), r in m.items():
+        load = "with a one-core spinner" if loaded else "unloaded"
+        print(f"  --jobs {jobs} {load:<24} wall {r.wall_s:7.2f} s, CPU {r.cpu_s:7.2f} s")
+    print(
+        f"  throughput ratio jobs2/jobs1 = {m[1, False].wall_s / m[2, False].wall_s:.2f}"
+        " (target >= 1.8 on 2 cores)"
+    )
+    print(
+        f"  under load / unloaded: --jobs 2 {m[2, True].wall_s / m[2, False].wall_s:.2f}, "
+        f"--jobs 1 {m[1, True].wall_s / m[1, False].wall_s:.2f} (target <= 1.6)"
+    )
+
+
+def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> None:
+    """Per-file overhead: N one-second files against the same N seconds as one file, both
+    `check --jobs 1` (one worker, one thread), runs alternating."""
+    runs: dict[str, list[Run]] = {"files": [], "one": []}
+    for _ in range(reps):
+        runs["files"].append(run_once(check_cmd([shorts[0].parent], 1, out / "files")))
+        runs["one"].append(run_once(check_cmd([joined], 1, out / "one")))
+    f, o = medians(runs["files"]), medians(runs["one"])
+    n = len(shorts)
+    print(f"\nper-file overhead: {n} one-second files vs one {n}-second file, --jobs 1 (1 thread):")
+    print(f"  {n} files: wall {f.wall_s:.2f} s, CPU {f.cpu_s:.2f} s")
+    print(f"  one file: wall {o.wall_s:.2f} s, CPU {o.cpu_s:.2f} s")
+    print(
+        f"  overhead per file: wall {1000 * (f.wall_s - o.wall_s) / n:.1f} ms, "
+        f"CPU {1000 * (f.cpu_s - o.cpu_s) / n:.1f} ms (target <= 5 ms)"
+    )
+
+
+def make_shorts(folder: Path, n: int) -> tuple[list[Path], Path]:
+    """n one-second stereo files cut from one programme, and the same audio as one file."""
+    joined = folder.parent / f"{folder.name}-joined.wav"
+    shorts = [folder / f"clip-{i:04d}.wav" for i in range(n)]
+    if joined.exists() and all(p.exists() for p in shorts):
+        return shorts, joined
+    src = make_file(folder.parent / f"{folder.name}-source.wav", n / 60, 2, 48_000, "PCM_24", False)
+    x, rate = sf.read(str(src))
+    folder.mkdir(parents=True, exist_ok=True)
+    for i, p in enumerate(shorts):
+        sf.write(str(p), x[i * rate : (i + 1) * rate], rate, subtype="PCM_24")
+    sf.write(str(joined), x[: n * rate], rate, subtype="PCM_24")
+    return shorts, joined
+
+
+CORES = os.cpu_count() or 1
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -228,25 +350,20 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--cache", type=Path, default=CACHE)
     args = p.parse_args(argv)
     if args.tiny:
-        scale, reps, batch = 0.05, args.reps or 1, 2  # 3-second files
+        scale, reps, batch, clips = 0.02, args.reps or 1, 2, 10  # 1.2-second files
     elif args.quick:
-        scale, reps, batch = 1 / 6, args.reps or 3, 4
+        scale, reps, batch, clips = 1 / 6, args.reps or 3, 4, 100
     else:
-        scale, reps, batch = 1.0, args.reps or 5, 16
+        scale, reps, batch, clips = 1.0, args.reps or 5, 16, 200
     c = args.cache
     files = [
-        (
-            make_file(c / f"programme-60min-{scale:g}.wav", 60 * scale, 2, 48_000, "PCM_24", False),
-            set(),
-        ),
-        (
-            make_file(c / f"surround-20min-{scale:g}.wav", 20 * scale, 6, 48_000, "PCM_24", False),
-            set(),
-        ),
-        (make_file(c / f"cd-10min-{scale:g}.wav", 10 * scale, 2, 44_100, "PCM_16", False), set()),
-        (
-            make_file(c / f"limited-10min-{scale:g}.wav", 10 * scale, 2, 48_000, "PCM_24", True),
-            set(),
+        make_file(c / f"programme-60min-{scale:g}.wav", 60 * scale, 2, 48_000, "PCM_24", False),
+        make_file(c / f"surround-20min-{scale:g}.wav", 20 * scale, 6, 48_000, "PCM_24", False),
+        make_file(c / f"cd-10min-{scale:g}.wav", 10 * scale, 2, 44_100, "PCM_16", False),
+        make_file(c / f"limited-10min-{scale:g}.wav", 10 * scale, 2, 48_000, "PCM_24", True),
+        make_file(c / f"hires-10min-{scale:g}.wav", 10 * scale, 2, 96_000, "PCM_24", False),
+        make_file(
+            c / f"programme-10min-{scale:g}.flac", 10 * scale, 2, 48_000, "PCM_24", False, "FLAC"
         ),
     ]
     for path, skip in files:  # the speech gate (measure --speech) costs minutes: one file
@@ -255,17 +372,23 @@ def main(argv: list[str] | None = None) -> int:
     precompile()
     from checker.dsp import native
 
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(
-        f"deliverycheck benchmark: {reps} repetition(s), medians; each command in its own process"
-        f"; b: {native.status()}, b0: the numpy path (DELIVERYCHECK_KERNELS=numpy)"
+        f"deliverycheck benchmark: {reps} repetition(s), medians; each command in its own process;"
+        f" {CORES} cores, load average {load:.1f} at start; b: {native.status()}, "
+        "b0: the numpy path (DELIVERYCHECK_KERNELS=numpy); library pools: one thread"
     )
-    for path, skip in files:
-        bench_file(path, reps, skip)
+    # the smoke run (--tiny) shows every comparison once, on the first file
+    lean = {"b0 numpy kernels", "c pyloudnorm", "d1 pyebur128 I"} if args.tiny else set()
+    for i, path in enumerate(files):
+        bench_file(path, reps, lean if i else set())
     ten = [
         make_file(c / f"batch-{i:02d}-{scale:g}.wav", 10 * scale, 2, 48_000, "PCM_24", False)
         for i in range(batch)
     ]
     bench_jobs(ten, max(1, min(reps, 3)), c / "batch-out")
+    shorts, joined = make_shorts(c / f"clips-{clips}", clips)
+    bench_overhead(shorts, joined, max(1, min(reps, 5)), c / "clips-out")
     if args.long:
         long_file = make_file(
             c / f"programme-180min-{scale:g}.wav", 180 * scale, 2, 48_000, "PCM_24", False

@@ -25,30 +25,32 @@ def pyloudnorm_integrated(path: str) -> None:
     pyloudnorm.Meter(rate).integrated_loudness(data)
 
 
-def pyebur128_full(path: str, block_frames: int) -> None:
-    """(d) pyebur128: integrated + LRA + true peak + sample peak, fed in blocks."""
+def pyebur128_run(path: str, block_frames: int, full: bool = True) -> None:
+    """(d) pyebur128: integrated + LRA + true peak + sample peak, fed in blocks;
+    (d1, full=False) integrated loudness only. One thread either way."""
     import pyebur128 as e
 
     with sf.SoundFile(path) as f:
         mode = e.MeasurementMode
-        state = e.R128State(
-            f.channels,
-            f.samplerate,
-            mode.MODE_I | mode.MODE_LRA | mode.MODE_TRUE_PEAK | mode.MODE_SAMPLE_PEAK,
-        )
+        modes = mode.MODE_I
+        if full:
+            modes |= mode.MODE_LRA | mode.MODE_TRUE_PEAK | mode.MODE_SAMPLE_PEAK
+        state = e.R128State(f.channels, f.samplerate, modes)
         for block in f.blocks(blocksize=block_frames, dtype="float64", always_2d=True):
             buf = np.ascontiguousarray(block).ravel()
             state.add_frames(buf, block.shape[0])
         e.get_loudness_global(state)
-        e.get_loudness_range(state)
-        for c in range(f.channels):
-            e.get_true_peak(state, c)
-            e.get_sample_peak(state, c)
+        if full:
+            e.get_loudness_range(state)
+            for c in range(f.channels):
+                e.get_true_peak(state, c)
+                e.get_sample_peak(state, c)
 
 
 def measure_one_thread(path: str) -> None:
     """(b1) The same analysis as `deliverycheck measure`, without its read-ahead thread:
-    what one file costs on one core (a batch worker's case)."""
+    what one file costs on one core (a batch worker's case; measure() runs the library
+    pools at one thread)."""
     from checker.measure import measure
 
     measure(path)
@@ -77,7 +79,9 @@ if __name__ == "__main__":
     elif which == "pyloudnorm":
         pyloudnorm_integrated(path)
     elif which == "pyebur128":
-        pyebur128_full(path, frames)
+        pyebur128_run(path, frames)
+    elif which == "pyebur128i":
+        pyebur128_run(path, frames, full=False)
     elif which == "measure1":
         measure_one_thread(path)
     elif which == "tpskip":
