@@ -137,7 +137,7 @@ def fix_items(results: Sequence[FileResult]) -> list[FixItem]:
     items: list[FixItem] = []
     for r in sorted_results(results):
         if r.status == ERROR and r.error:
-            items.append(FixItem("resend", r, None, "not checked", r.error))
+            items.append(FixItem("resend", r, None, "could not be checked", r.error))
         for f in r.verdict.flags if r.verdict else ():
             g = group_of(f, r)
             d = BY_KEY.get(f.rule)
