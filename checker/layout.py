@@ -1,6 +1,6 @@
 """Channel layouts and BS.1770 channel weights.
 
-BS.1770-4 (checked, see standards notes): weight 1.0 for L, R, C; 1.41 for a
+BS.1770-4 (checked, see docs/standards.md): weight 1.0 for L, R, C; 1.41 for a
 channel with |elevation| < 30 deg and 60 <= |azimuth| <= 120 deg; 1.0 for every
 other position (rear pairs near 135-150 deg, height channels); the LFE channel
 is excluded (weight 0).
@@ -162,7 +162,7 @@ def parse_layout(text: str, channels: int) -> Layout:
     return Layout(labels, "given")
 
 
-#: WAVE_FORMAT_EXTENSIBLE speaker bits (standards notes, WAV details), in bit order.
+#: WAVE_FORMAT_EXTENSIBLE speaker bits (docs/standards.md, WAV details), in bit order.
 #: "Back" and "side" pairs: when both are present (7.1, 0x63F) the back pair is the
 #: rear pair at about 150 deg (weight 1.0) and the side pair sits at 90 deg (1.41).
 #: When only one pair is present (5.1 as 0x3F or 0x60F, quad 0x33) that pair is the

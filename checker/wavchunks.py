@@ -14,7 +14,7 @@ Rules it keeps:
   chunk larger than the file = truncated file; an odd-sized chunk without its
   pad byte; a second ``fmt `` chunk; a size claim of gigabytes in a tiny file).
 
-Facts used (see the project's standards notes):
+Facts used (see docs/standards.md):
 - ``bext`` (EBU Tech 3285 v2): Version (WORD) at body offset 346; LoudnessValue,
   LoudnessRange, MaxTruePeakLevel, MaxMomentaryLoudness, MaxShortTermLoudness at
   412, 414, 416, 418, 420, each int16 holding 100 x the value; 0x7FFF = not set;

@@ -1,7 +1,7 @@
 """Loudness conformance: BS.1770-4 coefficients and calibration, EBU Tech 3341 and 3342 cases.
 
 Signals are synthesised from the published test-signal descriptions (parameters as
-collected in the project's standards notes: secondary copies of the test-case tables,
+collected in docs/standards.md: secondary copies of the test-case tables,
 checked against several sources but not against the PDFs; the durations of Tech 3341 cases 9 and 12 are
 derived from the expected result). Levels are the peak level of a 1 kHz sine in
 dBFS, stereo, both channels in phase, as in EBU Tech 3341/3342.
@@ -56,7 +56,7 @@ def measure_file(tmp_path, x: np.ndarray, rate: int = RATE, name: str = "x.wav")
 
 def test_bs1770_annex1_tables_at_48k():
     # ITU-R BS.1770-4 Annex 1 Table 1 (stage 1, shelving) and Table 2 (stage 2, high-pass),
-    # values as printed (checked, see standards notes); required to 1e-8 by issue 2.
+    # values as printed (checked, see docs/standards.md); required to 1e-8 by issue 2.
     table1 = [1.53512485958697, -2.69169618940638, 1.19839281085285]
     table1_a = [1.0, -1.69065929318241, 0.73248077421585]
     table2 = [1.0, -2.0, 1.0]

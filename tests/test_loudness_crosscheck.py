@@ -2,7 +2,7 @@
 
 References (test oracles only): pyebur128 (libebur128) and pyloudnorm built with
 ``filter_class="DeMan"`` (its filter matching BS.1770-4 Annex 1; the default one reads
-about 0.04 LU low, see standards notes). Signals: seeded programme-like material
+about 0.04 LU low, see docs/standards.md). Signals: seeded programme-like material
 (tests/signals.programme: shaped noise with level changes and pauses).
 
 Tolerances are issue 2's acceptance limits: integrated within 0.05 LU of both
@@ -69,7 +69,7 @@ def ours(x: np.ndarray, rate: int) -> LoudnessMeter:
 
 
 def ebur128(x: np.ndarray, rate: int, poll: bool = True) -> dict[str, float]:
-    """pyebur128 fed 10 ms at a time, polling M and S after each chunk (standards notes)."""
+    """pyebur128 fed 10 ms at a time, polling M and S after each chunk (docs/standards.md)."""
     frames, channels = x.shape
     mode = (
         pyebur128.MeasurementMode.MODE_I
@@ -109,7 +109,7 @@ def test_against_pyebur128_and_pyloudnorm(rate, channels, duration_s, seed):
     meter = ours(x, rate)
     got = meter.result()
     ref = ebur128(x, rate)
-    # pyloudnorm's "DeMan" filter matches BS.1770-4 Annex 1 (standards notes, measured).
+    # pyloudnorm's "DeMan" filter matches BS.1770-4 Annex 1 (docs/standards.md, measured).
     pln = pyloudnorm.Meter(rate, filter_class="DeMan")
     if channels == 6:
         pln_x = np.delete(x, 3, axis=1)  # pyloudnorm has no LFE role: drop it,

@@ -105,11 +105,11 @@ PUBLISHED = [
     ("mastering-stems", "sample_peak_max_dbfs", -3.0, None, "common practice"),
     ("mastering-stems", "clipped_runs_max", 0, None, "common practice"),
     # DC offset: no normative threshold; suggested warn above 0.1 % FS = -60 dBFS,
-    # fail above 1 % FS = -40 dBFS (common practice, standards notes)
+    # fail above 1 % FS = -40 dBFS (common practice, docs/standards.md)
     ("ebu-r128", "dc_offset_max_dbfs", -40.0, None, "common practice"),
 ]
 
-#: Values the standards notes tag "memory": their sources must say "from memory".
+#: Values the docs/standards.md tag "memory": their sources must say "from memory".
 FROM_MEMORY = {
     ("atsc-a85", "true_peak_max_dbtp"),
     ("free-tv-op59", "true_peak_max_dbtp"),
@@ -139,7 +139,7 @@ def test_shipped_numbers_match_the_published_values(name, key, value, tolerance,
 
 
 def test_aes_td1004_range_is_minus_20_to_minus_16():
-    # AES TD1004: "between -20 and -16 LUFS" (standards notes, checked)
+    # AES TD1004: "between -20 and -16 LUFS" (docs/standards.md, checked)
     lim = load_profile("aes-td1004").limit("integrated_target_lufs")
     assert_allclose(
         [lim.value - lim.tolerance_lu, lim.value + lim.tolerance_lu], [-20, -16], atol=0

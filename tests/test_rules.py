@@ -366,7 +366,7 @@ def test_silent_file_loudness_says_why(tmp_path):
     [(-60.0, PASS, None), (-59.99, WARN, -60.0), (-40.0, WARN, -60.0), (-39.99, FAIL, -40.0)],
 )
 def test_warn_value_gives_a_warning_band(tmp_path, dc, status, limit):
-    # common practice (standards notes): warn above 0.1 % FS (-60 dBFS), fail above 1 % (-40)
+    # common practice (docs/standards.md): warn above 0.1 % FS (-60 dBFS), fail above 1 % (-40)
     profile = one_limit_profile(tmp_path, "dc_offset_max_dbfs", -40.0, warn_value=-60.0)
     verdict = evaluate(m({"dc_offset_dbfs": dc}), profile)
     assert verdict.status == status
@@ -542,7 +542,7 @@ def test_gain_advice_within_tolerance_and_without_target():
 
 
 # BS.1770 weights one channel 1.0, so the same audio on two identical channels
-# reads 10 log10(2) = 3.01 LU higher (standards notes, "Mono", checked).
+# reads 10 log10(2) = 3.01 LU higher (docs/standards.md, "Mono", checked).
 MONO_19 = {"channels": 1, "integrated_lufs": -19.0, "integrated_dual_mono_lufs": -15.99}
 
 

@@ -1,7 +1,7 @@
 """True-peak meter (checker/meters/truepeak.py) and its interpolator (checker/dsp/interp.py).
 
-Sources of expected values are named beside each check. "Standards notes" means the
-project's standards notes (EBU Tech 3341 parameters there come from secondary copies
+Sources of expected values are named beside each check. "docs/standards.md" means the
+project's reference sheet (EBU Tech 3341 parameters there come from secondary copies
 of the test-case tables, checked against each other, not against the PDF).
 """
 
@@ -80,7 +80,7 @@ def stereo(x: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------- EBU Tech 3341 ---------
-# Cases 15-19 (standards notes, EBU Tech 3341 table): 48 kHz stereo, both channels in phase,
+# Cases 15-19 (docs/standards.md, EBU Tech 3341 table): 48 kHz stereo, both channels in phase,
 # sine of the given frequency, amplitude and starting phase. Tolerance in the document:
 # +0.2 / -0.4 dB; we assert our aim of +-0.05 dB, which implies it.
 TECH3341_TP = {
@@ -92,7 +92,7 @@ TECH3341_TP = {
 }
 # Sample peaks derived by hand from the same parameters (amplitude x the largest |sin| the
 # sampled phases reach): 15: 0.5 -> -6.02; 16: 0.5 sin 45 deg -> -9.03 (the value quoted for
-# case 16 in the standards notes); 17: 0.5 sin 60 -> -7.27; 18: 0.5 sin 67.5 -> -6.71;
+# case 16 in the docs/standards.md); 17: 0.5 sin 60 -> -7.27; 18: 0.5 sin 67.5 -> -6.71;
 # 19: 1.41 sin 45 -> -0.03 dBFS.
 TECH3341_SAMPLE_PEAK_DBFS = {15: -6.02, 16: -9.03, 17: -7.27, 18: -6.71, 19: -0.03}
 
@@ -120,7 +120,7 @@ def test_tech3341_cases_15_to_19(case):
 
 
 def tech3341_case_20_to_23(offset: int) -> np.ndarray:
-    """Cases 20-23 as described in the standards notes: one fs/4 cycle inside an fs/6 tone,
+    """Cases 20-23 as described in the docs/standards.md: one fs/4 cycle inside an fs/6 tone,
     made at 4 fs and decimated at offsets 0-3; expected 0.0 dBTP.
 
     Our reconstruction (the description gives no levels; these are our choices): at 192 kHz
@@ -175,7 +175,7 @@ def test_sine_sweep_under_and_over_read_bounds(rate):
         worst_low, worst_high = min(worst_low, err.min()), max(worst_high, err.max())
     assert worst_low >= -UNDER_READ_BOUND_DB, worst_low
     assert worst_high <= OVER_READ_BOUND_DB, worst_high
-    # The grid alone under-reads by 20 log10(cos(pi f / n)) (standards notes, BS.1770 Annex 2
+    # The grid alone under-reads by 20 log10(cos(pi f / n)) (docs/standards.md, BS.1770 Annex 2
     # discussion): 0.55 dB at 0.45 fs, 4x. Make sure the sweep reached that region.
     assert db(math.cos(math.pi * 0.45 / oversampling_for_rate(rate))) < -0.5
 
@@ -215,7 +215,7 @@ def faded_programme(seconds, rate, seed):
 def ebur128_true_peak_db(x, rate):
     state = pyebur128.R128State(x.shape[1], rate, pyebur128.MeasurementMode.MODE_TRUE_PEAK)
     buf = np.ascontiguousarray(x, dtype=np.float64).reshape(-1)
-    state.add_frames(buf, x.shape[0])  # frame count, not sample count (standards notes)
+    state.add_frames(buf, x.shape[0])  # frame count, not sample count (docs/standards.md)
     return np.array([db(pyebur128.get_true_peak(state, c)) for c in range(x.shape[1])])
 
 

@@ -10,7 +10,7 @@ where it can read at most ``20 log10(cos(pi * 0.5 / 256))`` = 0.0002 dB low (a t
 Nyquist, derived). Transients sit in the middle of the file, far from the edges (and in
 a chunk the meter handles while fed, not in result()).
 
-Targets (issue 16; EBU Tech 3341 tolerance +0.2 / -0.4 dB, from the standards notes): at
+Targets (issue 16; EBU Tech 3341 tolerance +0.2 / -0.4 dB, from the docs/standards.md): at
 most 0.1 dB low for content up to 0.45 fs; within +0.2 / -0.4 dB up to 0.48 fs. Each
 table also asserts the bound measured here (tighter, marked "measured"), so that a
 regression shows before it reaches the targets.
@@ -41,7 +41,7 @@ from checker.meters.truepeak import TruePeakMeter
 N = 12_288  # one period of every test signal (frames)
 UP = 16  # first reference stage: points per sample (scipy.signal.resample)
 FINE = 256  # second stage: points per sample (direct inverse DFT)
-EBU_LOW_DB, EBU_HIGH_DB = -0.4, 0.2  # EBU Tech 3341 true-peak tolerance (standards notes)
+EBU_LOW_DB, EBU_HIGH_DB = -0.4, 0.2  # EBU Tech 3341 true-peak tolerance (docs/standards.md)
 TARGET_LOW_045_DB = -0.1  # issue 16: at most 0.1 dB low up to 0.45 fs
 
 

@@ -166,7 +166,7 @@ def test_truncated_bext_is_a_finding(tmp_path):
 
 
 def test_layout_from_mask_standard_layouts():
-    # 5.1 as 0x3F and as 0x60F, 7.1 as 0x63F (standards notes); weights per BS.1770-4:
+    # 5.1 as 0x3F and as 0x60F, 7.1 as 0x63F (docs/standards.md); weights per BS.1770-4:
     # LFE 0, surrounds at 90-110 deg 1.41, rear pair at about 150 deg 1.0.
     for mask in (0x3F, 0x60F):
         layout = layout_from_mask(mask, 6)

@@ -11,7 +11,7 @@ corner frequency (``K = tan(pi f0 / fs)``):
 - high-pass: f0 = 38.13547087602444 Hz, Q = 0.5003270373238773.
 
 These are the full-precision values of the fit (the rounded forms quoted in
-the project's standards notes: ~1681.97 Hz, ~3.99984 dB, Q ~0.7072; ~38.135
+docs/standards.md: ~1681.97 Hz, ~3.99984 dB, Q ~0.7072; ~38.135
 Hz, Q ~0.5003). At 48 kHz the design reproduces Tables 1 and 2 to about
 1e-15 (tested to 1e-8 in tests/test_loudness_conformance.py).
 
