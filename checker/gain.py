@@ -5,8 +5,9 @@ middle of the RMS window (audiobook chapters).
 
 Plain (linear) gain moves every level by the same number of dB, so the true
 peak, sample peak and noise floor after the gain are the measured ones plus
-the gain. Whether plain gain is enough is judged against the profile's own
-limits on those quantities; if not, the advice says how much limiting (peaks)
+the gain. So, approximately, is the true peak after an encode round trip (a codec is
+close to linear in level; an estimate). Whether plain gain is enough is judged against
+the profile's own limits on those quantities; if not, the advice says how much limiting (peaks)
 or what else (noise floor, loudness range) is needed. Pure; no I/O.
 """
 
@@ -106,6 +107,16 @@ def _problems(values, profile: Profile, gain: float, tp, sp, nf) -> tuple[list[s
                 f"the sample peak would reach {sp:.2f} dBFS, above {sp_max:.1f} dBFS: needs "
                 f"about {sp - sp_max:.1f} dB of peak limiting"
             )
+    etp_max = profile.value("encoded_true_peak_max_dbtp")
+    etp = _after(values.get("encoded_true_peak_dbtp"), gain)
+    if etp_max is not None and _finite(etp) and etp > etp_max + EPS:
+        codec, rate = profile.encode or ("the codec", 0.0)
+        problems.append(
+            f"after the {codec.upper()} round trip at {rate:g} kbit/s the true peak would reach "
+            f"about {etp:.2f} dBTP (the measured encoded peak plus the gain; an estimate: one "
+            f"encoder's behaviour): needs about {etp - etp_max:.1f} dB more headroom to stay at or "
+            f"below {etp_max:.1f} dBTP"
+        )
     if tp_max is None and sp_max is None and _finite(sp) and sp > 0.0:
         problems.append(f"the sample peak would reach {sp:+.2f} dBFS and clip: needs limiting")
     if nf_max is not None and _finite(nf) and nf > nf_max + EPS:

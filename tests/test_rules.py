@@ -507,6 +507,30 @@ def test_gain_advice_reports_noise_floor_pushed_over_its_limit(tmp_path):
     assert "noise floor would rise to -58.0 dBFS, above the limit of -60.0 dBFS" in gain.advice
 
 
+def test_gain_advice_counts_the_encoded_true_peak():
+    # podcast-stereo-mp3: -16 LUFS +- 1 LU, -1 dBTP before and after a 128 kbit/s MP3 round trip.
+    # A file 3 LU quiet whose own peak has room but whose encoded peak does not: plain gain moves
+    # both peaks by the gain (arithmetic: -3.5 + 3 = -0.5 dBTP after encoding, 0.5 dB over).
+    values = {
+        "channels": 2,
+        "integrated_lufs": -19.0,
+        "true_peak_dbtp": -5.0,
+        "encoded_true_peak_dbtp": -3.5,
+    }
+    gain = evaluate(m(values), load_profile("podcast-stereo-mp3")).gain
+    assert_allclose(gain.gain_to_target_db, 3.0, rtol=0, atol=1e-12)
+    assert gain.plain_gain_enough is False
+    assert "after the MP3 round trip at 128 kbit/s the true peak would reach about -0.50 dBTP" in (
+        gain.advice
+    )
+    assert "needs about 0.5 dB more headroom" in gain.advice
+    # 2 dB lower encoded peak: the same gain is enough
+    fine = evaluate(
+        m({**values, "encoded_true_peak_dbtp": -5.5}), load_profile("podcast-stereo-mp3")
+    )
+    assert fine.gain.plain_gain_enough is True
+
+
 def test_large_positive_gain_carries_a_listening_level_caution():
     values = {"channels": 2, "integrated_lufs": -30.0, "true_peak_dbtp": -20.0}
     gain = evaluate(m(values), load_profile("podcast-stereo")).gain
