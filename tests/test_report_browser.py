@@ -11,6 +11,7 @@ import math
 import re
 from pathlib import Path
 
+import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 from test_report_csv import HOSTILE, make_results, make_run, timeline, values
@@ -20,6 +21,7 @@ from checker.report import write_reports
 from checker.report.atomic import write_text_atomic
 from checker.report.html import render_html
 from checker.results import FileResult
+from checker.timeline import build_timeline
 from checker.verdict import Flag, GainAdvice, Verdict
 
 CHROMIUM = Path("/usr/bin/chromium")
@@ -334,5 +336,48 @@ def test_a_mono_file_shows_the_value_that_was_judged(browser, tmp_path):
     page.click("#file-rows tr button.open")
     note = page.text_content("#detail-body .judged-note")
     assert "judged as dual mono" in note and "-15.95 LUFS" in note and "-18.96 LUFS" in note
+    assert watch.errors == []
+    page.close()
+
+
+def test_the_speech_lane_marks_what_the_gate_heard(browser, tmp_path):
+    # A 180 s file whose speech gate marked 20-60 s and 100-120 s as speech (speech_active 1 per
+    # 100 ms step, the speech meter's lane): two stretches in the lane, none without the gate.
+    n = 1800
+    speech = np.zeros(n)
+    speech[200:600] = 1.0
+    speech[1000:1200] = 1.0
+    short = np.full(n, -23.0)
+    lanes = build_timeline(
+        {
+            "short_term_lufs": (0.1, short),
+            "momentary_lufs": (0.1, short),
+            "speech_active": (0.1, speech),
+        }
+    )
+    plain = build_timeline({"short_term_lufs": (0.1, short), "momentary_lufs": (0.1, short)})
+    rows = [
+        FileResult(
+            "show/talk.wav", "pass", Measurement("show/talk.wav", values(), lanes), Verdict("pass")
+        ),
+        FileResult(
+            "show/music.wav",
+            "pass",
+            Measurement("show/music.wav", values(), plain),
+            Verdict("pass"),
+        ),
+    ]
+    html = write_reports(tmp_path, make_run(), rows)["html"]
+    page, watch = open_report(browser, html)
+    counts = {}
+    for i in range(2):
+        page.click(f"#file-rows tr:nth-child({i + 1}) button.open")
+        name = page.text_content("#detail-title")
+        counts[name] = (
+            page.locator("#detail-body svg rect.lane-speech").count(),
+            page.locator("#detail-body svg rect.speech").count(),
+        )
+        page.keyboard.press("Escape")
+    assert counts == {"talk.wav": (1, 2), "music.wav": (0, 0)}
     assert watch.errors == []
     page.close()

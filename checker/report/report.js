@@ -166,7 +166,10 @@
   function drawGraph(d) {
     var tl = d.timeline, lim = d.limits || {}, vals = d.values || {};
     var W = 760, L = 52, R = 14, T = 14, PH = 230, LANE = 22, GAP = 8;
-    var H = T + PH + GAP + 2 * LANE + 34;
+    // the speech lane only where the speech gate ran (measure --speech, or a speech profile)
+    var sp = decode(tl && tl.speech_active);
+    var hasSpeech = sp.some(function (v) { return typeof v === "number"; });
+    var H = T + PH + GAP + (hasSpeech ? 3 : 2) * LANE + 34;
     var shift = d.judged ? d.judged.offset_lu : 0;  // mono judged as dual mono: the judged scale
     var st = decode(tl && tl.short_term_lufs), mo = decode(tl && tl.momentary_lufs);
     var n = tl ? tl.n : 0, time = function (i) { return tl.t ? tl.t[i] : tl.t0 + i * tl.dt; };
@@ -246,8 +249,10 @@
     svg("text", { x: L + 6, y: T + PH - 6, fill: "#24577a" }, root).textContent = "quieter";
     svg("rect", { x: L, y: T, width: W - L - R, height: PH, fill: "none", stroke: "#d9d5cb" }, root);
     // lanes
-    var laneY = [T + PH + GAP, T + PH + GAP + LANE];
-    [["overs and flags", "lane-overs"], ["no loudness", "lane-quiet"]].forEach(function (ln, k) {
+    var laneY = [T + PH + GAP, T + PH + GAP + LANE, T + PH + GAP + 2 * LANE];
+    var laneDefs = [["overs and flags", "lane-overs"], ["no loudness", "lane-quiet"]];
+    if (hasSpeech) laneDefs.push(["speech", "lane-speech"]);
+    laneDefs.forEach(function (ln, k) {
       svg("rect", { "class": ln[1], x: L, y: laneY[k], width: W - L - R, height: LANE - 3, fill: "#f1efe9" }, root);
       svg("text", { x: L - 6, y: laneY[k] + 14, "text-anchor": "end", fill: "#6b7385", "font-size": "10" }, root).textContent = ln[0];
     });
@@ -266,6 +271,18 @@
         var t0 = time(gapStart), t1 = j < n ? time(j) : dur;
         svg("rect", { "class": "quiet", x: x(t0), y: laneY[1] + 3, width: Math.max(1, x(t1) - x(t0)), height: LANE - 9, fill: "#9aa3b5" }, root);
         gapStart = null;
+      }
+    }
+    if (hasSpeech) {  // stretches the speech gate marked as speech (reduced: any speech in a stretch)
+      var spStart = null, m2 = Math.min(sp.length, n);
+      for (var k2 = 0; k2 <= m2; k2++) {
+        var on = k2 < m2 && typeof sp[k2] === "number" && sp[k2] >= 0.5;
+        if (on && spStart === null) spStart = k2;
+        if (!on && spStart !== null) {
+          var s0 = time(spStart), s1 = k2 < n ? time(k2) : dur;
+          svg("rect", { "class": "speech", x: x(s0), y: laneY[2] + 3, width: Math.max(1, x(s1) - x(s0)), height: LANE - 9, fill: "#3f7a52" }, root);
+          spStart = null;
+        }
       }
     }
     var max = vals.max_short_term_lufs;
@@ -335,7 +352,7 @@
         ["l-mark", "over or flagged position", (d.marks || []).length > 0]].forEach(function (p) {
         if (p[2]) legend.appendChild(el("li", { "class": p[0] }, p[1]));
       });
-      fig.appendChild(el("figcaption", null, "How far the short-term loudness (3 s) sits above or below the target, in LU; the lanes below mark true-peak overs and flagged positions, and stretches with no loudness (silence, or below the gate). Reduced to at most a few hundred points, keeping each stretch's loudest value."));
+      fig.appendChild(el("figcaption", null, "How far the short-term loudness (3 s) sits above or below the target, in LU; the lanes below mark true-peak overs and flagged positions, stretches with no loudness (silence, or below the gate) and, where the speech gate ran, the stretches it heard as speech. Reduced to at most a few hundred points, keeping each stretch's loudest value."));
     } else {
       fig.appendChild(el("p", { "class": "muted" }, "No loudness timeline was stored for this file."));
     }
