@@ -23,6 +23,7 @@ truncation; the two readers may be unified later.
 from __future__ import annotations
 
 import struct
+import zlib
 from dataclasses import dataclass, field
 from typing import BinaryIO
 
@@ -36,26 +37,17 @@ NO_GRANULE = -1
 HEAD_BUDGET_BYTES = 4 * 1024 * 1024
 
 
-def _crc_table() -> tuple[int, ...]:
-    table = []
-    for i in range(256):
-        r = i << 24
-        for _ in range(8):
-            r = ((r << 1) ^ 0x04C11DB7) if r & 0x80000000 else (r << 1)
-        table.append(r & 0xFFFFFFFF)
-    return tuple(table)
-
-
-_CRC_TABLE = _crc_table()
+#: Each byte with its bits in reverse order (for the Ogg CRC through zlib, below).
+_REVERSED_BITS = bytes(int(f"{i:08b}"[::-1], 2) for i in range(256))
 
 
 def ogg_crc(data: bytes) -> int:
-    """The Ogg page checksum of ``data`` (RFC 3533 section 6)."""
-    crc = 0
-    table = _CRC_TABLE
-    for b in data:
-        crc = ((crc << 8) & 0xFFFFFFFF) ^ table[((crc >> 24) ^ b) & 0xFF]
-    return crc
+    """The Ogg page checksum of ``data`` (RFC 3533 section 6): CRC-32 with the polynomial
+    0x04C11DB7, not reflected, initial value 0, no final xor. Computed by zlib: a CRC over
+    bit-reversed bytes with the reflected polynomial is the bit-reversed CRC (zlib's initial
+    and final inversions are undone by starting from 0xFFFFFFFF and inverting the result)."""
+    reflected = zlib.crc32(data.translate(_REVERSED_BITS), 0xFFFFFFFF) ^ 0xFFFFFFFF
+    return int(f"{reflected:032b}"[::-1], 2)
 
 
 @dataclass(frozen=True)

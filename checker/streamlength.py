@@ -29,10 +29,11 @@ from __future__ import annotations
 
 import io
 import struct
-import zlib
 from typing import BinaryIO
 
 from checker.containers import CUT_SHORT, TRUNCATED, ContainerLength
+from checker.oggpages import ogg_crc
+from checker.sniff import id3_end
 
 #: Bytes at the end of a FLAC searched for the last frame header (at least; more when
 #: STREAMINFO's maximum frame size is larger), and never more than this.
@@ -56,13 +57,7 @@ def crc8(data: bytes) -> int:
 def _id3_skip(fh: BinaryIO) -> int:
     """Bytes of an ID3v2 tag in front of the "fLaC" marker (0 when there is none)."""
     fh.seek(0)
-    head = fh.read(10)
-    if head[:3] != b"ID3" or len(head) < 10:
-        return 0
-    size = 0
-    for b in head[6:10]:
-        size = (size << 7) | (b & 0x7F)
-    return 10 + size + (10 if head[5] & 0x10 else 0)
+    return id3_end(fh.read(10)) or 0
 
 
 def read_flac(fh: BinaryIO, file_size: int) -> ContainerLength:
@@ -231,21 +226,9 @@ class FlacUnknownLength(io.RawIOBase):
 # --- Ogg ----------------------------------------------------------------------------------
 
 
-#: Each byte with its bits in reverse order (for the Ogg CRC through zlib, below).
-_REVERSED_BITS = bytes(int(f"{i:08b}"[::-1], 2) for i in range(256))
-
-
 def _ogg_crc(page: bytes) -> int:
-    """Ogg's CRC-32 (polynomial 0x04C11DB7, not reflected, initial value 0, no final xor)
-    over ``page`` with its CRC field zeroed, computed by zlib: a CRC over bit-reversed
-    bytes with the reflected polynomial is the bit-reversed CRC (zlib's initial and final
-    inversions are undone by starting from 0xFFFFFFFF and inverting the result)."""
-    return crc32_ogg(page[:22] + b"\0\0\0\0" + page[26:])
-
-
-def crc32_ogg(data: bytes) -> int:
-    reflected = zlib.crc32(data.translate(_REVERSED_BITS), 0xFFFFFFFF) ^ 0xFFFFFFFF
-    return int(f"{reflected:032b}"[::-1], 2)
+    """Ogg's page CRC over ``page`` with its CRC field zeroed (checker.oggpages.ogg_crc)."""
+    return ogg_crc(page[:22] + b"\0\0\0\0" + page[26:])
 
 
 def _page_at(buf: bytes, i: int) -> tuple[int, int, int, int] | None:
