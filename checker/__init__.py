@@ -13,12 +13,13 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-from checker.measure import Measurement, measure  # noqa: E402
+from checker.analysis.onepass import measure  # noqa: E402
+from checker.judge.rules import evaluate  # noqa: E402
 from checker.meters.base import MeasureOptions  # noqa: E402
-from checker.profiles import Profile, load_profile  # noqa: E402
-from checker.results import FileResult, RunInfo  # noqa: E402
-from checker.rules import evaluate  # noqa: E402
-from checker.verdict import Flag, GainAdvice, Verdict  # noqa: E402
+from checker.model.measurement import Measurement  # noqa: E402
+from checker.model.results import FileResult, RunInfo  # noqa: E402
+from checker.model.verdict import Flag, GainAdvice, Verdict  # noqa: E402
+from checker.profile.load import Profile, load_profile  # noqa: E402
 
 __all__ = [
     "FileResult",
@@ -43,10 +44,10 @@ def check(paths, profile, out_dir, jobs: int | None = None, fresh: bool = False,
     into ``out_dir``; returns (RunInfo, [FileResult]). Per-file problems are error rows."""
     from pathlib import Path
 
-    from checker.batch import run_batch
+    from checker.dsp.threads import one_thread_pools
     from checker.report import write_reports
     from checker.report.byprofile import keep_profile_copy
-    from checker.threads import one_thread_pools
+    from checker.run.batch import run_batch
 
     if isinstance(profile, str | Path):
         profile = load_profile(str(profile))

@@ -23,8 +23,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from synth import music_like, room_tone, speech_like, stable  # noqa: E402
 
-from checker.audio import Block, StreamInfo  # noqa: E402
-from checker.layout import default_layout  # noqa: E402
+from checker.io.audio import Block, StreamInfo  # noqa: E402
+from checker.io.layout import default_layout  # noqa: E402
 from checker.meters.base import MeasureOptions  # noqa: E402
 from checker.meters.loudness import LoudnessMeter  # noqa: E402
 

@@ -1,4 +1,4 @@
-"""Feeding a meter directly, block by block, the way checker.measure does (shared by meter tests)."""
+"""Feeding a meter directly, block by block, the way checker.analysis.onepass does (shared by meter tests)."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import math
 
 import numpy as np
 
-from checker.audio import Block, StreamInfo
-from checker.layout import default_layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 
 
@@ -16,7 +16,7 @@ def info_for(subtype: str, channels: int, rate: int = 8_000) -> StreamInfo:
 
 
 def to_codes(x: np.ndarray, bits: int) -> np.ndarray:
-    """Round to an N-bit grid and left-justify in int32, as checker.audio delivers codes."""
+    """Round to an N-bit grid and left-justify in int32, as checker.io.audio delivers codes."""
     top = 2 ** (bits - 1)
     k = np.clip(np.round(x * top), -top, top - 1).astype(np.int64)
     return (k << (32 - bits)).astype(np.int32)

@@ -1,4 +1,4 @@
-"""checker.audio: the read loop, stream facts and read errors."""
+"""checker.io.audio: the read loop, stream facts and read errors."""
 
 from __future__ import annotations
 
@@ -8,8 +8,8 @@ import soundfile as sf
 from numpy.testing import assert_allclose
 from signals import programme, write
 
-from checker.audio import open_info, read_blocks
-from checker.errors import AudioReadError, UnsupportedAudioError
+from checker.io.audio import open_info, read_blocks
+from checker.model.errors import AudioReadError, UnsupportedAudioError
 
 
 @pytest.mark.parametrize("subtype", ["PCM_16", "PCM_24", "PCM_32", "FLOAT", "DOUBLE"])

@@ -16,9 +16,9 @@ from numpy.testing import assert_allclose
 from scipy import signal as sps
 from signals import noise, programme, sine, write
 
-from checker.audio import Block, StreamInfo
-from checker.layout import default_layout
-from checker.measure import measure
+from checker.analysis.onepass import measure
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.bandwidth import SPARSE_STRIDE, BandwidthMeter, fft_frames_for
 from checker.meters.base import MeasureOptions
 

@@ -17,17 +17,17 @@ import numpy as np
 import pytest
 from signals import sine, write
 
-from checker.batch import Interrupted, run_batch
-from checker.discover import Discovery, discover
-from checker.measure import measure
-from checker.store import open_store
-from checker.verdict import ERROR, FAIL, PASS, Verdict
+from checker.analysis.onepass import measure
+from checker.io.discover import Discovery, discover
+from checker.model.verdict import ERROR, FAIL, PASS, Verdict
+from checker.run.batch import Interrupted, run_batch
+from checker.run.store import open_store
 
 # -- helpers -----------------------------------------------------------------------------
 
 
 class StubProfile:
-    """Just what run_batch reads from a profile (the real one: checker.profiles)."""
+    """Just what run_batch reads from a profile (the real one: checker.profile.load)."""
 
     name = "stub"
     title = "stub profile for batch plumbing tests"
@@ -148,7 +148,7 @@ def test_file_vanished_after_discovery_is_an_error_row(tmp_path, monkeypatch):
     src = make_batch(tmp_path / "in", [("a.wav", 1.0)])
     gone = str(src / "gone.wav")
     monkeypatch.setattr(
-        "checker.batch.discover",
+        "checker.run.batch.discover",
         lambda paths: Discovery(files=(str(src / "a.wav"), gone)),
     )
     _, results = run_batch([src], StubProfile(), tmp_path / "out", jobs=1, evaluate=duration_rule)
@@ -167,7 +167,7 @@ def test_batch_statuses_errors_and_cache(tmp_path):
     status = {os.path.basename(r.path): r.status for r in results}
     assert status == {"empty.wav": ERROR, "long.wav": FAIL, "short.wav": PASS, "text.wav": ERROR}
     errors = {os.path.basename(r.path): r.error for r in results if r.status == ERROR}
-    # Refused at intake by its content (checker.discover), never handed to the reader.
+    # Refused at intake by its content (checker.io.discover), never handed to the reader.
     assert errors["text.wav"] == (
         f"{src / 'text.wav'}: named like audio ('.wav') but its content is text, not audio"
     )
@@ -312,8 +312,8 @@ def test_workers_use_a_second_thread_only_with_cores_to_spare():
     # steps, as `deliverycheck measure` does; fewer: one thread each.
     import functools
 
-    from checker.measure import measure
-    from checker.workers import worker_measure_fn
+    from checker.analysis.onepass import measure
+    from checker.run.workers import worker_measure_fn
 
     spare = worker_measure_fn(1, cores=2)
     assert isinstance(spare, functools.partial) and spare.keywords == {"read_ahead": True}

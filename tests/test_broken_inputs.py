@@ -38,14 +38,15 @@ from corpus import (
 )
 from numpy.testing import assert_allclose
 
-from checker.cli import main
-from checker.errors import AudioReadError, UnsupportedAudioError
-from checker.measure import Measurement, measure
+from checker.analysis.onepass import measure
+from checker.cli.main import main
 from checker.meters.base import MeasureOptions
-from checker.serial import dumps
+from checker.model.errors import AudioReadError, UnsupportedAudioError
+from checker.model.measurement import Measurement
+from checker.model.serial import dumps
 
 # checker/__init__.py exports the function measure, which shadows the module attribute.
-measure_module = importlib.import_module("checker.measure")
+measure_module = importlib.import_module("checker.analysis.onepass")
 
 NO_MP3 = "this libsndfile cannot write MP3 (needs libsndfile >= 1.1 built with LAME/mpg123)"
 

@@ -1,4 +1,4 @@
-"""checker.carriers and checker.oggpages: declared loudness in iXML, axml, Vorbis comments,
+"""checker.io.carriers and checker.io.oggpages: declared loudness in iXML, axml, Vorbis comments,
 FLAC and Opus, built byte by byte here from the published layouts.
 
 Layouts used (each builder names its source):
@@ -28,11 +28,11 @@ import soundfile as sf
 from numpy.testing import assert_allclose
 from test_rules import one_limit_profile
 
-from checker.carriers import empty_carrier_values, read_carriers, safe_xml
-from checker.measure import measure
-from checker.oggpages import read_head, read_page
-from checker.rules import evaluate
-from checker.wavchunks import read_wav_header
+from checker.analysis.onepass import measure
+from checker.io.carriers import empty_carrier_values, read_carriers, safe_xml
+from checker.io.oggpages import read_head, read_page
+from checker.io.wavchunks import read_wav_header
+from checker.judge.rules import evaluate
 
 # ---------------------------------------------------------------- builders
 

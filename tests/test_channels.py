@@ -9,9 +9,9 @@ from meterkit import info_for, no_nan, run_meter, to_codes
 from numpy.testing import assert_allclose
 from signals import noise, write
 
-from checker.audio import Block
-from checker.layout import default_layout
-from checker.measure import measure
+from checker.analysis.onepass import measure
+from checker.io.audio import Block
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.channels import ChannelsMeter
 

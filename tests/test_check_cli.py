@@ -24,11 +24,11 @@ from pathlib import Path
 import pytest
 from signals import sine, write
 
-import checker.audio
-from checker.cli import main
-from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, EXIT_USAGE
-from checker.progress import Progress
-from checker.store import open_store
+import checker.io.audio
+from checker.cli.main import main
+from checker.model.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, EXIT_USAGE
+from checker.run.progress import Progress
+from checker.run.store import open_store
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -198,9 +198,9 @@ def test_recheck_with_other_profile_opens_no_audio(corpus, tmp_path, monkeypatch
         opened.append(args)
         raise AssertionError("audio opened during a re-check")
 
-    monkeypatch.setattr(checker.audio, "read_blocks", no_audio)
-    monkeypatch.setattr(checker.audio.sf, "SoundFile", no_audio)
-    monkeypatch.setattr(checker.audio.sf, "info", no_audio)
+    monkeypatch.setattr(checker.io.audio, "read_blocks", no_audio)
+    monkeypatch.setattr(checker.io.audio.sf, "SoundFile", no_audio)
+    monkeypatch.setattr(checker.io.audio.sf, "info", no_audio)
     code, second, _ = cli("check", str(src), "--profile", str(corpus["strict"]), "--out", str(out))
     assert opened == []
     # Under -10 dBFS every sine (-6 or -0.5 dBFS peak) fails; the two non-audio files

@@ -25,11 +25,11 @@ from corpus import (
 from numpy.testing import assert_allclose
 from test_broken_inputs import checked_measure, comparable
 
-from checker.containers import read_container_length
-from checker.errors import AudioReadError
+from checker.io.containers import read_container_length
+from checker.judge.rules import evaluate
 from checker.meters.base import MeasureOptions
-from checker.profiles import load_profile
-from checker.rules import evaluate
+from checker.model.errors import AudioReadError
+from checker.profile.load import load_profile
 
 #: (libsndfile format, subtype, extension) of every container with a reader here.
 WRITTEN = [
@@ -167,7 +167,7 @@ def test_container_not_checked_is_none_with_a_note(tmp_path):
 def test_flac_hiding_its_tail_is_decoded_in_full_and_fails(tmp_path, read_ahead):
     path = CORPUS["flac_half_length"](tmp_path)
     assert sf.info(str(path)).frames == RATE_HZ  # libsndfile believes STREAMINFO (reference)
-    from checker.measure import measure
+    from checker.analysis.onepass import measure
 
     m = measure(str(path), read_ahead=read_ahead)
     # corpus.py: 2.000 s written, STREAMINFO patched to 48000 frames (1.000 s).
@@ -220,7 +220,7 @@ def test_large_but_measurable_floats_stay_measured(tmp_path):
 
 
 def test_guard_keeps_true_peak_at_or_above_sample_peak():
-    from checker.measure import guard_values
+    from checker.analysis.onepass import guard_values
 
     values = {"true_peak_dbtp": -20.0, "true_peak_time_s": 0.1, "sample_peak_dbfs": 4000.0,
               "sample_peak_time_s": 0.5, "rms_dbfs": math.inf, "x_db": math.nan}  # fmt: skip
@@ -231,8 +231,8 @@ def test_guard_keeps_true_peak_at_or_above_sample_peak():
 
 
 def test_checksums_match_their_published_check_values():
-    from checker.oggpages import ogg_crc as crc32_ogg
-    from checker.streamlength import crc8
+    from checker.io.oggpages import ogg_crc as crc32_ogg
+    from checker.io.streamlength import crc8
 
     # Check values over b"123456789" (the CRC catalogue's convention; from memory):
     # CRC-8 with polynomial 0x07, initial 0 (FLAC frame headers): 0xF4.
@@ -251,7 +251,7 @@ def test_checksums_match_their_published_check_values():
 
 
 def test_flac_unknown_length_view_zeroes_only_the_total(tmp_path):
-    from checker.streamlength import FlacUnknownLength
+    from checker.io.streamlength import FlacUnknownLength
 
     path = CORPUS["flac_half_length"](tmp_path)
     raw = path.read_bytes()
@@ -273,7 +273,7 @@ def test_check_names_every_cut_or_lying_file_among_good_ones(tmp_path):
     from corpus import good_wav
     from test_check_cli import cli
 
-    from checker.errors import EXIT_UNCHECKED
+    from checker.model.errors import EXIT_UNCHECKED
 
     src = tmp_path / "in"
     src.mkdir()

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-from checker.cli import main
+from checker.cli.main import main
 
 ROOT = Path(__file__).resolve().parents[1]
 GENERATOR = ROOT / "demo" / "generate.py"
@@ -89,7 +89,7 @@ def test_podcast_week_gets_what_the_readme_promises(batch, tmp_path):
     code, results = check([str(week), "--profile", "podcast-stereo", "--out", str(out)])
     compare(results, promised("## The podcast week"))
     assert code == 3  # README: an unreadable file outranks the failures
-    # checker.discover: refused by its content before any decoding
+    # checker.io.discover: refused by its content before any decoding
     assert "its content is text, not audio" in results["ep111-show-notes.wav"]["error"]
     # The fix list: each group holds exactly the files the README's table promises.
     groups: dict[str, set[str]] = {}

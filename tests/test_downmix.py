@@ -23,14 +23,14 @@ from signals import programme, sine, write
 from test_wavchunks import build
 
 from checker import measure
-from checker.audio import StreamInfo
-from checker.cli import main
-from checker.errors import EXIT_FAILED, EXIT_OK, EXIT_USAGE, ProfileError, UsageError
-from checker.layout import Layout, default_layout
+from checker.cli.main import main
+from checker.io.audio import StreamInfo
+from checker.io.layout import Layout, default_layout
+from checker.judge.rules import evaluate
 from checker.meters.base import MeasureOptions
 from checker.meters.downmix import NOTE_NOT_MULTICHANNEL, DownmixMeter, fold_matrix
-from checker.profiles import validate_profile_file
-from checker.rules import evaluate
+from checker.model.errors import EXIT_FAILED, EXIT_OK, EXIT_USAGE, ProfileError, UsageError
+from checker.profile.load import validate_profile_file
 
 C3 = 0.7071  # BS.775 (from memory)
 

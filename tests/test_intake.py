@@ -21,14 +21,14 @@ import soundfile as sf
 from corpus import INTAKE, M4A_HEAD, png_bytes, sine_pcm16, wav_bytes
 from signals import sine, write
 
-from checker.batch import capped_jobs, run_batch
-from checker.cli import main
-from checker.discover import MEASURE, NOT_CHECKED, REFUSE, classify, discover
-from checker.names import for_terminal, readable
-from checker.sniff import NOT_AUDIO, READABLE, UNKNOWN, UNSUPPORTED, sniff
-from checker.stems import check_stem_set, stem_set_from_folder
-from checker.store import open_store
-from checker.workers import usable_cores
+from checker.cli.main import main
+from checker.io.discover import MEASURE, NOT_CHECKED, REFUSE, classify, discover
+from checker.io.sniff import NOT_AUDIO, READABLE, UNKNOWN, UNSUPPORTED, sniff
+from checker.model.names import for_terminal, readable
+from checker.run.batch import capped_jobs, run_batch
+from checker.run.store import open_store
+from checker.run.workers import usable_cores
+from checker.stems.sets import check_stem_set, stem_set_from_folder
 
 UNSUPPORTED_M4A = (
     "unsupported container: MP4/M4A/MOV (ISO media, e.g. AAC or ALAC), which this checker "
@@ -301,7 +301,7 @@ class _StubProfile:
 
 
 def _pass(m, profile):
-    from checker.verdict import PASS, Verdict
+    from checker.model.verdict import PASS, Verdict
 
     return Verdict(status=PASS, flags=())
 
@@ -315,7 +315,7 @@ def test_jobs_above_the_cores_are_capped_with_a_note(tmp_path, monkeypatch):
     ]
     assert capped_jobs(1, notes.append) == 1 and len(notes) == 1
     started = []
-    import checker.batch as batch
+    import checker.run.batch as batch
 
     real = batch.LocalPool
 

@@ -12,12 +12,12 @@ from meterkit import info_for, no_nan, run_meter, to_codes
 from numpy.testing import assert_allclose
 from signals import write
 
-from checker.audio import Block, read_blocks
-from checker.layout import default_layout
-from checker.measure import measure
+from checker.analysis.onepass import measure
+from checker.io.audio import Block, read_blocks
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.levels import LevelsMeter
-from checker.units import quantization_floor_dbfs
+from checker.model.units import quantization_floor_dbfs
 
 RATE = 8_000
 

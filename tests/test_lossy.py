@@ -1,4 +1,4 @@
-"""checker.lossy: codec, bit rate, encoder delay and padding, gapless length.
+"""checker.io.lossy: codec, bit rate, encoder delay and padding, gapless length.
 
 Files written by libsndfile (soundfile 0.14 / libsndfile 1.2.2 with LAME 3.100, libvorbis,
 libopus) are read back: their delay and padding must give the length libsndfile decodes,
@@ -19,9 +19,9 @@ import soundfile as sf
 from numpy.testing import assert_allclose
 from test_rules import one_limit_profile
 
-from checker.lossy import LOSSY_KEYS, read_lossy
-from checker.measure import measure
-from checker.rules import evaluate
+from checker.analysis.onepass import measure
+from checker.io.lossy import LOSSY_KEYS, read_lossy
+from checker.judge.rules import evaluate
 
 NOISE = 0.3 * np.random.default_rng(3).standard_normal((50_000, 2))
 

@@ -16,10 +16,10 @@ import pytest
 from numpy.testing import assert_allclose
 from signals import sine, sine_segments, write
 
-from checker.audio import Block, StreamInfo
+from checker.analysis.onepass import measure
 from checker.dsp.kweighting import k_weighting_sos
-from checker.layout import default_layout
-from checker.measure import measure
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.loudness import LoudnessMeter
 

@@ -27,12 +27,12 @@ import pytest
 from numpy.testing import assert_allclose
 from signals import programme
 
-from checker.audio import Block, StreamInfo
-from checker.layout import default_layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.loudness import SHORT_TERM_STEPS, LoudnessMeter, loudness_range_from_short_term
 
-# libebur128 channel roles for our default maps (checker/layout.py).
+# libebur128 channel roles for our default maps (checker/io/layout.py).
 EBUR128_CHANNELS = {
     1: [pyebur128.ChannelType.LEFT],  # one channel, weight 1.0 (not DUAL_MONO)
     2: [pyebur128.ChannelType.LEFT, pyebur128.ChannelType.RIGHT],

@@ -17,8 +17,8 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from signals import programme
 
-from checker.audio import Block, StreamInfo
-from checker.layout import default_layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.loudness import LoudnessMeter
 

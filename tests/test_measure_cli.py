@@ -17,7 +17,7 @@ import soundfile as sf
 from numpy.testing import assert_allclose
 from signals import programme
 
-from checker.cli import main
+from checker.cli.main import main
 
 KEYS = (
     "path",

@@ -20,13 +20,13 @@ import soundfile as sf
 from meterkit import run_meter
 from numpy.testing import assert_allclose, assert_array_equal
 
-from checker.audio import INT32_SCALE, Block, StreamInfo
+from checker.analysis.onepass import measure
 from checker.dsp import native
 from checker.dsp.iir import sosfilt_rows
 from checker.dsp.interp import ChunkInterpolator, design_phases, oversample
 from checker.dsp.kweighting import k_weighting_sos
-from checker.layout import default_layout
-from checker.measure import measure
+from checker.io.audio import INT32_SCALE, Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.channels import ChannelsMeter
 from checker.meters.levels import LevelsMeter

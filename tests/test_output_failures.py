@@ -21,9 +21,9 @@ from pathlib import Path
 import pytest
 from signals import sine, write
 
-from checker.cli import main
-from checker.errors import EXIT_OUTPUT
-from checker.store import STORE_NAME, open_store
+from checker.cli.main import main
+from checker.model.errors import EXIT_OUTPUT
+from checker.run.store import STORE_NAME, open_store
 
 
 def _batch(folder: Path, n: int = 3) -> Path:

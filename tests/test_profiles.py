@@ -9,9 +9,9 @@ from pathlib import Path
 import pytest
 from numpy.testing import assert_allclose
 
-from checker.cli import main
-from checker.errors import EXIT_OK, EXIT_USAGE, ProfileError
-from checker.profiles import BUILTIN_DIR, list_profiles, load_profile, validate_profile_file
+from checker.cli.main import main
+from checker.model.errors import EXIT_OK, EXIT_USAGE, ProfileError
+from checker.profile.load import BUILTIN_DIR, list_profiles, load_profile, validate_profile_file
 
 SHIPPED = sorted(p.stem for p in BUILTIN_DIR.glob("*.toml"))
 
@@ -438,7 +438,7 @@ def test_errors_in_a_parent_never_repeat_its_contents(tmp_path):
 
 
 def test_silence_threshold_setting(tmp_path):
-    # Default (checker/limitdefs.py): -60 dBFS short-time RMS, common practice.
+    # Default (checker/profile/catalogue.py): -60 dBFS short-time RMS, common practice.
     base = load_profile("ebu-r128")  # sets no threshold of its own
     assert base.silence_threshold_dbfs == -60.0
     assert "common practice" in base.silence_threshold_source

@@ -35,12 +35,12 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from signals import write
 
-from checker.audio import Block, StreamInfo
-from checker.layout import default_layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 
 # checker/__init__.py exports the function measure, which shadows the module attribute.
-measure_module = importlib.import_module("checker.measure")
+measure_module = importlib.import_module("checker.analysis.onepass")
 measure = measure_module.measure
 
 RATE_HZ = 48_000

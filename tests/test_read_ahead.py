@@ -16,10 +16,10 @@ from corpus import mp3_garbage_middle
 from numpy.testing import assert_array_equal
 from signals import programme, write
 
-from checker.audio import read_blocks
-from checker.errors import AudioReadError
-from checker.measure import measure
+from checker.analysis.onepass import measure
+from checker.io.audio import read_blocks
 from checker.meters.base import MeasureOptions
+from checker.model.errors import AudioReadError
 
 
 def _blocks(path, read_ahead: bool, block_frames: int):

@@ -6,8 +6,8 @@ import io
 import re
 from pathlib import Path
 
-from checker.cli import main
-from checker.profiles import validate_profile_file
+from checker.cli.main import main
+from checker.profile.load import validate_profile_file
 
 README = Path(__file__).resolve().parents[1] / "README.md"
 

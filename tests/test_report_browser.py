@@ -16,13 +16,13 @@ import pytest
 from numpy.testing import assert_allclose
 from test_report_csv import HOSTILE, make_results, make_run, timeline, values
 
-from checker.measure import Measurement
+from checker.model.measurement import Measurement
+from checker.model.results import FileResult
+from checker.model.timeline import build_timeline
+from checker.model.verdict import Flag, GainAdvice, Verdict
 from checker.report import write_reports
 from checker.report.atomic import write_text_atomic
 from checker.report.html import render_html
-from checker.results import FileResult
-from checker.timeline import build_timeline
-from checker.verdict import Flag, GainAdvice, Verdict
 
 CHROMIUM = Path("/usr/bin/chromium")
 ARGS = [

@@ -12,10 +12,10 @@ import re
 from numpy.testing import assert_allclose
 from test_report_csv import values
 
-from checker.measure import Measurement
+from checker.model.measurement import Measurement
+from checker.model.results import FileResult
+from checker.model.verdict import Verdict
 from checker.report.chart import batch_chart, points
-from checker.results import FileResult
-from checker.verdict import Verdict
 
 LIMITS = {"band_low_lufs": -17.0, "band_high_lufs": -15.0, "target_lufs": -16.0,
           "ceiling_dbtp": -1.0}  # fmt: skip

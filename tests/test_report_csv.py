@@ -19,18 +19,18 @@ import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
-from checker.measure import Measurement
+from checker.model.measurement import Measurement
+from checker.model.results import FileResult, RunInfo
+from checker.model.serial import dumps as serial_dumps
+from checker.model.timeline import Timeline, build_timeline
+from checker.model.verdict import Flag, GainAdvice, Verdict
 from checker.report import REPORT_FILES, write_reports
 from checker.report.atomic import atomic_text
 from checker.report.cells import PER_CHANNEL_KEYS
 from checker.report.csv_out import neutralise
+from checker.report.frame import LEAD_COLUMNS, MEASUREMENT_COLUMNS, results_frame, sorted_results
 from checker.report.htmldata import embed_json, profile_limits_for_graph, reduce_timeline
 from checker.report.jsonl import dumps as jsonl_dumps
-from checker.report.table import LEAD_COLUMNS, MEASUREMENT_COLUMNS, results_frame, sorted_results
-from checker.results import FileResult, RunInfo
-from checker.serial import dumps as serial_dumps
-from checker.timeline import Timeline, build_timeline
-from checker.verdict import Flag, GainAdvice, Verdict
 
 HOSTILE = "stems/<img src=x onerror=alert(1)>.wav"
 
@@ -409,7 +409,7 @@ def test_timeline_reduction_keeps_the_loudest_value():
 
 
 def test_jsonl_lines_are_the_shared_serialiser_text(written):
-    # results.jsonl uses a one-pass encoder; it must write exactly what checker.serial.dumps does.
+    # results.jsonl uses a one-pass encoder; it must write exactly what checker.model.serial.dumps does.
     out, results, _ = written
     lines = (out / "results.jsonl").read_text(encoding="utf-8").splitlines()
     assert lines == [serial_dumps(r.to_dict(timeline=True)) for r in sorted_results(results)]
@@ -433,7 +433,7 @@ def test_html_never_carries_file_text_raw(written):
 
 
 def test_a_stem_set_row_shows_the_sum_under_the_file_columns(written):
-    # checker.report.html.SET_SUM_CELLS: a set row's loudness and peak cells show what was
+    # checker.report.judged.SET_SUM_CELLS: a set row's loudness and peak cells show what was
     # measured on the stems' sum (marked in a tooltip), never a per-file value.
     import re
 

@@ -1,7 +1,7 @@
 """The fix list: flagged files grouped by the action that fixes them (fixes.csv and report.html).
 
 Fixtures are FileResult objects built from real rule keys of the limit catalogue, judged by
-checker.rules against a shipped profile, so each group is reached the way a run reaches it.
+checker.judge.rules against a shipped profile, so each group is reached the way a run reaches it.
 Expected numbers are the fixture values themselves (arithmetic on them is named).
 """
 
@@ -11,12 +11,12 @@ import csv
 
 from test_report_csv import make_run, values
 
-from checker.measure import Measurement
-from checker.profiles import load_profile
+from checker.judge.rules import evaluate
+from checker.model.measurement import Measurement
+from checker.model.results import FileResult
+from checker.profile.load import load_profile
 from checker.report import REPORT_FILES, write_reports
 from checker.report.fixes import GROUPS, fix_items
-from checker.results import FileResult
-from checker.rules import evaluate
 
 
 def judged(path: str, **over) -> FileResult:

@@ -1,4 +1,4 @@
-"""checker.roundtrip: the encode round trip a profile asks for.
+"""checker.meters.roundtrip: the encode round trip a profile asks for.
 
 The reference is the same library used directly: the test encodes the same signal with
 soundfile 0.14 / libsndfile 1.2.2 (LAME 3.100, libvorbis, libopus) at the same setting,
@@ -21,13 +21,13 @@ from numpy.testing import assert_allclose
 from scipy import signal
 from test_rules import write_profile
 
-from checker.batch import measure_options, options_key
-from checker.errors import ProfileError
-from checker.measure import measure
+from checker.analysis.onepass import measure
+from checker.judge.rules import evaluate
 from checker.meters.base import MeasureOptions
-from checker.profiles import load_profile
-from checker.roundtrip import CODECS, ROUNDTRIP_KEYS, compression_level
-from checker.rules import evaluate
+from checker.meters.roundtrip import CODECS, ROUNDTRIP_KEYS, compression_level
+from checker.model.errors import ProfileError
+from checker.profile.load import load_profile
+from checker.run.batch import measure_options, options_key
 
 
 def master(rate: int, seconds: float = 3.0, seed: int = 5) -> np.ndarray:

@@ -13,11 +13,11 @@ from pathlib import Path
 import pytest
 from numpy.testing import assert_allclose
 
-from checker.limitdefs import CATALOGUE, DECLARED_KEYS, MAX, MIN, REQUIRED
-from checker.measure import Measurement
-from checker.profiles import load_profile
-from checker.rules import evaluate
-from checker.verdict import ERROR, FAIL, PASS, WARN
+from checker.judge.rules import evaluate
+from checker.model.measurement import Measurement
+from checker.model.verdict import ERROR, FAIL, PASS, WARN
+from checker.profile.catalogue import CATALOGUE, DECLARED_KEYS, MAX, MIN, REQUIRED
+from checker.profile.load import load_profile
 
 SET_BASE = {"set_stem_count": 3}  # any set_* key marks set-level values
 STEREO = {"channels": 2}

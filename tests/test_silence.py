@@ -12,13 +12,13 @@ from meterkit import info_for, run_meter, to_codes
 from numpy.testing import assert_allclose
 from signals import write
 
-from checker.audio import Block
-from checker.layout import default_layout
-from checker.measure import measure
+from checker.analysis.onepass import measure
+from checker.io.audio import Block
+from checker.io.layout import default_layout
+from checker.judge.rules import evaluate
 from checker.meters.base import MeasureOptions
 from checker.meters.silence import SilenceMeter, silence_at
-from checker.profiles import load_profile
-from checker.rules import evaluate
+from checker.profile.load import load_profile
 
 
 def run(info, x, raw=None, sizes=(10**9,), options=None):

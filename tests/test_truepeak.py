@@ -18,7 +18,6 @@ from numpy.testing import assert_allclose
 from scipy import signal as sps
 from signals import programme
 
-from checker.audio import Block, StreamInfo
 from checker.dsp import native
 from checker.dsp.interp import (
     design_phases,
@@ -27,7 +26,8 @@ from checker.dsp.interp import (
     phase_abs_sums,
     refine_peaks,
 )
-from checker.layout import default_layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.truepeak import TruePeakMeter
 
@@ -417,11 +417,11 @@ def test_nonfinite_samples_and_repeated_result():
 
 
 def test_pcm24_file_through_the_reader(tmp_path):
-    """Integer PCM arrives as int32 / 2**31 float blocks (checker/audio.py); the reading is
+    """Integer PCM arrives as int32 / 2**31 float blocks (checker/io/audio.py); the reading is
     the Tech 3341 case 16 value (-6.0 dBTP, document tolerance +0.2/-0.4; aim +-0.05)."""
     from signals import write
 
-    from checker.audio import read_blocks
+    from checker.io.audio import read_blocks
 
     path = write(tmp_path / "case16.wav", tech3341_tone(16), 48_000, "PCM_24")
     info, blocks = read_blocks(str(path), 4800)

@@ -26,7 +26,6 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import signal as sps
 
-from checker.audio import Block, StreamInfo
 from checker.dsp import native
 from checker.dsp.interp import (
     DEFAULT_TAPS_PER_PHASE,
@@ -34,7 +33,8 @@ from checker.dsp.interp import (
     fractional_taps,
     step_weights,
 )
-from checker.layout import default_layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
 from checker.meters.truepeak import TruePeakMeter
 

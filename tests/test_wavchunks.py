@@ -1,4 +1,4 @@
-"""checker.wavchunks, layout_from_mask and their use in measure().
+"""checker.io.wavchunks, layout_from_mask and their use in measure().
 
 Files are written by soundfile, then the test itself rewrites their chunks with
 struct: bext chunks (EBU Tech 3285 versions 1 and 2), extensible channel masks
@@ -24,10 +24,10 @@ from numpy.testing import assert_allclose
 from signals import noise, programme, write
 
 import checker
-from checker.errors import AudioReadError
-from checker.layout import layout_from_mask, mask_problem
-from checker.measure import measure
-from checker.wavchunks import WAV_KEYS, read_wav_header
+from checker.analysis.onepass import measure
+from checker.io.layout import layout_from_mask, mask_problem
+from checker.io.wavchunks import WAV_KEYS, read_wav_header
+from checker.model.errors import AudioReadError
 
 LOUDNESS_METER = Path(checker.__file__).parent / "meters" / "loudness.py"
 

@@ -1,4 +1,9 @@
-"""Streaming meters, one module each. ``METERS`` lists them in feed order."""
+"""Streaming meters, one module each, all with ``feed(block)`` / ``result()`` (``base.Meter``) and
+their own state. ``METERS`` lists them in feed order; add a new meter here. ``roundtrip`` holds
+the encode round-trip meters a profile may ask for.
+
+May import ``model``, ``dsp`` and ``io`` (the Block type and channel layouts).
+"""
 
 from __future__ import annotations
 

@@ -19,7 +19,7 @@ Spectrum (streaming, memory independent of length):
 - Power |FFT|^2 / sum(window^2), averaged over frames and channels: white noise of
   variance s^2 in every channel reads s^2 in every bin ("equivalent white-noise
   level", dBFS re 1.0, so the N-bit quantization floor is
-  checker.units.quantization_floor_dbfs(N)).
+  checker.model.units.quantization_floor_dbfs(N)).
 
 Analysis (project choices; the constants below):
 - The averaged spectrum is median-filtered over about 0.8 % of the bins (17 at
@@ -85,10 +85,10 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
-from checker.audio import Block, StreamInfo
-from checker.layout import Layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
-from checker.units import power_to_db, quantization_floor_dbfs
+from checker.model.units import power_to_db, quantization_floor_dbfs
 
 FFT_FRAMES_AT_48K = 4096
 KAISER_BETA = 20.0

@@ -30,13 +30,13 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any, Protocol
 
-from checker.audio import Block, StreamInfo
-from checker.layout import Layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import Layout
 
 
 @dataclass(frozen=True)
 class MeasureOptions:
-    #: Frames per block; None: automatic (checker.audio.auto_block_frames). Values do not
+    #: Frames per block; None: automatic (checker.io.audio.auto_block_frames). Values do not
     #: depend on it beyond rounding.
     block_frames: int | None = None
     #: Explicit channel layout ("L R C LFE Ls Rs"); None = from file or assumed.
@@ -56,7 +56,7 @@ class MeasureOptions:
     #: How many first positions to keep for overs, clips, dropouts.
     max_positions: int = 10
     #: Encode round trip (codec, kbit/s) asked for by a profile's [encode] section, or None
-    #: (checker.roundtrip; part of the store's cache key like every option).
+    #: (checker.meters.roundtrip; part of the store's cache key like every option).
     encode: tuple[str, float] | None = None
     #: Speech-gated loudness (checker/meters/speech.py): off by default, it costs several
     #: times the rest of the analysis; on for `measure --speech` and profiles with a speech

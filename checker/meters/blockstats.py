@@ -12,8 +12,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from checker.audio import Block
 from checker.dsp import native
+from checker.io.audio import Block
 
 SEGMENT_S = 0.1
 
@@ -43,7 +43,7 @@ def sample_stats(
     if shared and key in block.memo:
         return block.memo[key]
     cuts = segment_cuts(block.start, xt.shape[1], seg_len)
-    # Block contract (checker.audio): x == raw / 2**31 exactly for integer PCM.
+    # Block contract (checker.io.audio): x == raw / 2**31 exactly for integer PCM.
     stats = (cuts, *native.channel_stats(xt, rt, cuts, raw_scaled=True))
     if shared:
         block.memo[key] = stats

@@ -27,13 +27,13 @@ from typing import Any
 
 import numpy as np
 
-from checker.audio import Block, StreamInfo
 from checker.dsp import native
-from checker.layout import Layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.blockstats import sample_stats, segment_frames
 from checker.meters.levels import channels_first, finite_x
-from checker.units import db_to_amplitude
+from checker.model.units import db_to_amplitude
 
 SILENT_CHANNEL_PEAK_DBFS = -80.0
 MAX_ALL_PAIRS_CHANNELS = 8

@@ -23,12 +23,12 @@ from typing import Any
 
 import numpy as np
 
-from checker.audio import Block, StreamInfo
-from checker.layout import Layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.loudness import LoudnessMeter
 from checker.meters.truepeak import TruePeakMeter
-from checker.units import amplitude_to_db
+from checker.model.units import amplitude_to_db
 
 MINUS_3_DB = 0.7071  # BS.775's printed coefficient (from memory)
 #: (to Lo, to Ro) for each channel role.

@@ -21,7 +21,7 @@ Definitions (project choices unless a source is named):
   channel that is digital zero throughout: None; ``effective_bits`` is the minimum
   over the other channels.
 - RMS: per channel over the whole file, re 1.0 (a full-scale sine reads
-  -3.01 dBFS, see checker.units.power_to_db); ``rms_dbfs`` is the loudest channel.
+  -3.01 dBFS, see checker.model.units.power_to_db); ``rms_dbfs`` is the loudest channel.
 - Noise floor: the signal is cut into 100 ms segments (one record of per-channel
   sums of squares and a count of all-channel digital-zero frames per segment);
   400 ms blocks step by 100 ms. A block's level is the RMS of its loudest channel.
@@ -41,7 +41,7 @@ Definitions (project choices unless a source is named):
   steady low-level sound); otherwise "programme" (the file has no quiet passage,
   so the value is the quietest programme, an upper bound on the noise floor).
   ``noise_floor_note`` says the same in words.
-- Footroom: noise_floor_dbfs minus checker.units.quantization_floor_dbfs(N) for
+- Footroom: noise_floor_dbfs minus checker.model.units.quantization_floor_dbfs(N) for
   N = effective_bits (6.02 N + 1.76 dB rule). None for float files that are not on
   an integer grid (no fixed quantization floor) and for lossy files.
 - Non-finite samples (NaN/Inf, float files only) are counted and treated as 0 by
@@ -55,12 +55,12 @@ from typing import Any
 
 import numpy as np
 
-from checker.audio import INT32_SCALE, MAX_SAMPLE_MAGNITUDE, Block, StreamInfo
 from checker.dsp import native
-from checker.layout import Layout
+from checker.io.audio import INT32_SCALE, MAX_SAMPLE_MAGNITUDE, Block, StreamInfo
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.blockstats import piece_squares, sample_stats, segment_cuts, segment_frames
-from checker.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
+from checker.model.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
 
 NOISE_BLOCK_SEGMENTS = 4  # 400 ms blocks, 100 ms step
 NOISE_FLOOR_PERCENTILE = 10.0

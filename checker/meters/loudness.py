@@ -48,13 +48,13 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
-from checker import units
-from checker.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range
 from checker.dsp import native
 from checker.dsp.iir import sosfilt_rows
 from checker.dsp.kweighting import k_weighting_sos
-from checker.layout import Layout
+from checker.io.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
+from checker.model import units
 
 HOP_S = 0.1
 MOMENTARY_STEPS = 4  # 400 ms of 100 ms steps

@@ -43,12 +43,12 @@ from typing import Any
 
 import numpy as np
 
-from checker.audio import Block, StreamInfo
 from checker.dsp import native
-from checker.layout import Layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.levels import channels_first, find_runs, finite_x, keep_first
-from checker.units import db_to_amplitude
+from checker.model.units import db_to_amplitude
 
 STEP_S = 0.001
 WINDOW_STEPS = 20

@@ -38,12 +38,12 @@ from importlib import metadata
 
 import numpy as np
 
-from checker import units
-from checker.audio import Block, StreamInfo
 from checker.dsp.iir import sosfilt_rows
-from checker.layout import Layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.loudness import MOMENTARY_STEPS, RELATIVE_GATE_LU, integrated_from_blocks
+from checker.model import units
 
 VAD_RATE_HZ = 16_000
 WINDOW_SAMPLES = 512  # the detector's window at 16 kHz: 32 ms

@@ -99,7 +99,6 @@ from typing import Any
 
 import numpy as np
 
-from checker.audio import Block, StreamInfo
 from checker.dsp import native
 from checker.dsp.interp import (
     CHUNK_FRAMES,
@@ -115,9 +114,10 @@ from checker.dsp.interp import (
     refine_peaks,
     step_weights,
 )
-from checker.layout import Layout
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
-from checker.units import amplitude_to_db, db_to_amplitude
+from checker.model.units import amplitude_to_db, db_to_amplitude
 
 #: Maxima closer than this to either end of the file are flagged as at the edge...
 EDGE_S = 0.005

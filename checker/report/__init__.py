@@ -1,7 +1,11 @@
 """Reports: report.csv, flags.csv, fixes.csv, results.jsonl and a self-contained report.html.
 
 The one entry point the batch runner calls is :func:`write_reports`; every file is
-written atomically (temporary file in the same directory, fsync, rename).
+written atomically (temporary file in the same directory, fsync, rename). ``frame`` builds
+the tables behind the CSV files, ``cells`` makes them spreadsheet-clean, ``judged`` says which
+value a row shows, ``html``/``htmldata``/``chart`` draw the page, ``fixes`` groups the fix list.
+
+May import every stage below it (``model`` up to ``run``); reads results, never measures.
 """
 
 from __future__ import annotations
@@ -12,13 +16,13 @@ from pathlib import Path
 
 import pandas as pd
 
+from checker.model.results import FileResult, RunInfo
 from checker.report.atomic import write_text_atomic
 from checker.report.csv_out import write_csv
 from checker.report.fixes import fixes_frame
+from checker.report.frame import flags_frame, not_checked_frame, results_frame, sorted_results
 from checker.report.html import render_html
 from checker.report.jsonl import write_jsonl
-from checker.report.table import flags_frame, not_checked_frame, results_frame, sorted_results
-from checker.results import FileResult, RunInfo
 
 REPORT_FILES = {
     "csv": "report.csv",

@@ -19,8 +19,8 @@ from collections.abc import Sequence
 from html import escape
 from pathlib import Path
 
+from checker.model.results import FileResult, RunInfo
 from checker.report.atomic import atomic_text, write_text_atomic
-from checker.results import FileResult, RunInfo
 
 FOLDER = "by-profile"
 INDEX = "index.html"

@@ -19,7 +19,7 @@ import math
 import re
 from typing import Any
 
-from checker.limitdefs import BY_KEY, MAX, MIN, NO_CUTOFF_BELOW, TARGET
+from checker.profile.catalogue import BY_KEY, MAX, MIN, NO_CUTOFF_BELOW, TARGET
 
 #: Decimals kept in the CSV files, by unit suffix of the key (full precision: JSONL, SQLite).
 PRECISION: dict[str, int] = {

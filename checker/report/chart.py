@@ -16,7 +16,8 @@ from collections.abc import Sequence
 from html import escape
 from typing import Any
 
-from checker.results import FileResult
+from checker.model.results import FileResult
+from checker.report.judged import cell_values  # the same judged value as the table
 
 W, H = 720, 360
 L, R, T, B = 58, 18, 16, 46
@@ -33,7 +34,6 @@ def _finite(x: Any) -> float | None:
 
 def points(results: Sequence[FileResult], mono_loudness: str = "") -> list[dict[str, Any]]:
     """(loudness, true peak, status, name) per file that has both values."""
-    from checker.report.html import cell_values  # the same judged value as the table
 
     out = []
     for r in results:

@@ -1,7 +1,7 @@
 """The fix list: flagged files grouped by the action that fixes them (fixes.csv, top of report.html).
 
 Every flag (and every file that could not be checked) lands in exactly one group, chosen
-from the limit's catalogue entry (checker.limitdefs): its section, with a few limits moved
+from the limit's catalogue entry (checker.profile.catalogue): its section, with a few limits moved
 to where the work actually happens. Loudness off target goes to "apply gain" when the gain
 advice says plain gain is enough, otherwise to "limit or remix". A limit that could not be
 measured goes to "listen and decide". A file may appear in several groups.
@@ -16,11 +16,11 @@ from typing import Any
 
 import pandas as pd
 
-from checker.limitdefs import BY_KEY
+from checker.model.results import FileResult
+from checker.model.verdict import ERROR, Flag
+from checker.profile.catalogue import BY_KEY
 from checker.report.cells import limit_cells, number, value_cell
-from checker.report.table import ERROR_RULE, object_frame, sorted_results
-from checker.results import FileResult
-from checker.verdict import ERROR, Flag
+from checker.report.frame import ERROR_RULE, object_frame, sorted_results
 
 
 @dataclass(frozen=True)

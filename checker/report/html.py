@@ -21,12 +21,13 @@ from html import escape
 from importlib import resources
 from typing import Any
 
+from checker.model.results import FileResult, RunInfo
+from checker.model.verdict import STATUS_ORDER
 from checker.report.chart import batch_chart
 from checker.report.fixes import fixes_html
+from checker.report.frame import list_text, sorted_results
 from checker.report.htmldata import embed_json, file_detail, profile_limits_for_graph
-from checker.report.table import list_text, sorted_results
-from checker.results import FileResult, RunInfo
-from checker.verdict import STATUS_ORDER
+from checker.report.judged import SET_SUM_CELLS, cell_values, judged_as_dual_mono
 
 #: Status word, symbol and the sentence a screen reader hears. Colour is never the only cue.
 STATUS_LOOK = {
@@ -149,35 +150,6 @@ def common_folder(paths: Sequence[str]) -> str:
     prefix = os.path.commonprefix(folders)
     cut = max(prefix.rfind("/"), prefix.rfind("\\"))
     return prefix[: cut + 1]
-
-
-#: A stem set's row shows, under the file columns, what was measured on the stems' sum.
-SET_SUM_CELLS: dict[str, str] = {
-    "integrated_lufs": "sum_integrated_lufs",
-    "true_peak_dbtp": "sum_true_peak_dbtp",
-    "sample_peak_dbfs": "sum_sample_peak_dbfs",
-}
-
-
-def judged_as_dual_mono(values: dict[str, Any], mono_loudness: str) -> bool:
-    """A mono file under a profile that judges mono as if played on both stereo channels."""
-    return (
-        mono_loudness == "dual_mono"
-        and values.get("channels") == 1
-        and _num(values.get("integrated_dual_mono_lufs")) is not None
-    )
-
-
-def cell_values(r: FileResult, mono_loudness: str = "") -> dict[str, Any]:
-    """The values a table row shows: a file's own (a mono file judged as dual mono shows
-    the judged value under Integrated); for a stem set, the sum's under the file columns
-    (SET_SUM_CELLS), its other set values as they are."""
-    values = r.measurement.values if r.measurement else {}
-    if r.kind != "set":
-        if judged_as_dual_mono(values, mono_loudness):
-            return {**values, "integrated_lufs": values["integrated_dual_mono_lufs"]}
-        return values
-    return {**values, **{cell: values.get(key) for cell, key in SET_SUM_CELLS.items()}}
 
 
 def _row(

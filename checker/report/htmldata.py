@@ -14,9 +14,9 @@ from typing import Any
 
 import numpy as np
 
+from checker.model.results import FileResult, RunInfo
+from checker.model.timeline import Timeline
 from checker.report.jsonl import safe
-from checker.results import FileResult, RunInfo
-from checker.timeline import Timeline
 
 #: Points per series in the embedded graph data (the SVG is about 700 px wide).
 GRAPH_POINTS = 480

@@ -1,7 +1,7 @@
 """results.jsonl: one JSON object per file, for machines.
 
 Each line is ``FileResult.to_dict(timeline=True)`` encoded with the rules of
-:func:`checker.serial.dumps` (valid JSON, no NaN or Infinity tokens: ``-inf`` is the string
+:func:`checker.model.serial.dumps` (valid JSON, no NaN or Infinity tokens: ``-inf`` is the string
 ``"-inf"``). :func:`safe` applies those rules in one pass over the data; the output is
 identical to ``serial.dumps`` (tested) and several times faster on long timelines.
 """
@@ -14,13 +14,13 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+from checker.model.results import NOT_CHECKED, FileResult
+from checker.model.serial import plain
 from checker.report.atomic import atomic_text
-from checker.results import NOT_CHECKED, FileResult
-from checker.serial import plain
 
 
 def safe(value: Any) -> Any:
-    """One pass to JSON-ready data with the rules of checker.serial.json_safe.
+    """One pass to JSON-ready data with the rules of checker.model.serial.json_safe.
 
     NaN -> None, -inf -> "-inf", inf -> "inf"; numpy scalars and arrays -> Python values.
     """
@@ -41,7 +41,7 @@ def safe(value: Any) -> Any:
 
 
 def dumps(value: Any) -> str:
-    """Same text as :func:`checker.serial.dumps`."""
+    """Same text as :func:`checker.model.serial.dumps`."""
     return json.dumps(safe(value), allow_nan=False, ensure_ascii=False, sort_keys=False)
 
 

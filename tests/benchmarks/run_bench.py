@@ -47,8 +47,8 @@ EXE = str(Path(PY).with_name("deliverycheck"))
 
 
 def engine_block(path: Path) -> str:
-    """The block size the engine picks for this file (checker.audio.auto_block_frames)."""
-    from checker.audio import auto_block_frames, open_info
+    """The block size the engine picks for this file (checker.io.audio.auto_block_frames)."""
+    from checker.io.audio import auto_block_frames, open_info
 
     return str(auto_block_frames(open_info(str(path))))
 

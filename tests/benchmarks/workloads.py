@@ -51,15 +51,15 @@ def measure_one_thread(path: str) -> None:
     """(b1) The same analysis as `deliverycheck measure`, without its read-ahead thread:
     what one file costs on one core (a batch worker's case; measure() runs the library
     pools at one thread)."""
-    from checker.measure import measure
+    from checker.analysis.onepass import measure
 
     measure(path)
 
 
 def truepeak_skip(path: str, block_frames: int) -> None:
     """True-peak chunks interpolated / seen (the skip bound's effect), printed as 'n m'."""
-    from checker.audio import read_blocks
-    from checker.layout import default_layout
+    from checker.io.audio import read_blocks
+    from checker.io.layout import default_layout
     from checker.meters.base import MeasureOptions
     from checker.meters.truepeak import TruePeakMeter
 

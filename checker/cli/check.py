@@ -1,0 +1,334 @@
+"""``deliverycheck check PATH... --profile NAME|FILE``: check a batch against a profile."""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import json
+import os
+import shlex
+import sys
+from pathlib import Path
+from typing import TextIO
+
+from checker.cli.summary import WORST_SHOWN, summary_lines
+from checker.io.layout import check_layout_text
+from checker.model.errors import (
+    EXIT_FAILED,
+    EXIT_INTERRUPTED,
+    EXIT_OK,
+    EXIT_OUTPUT,
+    EXIT_UNCHECKED,
+    OutputError,
+    StoreError,
+    UsageError,
+    os_cause,
+)
+from checker.model.names import for_terminal
+from checker.model.verdict import ERROR, FAIL, WARN
+from checker.run.progress import Progress
+from checker.run.workers import DEFAULT_MEMORY_MB
+
+DEFAULT_OUT = "deliverycheck-report"
+__all__ = ["WORST_SHOWN", "add_parser", "run", "summary_lines"]
+
+
+def add_parser(sub) -> argparse.ArgumentParser:
+    p = sub.add_parser(
+        "check",
+        help="check a batch of files against a delivery profile",
+        description=(
+            "Find the audio files under each PATH, measure each once, judge it against the "
+            "profile, and write the reports and the results store to --out. Every file found "
+            "is measured, refused with the reason (status error), or listed as not checked "
+            "when it is clearly not a deliverable (text, images, sidecar files). Files already "
+            "measured (same path, size, modification and change time) are not read again, so "
+            "running the same command after an interruption resumes the batch."
+        ),
+    )
+    p.add_argument("paths", nargs="+", metavar="PATH", help="audio files or folders")
+    p.add_argument("--profile", required=True, metavar="NAME|FILE", help="delivery profile")
+    p.add_argument(
+        "--out", default=DEFAULT_OUT, metavar="DIR", help=f"output folder (default: {DEFAULT_OUT})"
+    )
+    p.add_argument(
+        "--jobs",
+        type=int,
+        metavar="N",
+        help="worker processes (default and most: one per usable core)",
+    )
+    p.add_argument("--fresh", action="store_true", help="measure every file again (ignore store)")
+    p.add_argument("--quiet", action="store_true", help="no progress line")
+    p.add_argument(
+        "--strict",
+        action="store_true",
+        help="warnings fail too (exit 1): for pipelines that accept only clean passes",
+    )
+    p.add_argument(
+        "--cluster",
+        metavar="ADDRESS",
+        help="measure on a Dask scheduler (tcp://host:8786) or local:N for N local workers",
+    )
+    p.add_argument(
+        "--timeout-s",
+        type=float,
+        metavar="S",
+        help="per-file time limit in seconds (default: 120 s plus the file's duration)",
+    )
+    p.add_argument(
+        "--mix",
+        metavar="FILE",
+        help="reference mix for a stem set: the stems must rebuild it (null test); "
+        "takes one folder PATH",
+    )
+    p.add_argument(
+        "--layout",
+        metavar="LABELS",
+        help='channel order of the files with as many channels, e.g. "L C R Ls Rs LFE" '
+        "(overrides the profile's; other files keep their own)",
+    )
+    p.add_argument(
+        "--worker-memory-mb",
+        type=int,
+        default=DEFAULT_MEMORY_MB,
+        metavar="MB",
+        help=f"memory ceiling per worker process (default: {DEFAULT_MEMORY_MB}; 0 = none)",
+    )
+    return p
+
+
+def exit_code(results, strict: bool = False) -> int:
+    """3 when a file could not be checked, 1 when one failed (or warned, with --strict), else 0."""
+    statuses = {r.status for r in results}
+    if ERROR in statuses:
+        return EXIT_UNCHECKED
+    if FAIL in statuses or (strict and WARN in statuses):
+        return EXIT_FAILED
+    return EXIT_OK
+
+
+def missing_paths(paths) -> list[str]:
+    """PATH arguments that name nothing at all (a typo): a usage error, nothing is checked.
+
+    A dangling symlink exists as a name and stays a per-file error row.
+    """
+    return [p for p in paths if not os.path.lexists(p)]
+
+
+def stem_set_folders(args, profile) -> list[str]:
+    """Each folder PATH is one stem set when --mix is given or the profile has set limits."""
+    has_set_limits = any(row.get("scope") == "set" for row in profile.limits_table())
+    folders = [p for p in args.paths if os.path.isdir(p)]
+    if args.mix:
+        if len(folders) != 1 or len(args.paths) != 1:
+            raise UsageError(
+                f"--mix: PATH = {' '.join(args.paths)} (expected exactly one folder of stems)"
+            )
+        if not os.path.isfile(args.mix):
+            raise UsageError(f"--mix: {args.mix} (expected an existing audio file)")
+    return folders if (args.mix or has_set_limits) else []
+
+
+def stem_set_key(stem_set, options) -> str | None:
+    """What a stem set's stored values depend on: every file's identity (resolved path, size,
+    modification and change time), the engine version and the options; None when a file cannot be
+    stat'ed (then the set is checked again, and says why)."""
+    from checker.model.version import ENGINE_VERSION
+    from checker.run.batch import options_key
+    from checker.run.store import FileIdentity
+
+    try:
+        files = [FileIdentity.of(p) for p in stem_set.stem_paths]
+        mix = FileIdentity.of(stem_set.mix_path) if stem_set.mix_path else None
+    except OSError:
+        return None
+    parts = [ENGINE_VERSION, options_key(options), stem_set.name, os.path.realpath(stem_set.folder)]
+    parts += [[f.path, f.size_bytes, f.mtime_ns, f.ctime_ns] for f in files]
+    parts.append([mix.path, mix.size_bytes, mix.mtime_ns, mix.ctime_ns] if mix else None)
+    return json.dumps(parts)
+
+
+def measure_stem_set(stem_set, options, store=None, fresh: bool = False, counts=None):
+    """The set's SetMeasurement: from the store when its files are unchanged (a re-check
+    against another profile, a resumed batch), else one lockstep pass, stored when clean.
+    ``counts`` (a dict) gets ``sets_stored`` or ``sets_measured`` incremented."""
+    from checker.stems.sets import SetMeasurement, check_stem_set
+
+    counts = {} if counts is None else counts
+    key = stem_set_key(stem_set, options) if store is not None else None
+    if key is not None and not fresh:
+        cached = store.get_stem_set(key)
+        if cached is not None:
+            counts["sets_stored"] = counts.get("sets_stored", 0) + 1
+            return SetMeasurement.from_dict(cached)
+    counts["sets_measured"] = counts.get("sets_measured", 0) + 1
+    sm = check_stem_set(
+        list(stem_set.stem_paths),
+        stem_set.mix_path,
+        options,
+        name=stem_set.name,
+        folder=stem_set.folder,
+    )
+    if key is not None and not sm.errors:  # read errors may be passing: measure again next run
+        store.put_stem_set(key, stem_set.folder, sm.to_dict())
+    return sm
+
+
+def add_stem_sets(
+    folders: list[str],
+    mix: str | None,
+    profile,
+    results: list,
+    store=None,
+    fresh: bool = False,
+    layout: str | None = None,
+    counts=None,
+) -> list:
+    """Set-level rows (one per folder), each followed by its stems' own rows."""
+    from checker.run.batch import measure_options
+    from checker.stems.sets import evaluate_set, stem_set_from_folder
+
+    by_path = {os.path.abspath(r.path): r for r in results}
+    ordered, used = [], set()
+    for folder in folders:
+        stem_set = stem_set_from_folder(folder, mix)
+        sm = measure_stem_set(stem_set, measure_options(profile, layout), store, fresh, counts)
+        ordered.append(evaluate_set(sm, profile))
+        for stem in stem_set.stem_paths:
+            row = by_path.get(os.path.abspath(stem))
+            if row is not None and id(row) not in used:
+                used.add(id(row))
+                ordered.append(dataclasses.replace(row, group=stem_set.name))
+    return ordered + [r for r in results if id(r) not in used]
+
+
+def run(args, out: TextIO, err: TextIO) -> int:
+    from checker.profile.load import load_profile
+    from checker.run.batch import Interrupted, StoreFailed, run_batch
+
+    if args.jobs is not None and args.jobs < 1:
+        raise UsageError(f"--jobs: jobs = {args.jobs} (expected >= 1)")
+    if args.worker_memory_mb is not None and args.worker_memory_mb < 0:
+        raise UsageError(f"--worker-memory-mb: {args.worker_memory_mb} (expected >= 0)")
+    missing = missing_paths(args.paths)
+    if missing:
+        raise UsageError(
+            f"PATH: {', '.join(missing)} (expected an existing file or folder; nothing checked)"
+        )
+    profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    if args.layout is not None:
+        check_layout_text(args.layout)
+    folders = stem_set_folders(args, profile)
+    out_dir = Path(args.out)
+    notes: list[str] = []
+    progress = Progress(err, quiet=args.quiet)
+    try:
+        run_info, results = run_batch(
+            args.paths,
+            profile,
+            out_dir,
+            jobs=args.jobs,
+            fresh=args.fresh,
+            cluster=args.cluster,
+            timeout_s=args.timeout_s,
+            progress=progress,
+            memory_mb=args.worker_memory_mb or None,
+            on_note=notes.append,
+            layout=args.layout,
+        )
+    except StoreFailed as exc:  # the store failed part-way: report what was measured
+        return _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err)
+    except Interrupted as exc:
+        # --fresh would measure everything again: the resume command leaves it out.
+        resume = [a for a in sys.argv[1:] if a != "--fresh"]
+        again = " ".join(shlex.quote(a) for a in ["deliverycheck", *resume])
+        if not resume or resume[0] != "check":
+            again = "the same deliverycheck check command (without --fresh)"
+        print(
+            f"deliverycheck: interrupted: {exc.done} of {exc.total} files finished and kept in "
+            f"{out_dir / 'results.sqlite'}; no report written.",
+            file=err,
+        )
+        print(for_terminal(f"to resume, run again: {again}"), file=err)
+        return EXIT_INTERRUPTED
+    failure = None
+    counts = {"measured": progress.measured, "stored": progress.stored}
+    if folders:
+        results, failure = _with_stem_sets(folders, args, profile, results, out_dir, counts)
+    code = _report(out_dir, run_info, results, notes, out, err, counts=counts, strict=args.strict)
+    if failure is not None:
+        print(for_terminal(f"deliverycheck: {failure}"), file=err)
+        return EXIT_OUTPUT
+    return code
+
+
+def _with_stem_sets(folders, args, profile, results, out_dir, counts):
+    """Results with the stem sets' rows; (rows, the store's failure or None). A store that
+    fails leaves the sets measured without it."""
+    from checker.run.store import open_store
+
+    try:
+        with open_store(out_dir) as store:
+            rows = add_stem_sets(
+                folders, args.mix, profile, results, store, args.fresh, args.layout, counts
+            )
+            return rows, None
+    except StoreError as exc:
+        rows = add_stem_sets(
+            folders, args.mix, profile, results, None, args.fresh, args.layout, counts
+        )
+        return rows, exc
+
+
+def _report(
+    out_dir: Path,
+    run_info,
+    results,
+    notes,
+    out,
+    err,
+    stored: bool = True,
+    counts: dict[str, int] | None = None,
+    strict: bool = False,
+) -> int:
+    """Write the reports (and this profile's copy beside the others') and print the summary;
+    the run's exit code, or EXIT_OUTPUT (with a one-line message) when the reports cannot be
+    written."""
+    from checker.report import write_reports
+    from checker.report.byprofile import keep_profile_copy
+
+    try:
+        written = write_reports(out_dir, run_info, results)
+        index = keep_profile_copy(out_dir, run_info, results, written)
+    except OSError as exc:
+        what, todo = os_cause(exc)
+        where = exc.filename or out_dir
+        kept = (
+            "the measurements are kept in the results store, so nothing is measured twice"
+            if stored
+            else "files finished before the store failed are kept in it"
+        )
+        raise OutputError(
+            f"reports: cannot write {where}: {what} ({exc.strerror or exc}); {todo}, then run "
+            f"the same command again: {kept}"
+        ) from None
+    written = {"store": out_dir / "results.sqlite", **written, "profiles": index}
+    for line in summary_lines(run_info, results, written, notes, counts):
+        print(line, file=out)
+    return exit_code(results, strict=strict)
+
+
+def _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err) -> int:
+    """The batch finished without its store: write the reports if possible, then say what
+    failed. Exit EXIT_OUTPUT either way."""
+    results = exc.results
+    if folders:
+        results = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
+    try:
+        _report(out_dir, exc.run, results, notes, out, err, stored=False, strict=args.strict)
+        where = f"the reports in {out_dir} hold all {len(exc.results)} files of this run"
+    except OutputError as report_failure:
+        print(for_terminal(f"deliverycheck: {report_failure}"), file=err)
+        where = "the reports could not be written either"
+    print(for_terminal(f"deliverycheck: {exc} ({where})"), file=err)
+    return EXIT_OUTPUT

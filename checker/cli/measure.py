@@ -1,0 +1,93 @@
+"""``deliverycheck measure FILE... [--json]``: measure files, no profile."""
+
+from __future__ import annotations
+
+import argparse
+import math
+from typing import TextIO
+
+from checker.analysis.onepass import measure
+from checker.meters.base import MeasureOptions
+from checker.model.errors import EXIT_OK, EXIT_UNCHECKED, CheckerError
+from checker.model.names import for_terminal, readable_data
+from checker.model.serial import dumps
+
+
+def add_parser(sub) -> argparse.ArgumentParser:
+    p = sub.add_parser(
+        "measure",
+        help="measure files (loudness, peaks, levels) without judging them",
+        description="Measure each file once and print the results.",
+    )
+    p.add_argument("files", nargs="+", metavar="FILE")
+    p.add_argument("--json", action="store_true", help="one JSON object per file per line")
+    p.add_argument(
+        "--timeline", action="store_true", help="with --json: include the loudness timeline"
+    )
+    p.add_argument(
+        "--speech",
+        action="store_true",
+        help="also measure speech-gated loudness (speech_lufs, speech_share; several times slower)",
+    )
+    p.add_argument("--layout", help='channel layout, e.g. "L R C LFE Ls Rs" (default: from file)')
+    p.add_argument(
+        "--block-frames", type=int, default=MeasureOptions.block_frames, help=argparse.SUPPRESS
+    )
+    return p
+
+
+def _fmt(value) -> str:
+    if value is None:
+        return "-"
+    if isinstance(value, float):
+        if math.isinf(value):
+            return "-inf" if value < 0 else "inf"
+        return f"{value:.2f}"
+    if isinstance(value, list):
+        return "[" + ", ".join(_fmt(v) for v in value) + "]"
+    return str(value)
+
+
+SUMMARY_KEYS = (
+    "duration_s",
+    "sample_rate_hz",
+    "subtype",
+    "channel_layout",
+    "integrated_lufs",
+    "integrated_dual_mono_lufs",
+    "loudness_range_lu",
+    "max_momentary_lufs",
+    "max_short_term_lufs",
+    "true_peak_dbtp",
+    "sample_peak_dbfs",
+    "speech_lufs",
+    "speech_share",
+    "speech_to_programme_lu",
+    "speech_note",
+)
+
+
+def run(args, out: TextIO, err: TextIO) -> int:
+    options = MeasureOptions(block_frames=args.block_frames, layout=args.layout, speech=args.speech)
+    status = EXIT_OK
+    for path in args.files:
+        try:
+            m = measure(path, options, read_ahead=True)  # one file at a time: a core to spare
+        except CheckerError as exc:
+            status = max(status, EXIT_UNCHECKED)
+            if args.json:  # names in readable form: a non-UTF-8 name cannot stop the output
+                line = dumps(readable_data({"path": path, "error": str(exc)}))
+                print(line, file=out, flush=True)
+            else:
+                print(for_terminal(f"{path}: error: {exc}"), file=err, flush=True)
+            continue
+        if args.json:
+            print(dumps(readable_data(m.to_dict(timeline=args.timeline))), file=out, flush=True)
+        else:
+            print(for_terminal(path), file=out)
+            for key in SUMMARY_KEYS:
+                if key in m.values and m.values[key] is not None:
+                    print(f"  {key:<28} {_fmt(m.values[key])}", file=out)
+            for finding in m.findings:
+                print(for_terminal(f"  note: {finding}"), file=out)
+    return status

@@ -1,1 +1,0 @@
-"""Subcommands of the deliverycheck CLI, one module each (see checker.cli)."""

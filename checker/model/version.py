@@ -1,0 +1,6 @@
+"""The package version and the measuring engine's version (part of the store's cache key)."""
+
+__version__ = "0.1.0"
+
+#: Bumped whenever a change alters any measured value; part of the store's cache key.
+ENGINE_VERSION = f"{__version__}+engine9"  # 7: containers; 8: carriers, lossy; 9: quiet parts

@@ -1,0 +1,495 @@
+"""The results store: one SQLite file (standard library, WAL mode) per output folder.
+
+It keeps each file's measurement keyed by the file's identity (resolved path,
+size, modification time in ns) plus the engine version and the measurement
+options that change values, so a later run (resumed after a crash, or against
+another profile) reads no audio for files already measured. The identity also
+holds the inode change time (ctime, ns): a lookup matches only when it is the
+same too, so a file rewritten with the same size and its old modification time
+put back (``touch -r``, some copy tools) is measured again. It also keeps
+per-file errors, each run and each verdict. Paths are stored in readable form
+(checker.model.names: a name that is not valid UTF-8 has its odd bytes written
+``\\xNN``), so any file name can be stored.
+
+Failures of the store itself (disk full, read-only folder, damaged file) raise
+StoreError with one line saying what, where and what to do (exit code 4).
+
+Only the parent process writes. Every finished file is committed at once, so
+a killed run loses at most the files in flight; UNIQUE keys and upserts mean
+nothing is ever stored twice. ``attempts`` counts how often a file was
+measured (tests use it to show that a resumed run re-read nothing).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import errno
+import json
+import os
+import sqlite3
+import tempfile
+from dataclasses import dataclass, replace
+from datetime import UTC, datetime
+from pathlib import Path
+
+from checker.model.errors import StoreError, os_cause
+from checker.model.measurement import Measurement
+from checker.model.names import readable, readable_data
+from checker.model.results import FileResult, RunInfo
+from checker.model.serial import dumps, from_json_safe
+from checker.model.timeline import Timeline
+from checker.model.verdict import Verdict
+
+SCHEMA_VERSION = 3  # 2: stem_sets; 3: ctime_ns in measurements and errors
+STORE_NAME = "results.sqlite"
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (
+    key TEXT PRIMARY KEY,
+    value TEXT NOT NULL
+);
+CREATE TABLE IF NOT EXISTS measurements (
+    id INTEGER PRIMARY KEY,
+    path TEXT NOT NULL,
+    size_bytes INTEGER NOT NULL,
+    mtime_ns INTEGER NOT NULL,
+    ctime_ns INTEGER,
+    engine_version TEXT NOT NULL,
+    options_key TEXT NOT NULL,
+    measurement_json TEXT NOT NULL,
+    timeline_json TEXT,
+    measured_at TEXT NOT NULL,
+    attempts INTEGER NOT NULL DEFAULT 1,
+    UNIQUE (path, size_bytes, mtime_ns, engine_version, options_key)
+);
+CREATE TABLE IF NOT EXISTS errors (
+    id INTEGER PRIMARY KEY,
+    path TEXT NOT NULL,
+    size_bytes INTEGER NOT NULL,
+    mtime_ns INTEGER NOT NULL,
+    ctime_ns INTEGER,
+    engine_version TEXT NOT NULL,
+    options_key TEXT NOT NULL,
+    message TEXT NOT NULL,
+    retry INTEGER NOT NULL,
+    failed_at TEXT NOT NULL,
+    attempts INTEGER NOT NULL DEFAULT 1,
+    UNIQUE (path, size_bytes, mtime_ns, engine_version, options_key)
+);
+CREATE TABLE IF NOT EXISTS runs (
+    run_id TEXT PRIMARY KEY,
+    started_at TEXT NOT NULL,
+    finished_at TEXT,
+    profile_name TEXT NOT NULL,
+    run_json TEXT NOT NULL
+);
+CREATE TABLE IF NOT EXISTS stem_sets (
+    set_key TEXT PRIMARY KEY,
+    folder TEXT NOT NULL,
+    set_json TEXT NOT NULL,
+    measured_at TEXT NOT NULL
+);
+CREATE TABLE IF NOT EXISTS verdicts (
+    run_id TEXT NOT NULL REFERENCES runs(run_id),
+    path TEXT NOT NULL,
+    status TEXT NOT NULL,
+    verdict_json TEXT,
+    error TEXT,
+    PRIMARY KEY (run_id, path)
+);
+"""
+
+
+@dataclass(frozen=True)
+class FileIdentity:
+    """Who a file is, for caching: its resolved path (readable form), size, modification
+    time and inode change time. The unique key is (path, size, mtime); ctime must match too
+    for a stored row to be used, and a new row replaces the old one."""
+
+    path: str
+    size_bytes: int
+    mtime_ns: int
+    ctime_ns: int = 0
+
+    @classmethod
+    def of(cls, path: str) -> FileIdentity:
+        """Raises OSError when the file cannot be stat'ed (vanished, no permission)."""
+        real = os.path.realpath(path)
+        st = os.stat(real)
+        return cls(readable(real), st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+
+    def key(self) -> tuple[str, int, int]:
+        return (self.path, self.size_bytes, self.mtime_ns)
+
+
+def _now() -> str:
+    return datetime.now(UTC).isoformat(timespec="seconds")
+
+
+class Store:
+    """SQLite results store. Use as a context manager or call close()."""
+
+    def __init__(self, path: str | Path):
+        self.path = Path(path)
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            what, todo = os_cause(exc)
+            raise StoreError(
+                f"results store {self.path}: cannot create its folder: {what} "
+                f"({exc.strerror or exc}); {todo}"
+            ) from None
+        try:
+            self.db = sqlite3.connect(str(self.path), timeout=30.0, isolation_level=None)
+        except sqlite3.Error as exc:
+            raise self._error(exc, "opening it") from None
+        try:
+            self.db.execute("PRAGMA journal_mode=WAL")
+            # In WAL mode NORMAL is safe against a killed process; only a power
+            # cut may lose the last commits (never corrupt the file).
+            self.db.execute("PRAGMA synchronous=NORMAL")
+            self.db.execute("PRAGMA foreign_keys=ON")
+            self._init_schema()
+        except sqlite3.Error as exc:
+            self.db.close()
+            raise self._error(exc, "opening it") from None
+        except StoreError:
+            self.db.close()
+            raise
+
+    def _error(self, exc: sqlite3.Error, doing: str) -> StoreError:
+        """One line for a failure of the store: what, where, what to do."""
+        code = (getattr(exc, "sqlite_errorcode", None) or 0) & 0xFF
+        text = str(exc)
+        where = f"results store {self.path}"
+        again = "then run the same command again: files already finished are kept"
+        if (
+            code in (_SQLITE_CORRUPT, _SQLITE_NOTADB)
+            or "malformed" in text
+            or "not a database" in text
+        ):
+            return StoreError(
+                f"{where}: not a usable results store, the file is damaged or not a "
+                f"deliverycheck SQLite file ({text}) while {doing}; move it away (or delete it) "
+                "and run again (every file will be measured again), or use another output folder"
+            )
+        if code in (_SQLITE_BUSY, _SQLITE_LOCKED):
+            return StoreError(
+                f"{where}: in use by another process ({text}) while {doing}; wait for the "
+                "other run to finish, or use another output folder"
+            )
+        if code == _SQLITE_FULL or "disk is full" in text:
+            return StoreError(
+                f"{where}: the disk is full ({text}) while {doing}; free some space or use "
+                f"another output folder, {again}"
+            )
+        probe = _probe_folder(self.path.parent)
+        if probe is not None:
+            what, todo = os_cause(probe)
+            return StoreError(
+                f"{where}: cannot write in {self.path.parent}: {what} "
+                f"({probe.strerror or probe}) while {doing}; {todo}, {again}"
+            )
+        if code == _SQLITE_READONLY or "readonly" in text:
+            return StoreError(
+                f"{where}: the file is read-only ({text}) while {doing}; make it writable or "
+                f"use another output folder, {again}"
+            )
+        return StoreError(
+            f"{where}: failed ({type(exc).__name__}: {text}) while {doing}; check the disk "
+            f"and the folder, or use another output folder, {again}"
+        )
+
+    def _guard(self, doing: str):
+        """Context: sqlite3 errors inside become StoreError (see _error)."""
+        store = self
+
+        class _Guard:
+            def __enter__(self):
+                return None
+
+            def __exit__(self, exc_type, exc, tb):
+                if exc is not None and isinstance(exc, sqlite3.Error):
+                    raise store._error(exc, doing) from None
+                return False
+
+        return _Guard()
+
+    def _init_schema(self) -> None:
+        found = self.schema_version()
+        if found is not None and found > SCHEMA_VERSION:
+            raise StoreError(
+                f"{self.path}: schema_version = {found} "
+                f"(expected <= {SCHEMA_VERSION}; written by a newer deliverycheck: use it, "
+                "or another output folder)"
+            )
+        with self._tx("preparing it"):
+            for statement in _SCHEMA.split(";"):
+                if statement.strip():
+                    self.db.execute(statement)
+            # Schema 3: the identity gained ctime_ns. Older rows keep NULL there, which
+            # matches no file: they are measured again once (and replaced).
+            for table in ("measurements", "errors"):
+                columns = {row[1] for row in self.db.execute(f"PRAGMA table_info({table})")}
+                if "ctime_ns" not in columns:
+                    self.db.execute(f"ALTER TABLE {table} ADD COLUMN ctime_ns INTEGER")
+            # A store of an older schema has just gained the newer tables: say so.
+            self.db.execute(
+                "INSERT INTO meta(key, value) VALUES ('schema_version', ?) "
+                "ON CONFLICT(key) DO UPDATE SET value=excluded.value",
+                (str(SCHEMA_VERSION),),
+            )
+
+    def schema_version(self) -> int | None:
+        row = self.db.execute(
+            "SELECT name FROM sqlite_master WHERE type='table' AND name='meta'"
+        ).fetchone()
+        if row is None:
+            return None
+        row = self.db.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+        if row is None:
+            return None
+        try:
+            return int(row[0])
+        except ValueError:
+            raise StoreError(
+                f"{self.path}: schema_version = {row[0]!r} (expected an integer)"
+            ) from None
+
+    def _tx(self, doing: str = "writing to it"):
+        """BEGIN IMMEDIATE ... COMMIT (ROLLBACK on error); sqlite3 errors -> StoreError."""
+        store = self
+
+        class _Tx:
+            def __enter__(self):
+                try:
+                    store.db.execute("BEGIN IMMEDIATE")
+                except sqlite3.Error as exc:
+                    raise store._error(exc, doing) from None
+
+            def __exit__(self, exc_type, exc, tb):
+                try:
+                    store.db.execute("COMMIT" if exc is None else "ROLLBACK")
+                except sqlite3.Error as failure:
+                    if exc is None:
+                        raise store._error(failure, doing) from None
+                if isinstance(exc, sqlite3.Error):
+                    raise store._error(exc, doing) from None
+                return False
+
+        return _Tx()
+
+    def close(self) -> None:
+        self.db.close()
+
+    def __enter__(self) -> Store:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # -- measurements and errors -------------------------------------------------
+
+    def get_measurement(
+        self, ident: FileIdentity, engine_version: str, options_key: str
+    ) -> Measurement | None:
+        with self._guard("reading a stored measurement"):
+            row = self.db.execute(
+                "SELECT measurement_json, timeline_json FROM measurements WHERE path=? AND "
+                "size_bytes=? AND mtime_ns=? AND ctime_ns=? AND engine_version=? "
+                "AND options_key=?",
+                (*ident.key(), ident.ctime_ns, engine_version, options_key),
+            ).fetchone()
+        if row is None:
+            return None
+        m = Measurement.from_dict(from_json_safe(json.loads(row[0])))
+        timeline = Timeline.from_dict(from_json_safe(json.loads(row[1]))) if row[1] else None
+        return replace(m, timeline=timeline)
+
+    def put_measurement(
+        self, ident: FileIdentity, options_key: str, measurement: Measurement
+    ) -> None:
+        """Store (or replace, counting the attempt) one measurement; committed at once."""
+        timeline = measurement.timeline.to_dict() if measurement.timeline else None
+        with self._tx("storing a measurement"):
+            self.db.execute(
+                "INSERT INTO measurements(path, size_bytes, mtime_ns, ctime_ns, engine_version, "
+                "options_key, measurement_json, timeline_json, measured_at) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?) "
+                "ON CONFLICT(path, size_bytes, mtime_ns, engine_version, options_key) DO UPDATE "
+                "SET measurement_json=excluded.measurement_json, ctime_ns=excluded.ctime_ns, "
+                "timeline_json=excluded.timeline_json, measured_at=excluded.measured_at, "
+                "attempts=attempts + 1",
+                (
+                    *ident.key(),
+                    ident.ctime_ns,
+                    measurement.engine_version,
+                    options_key,
+                    dumps(readable_data(measurement.to_dict(timeline=False))),
+                    dumps(timeline) if timeline is not None else None,
+                    _now(),
+                ),
+            )
+            self._delete_error(ident, measurement.engine_version, options_key)
+
+    # -- stem sets ----------------------------------------------------------------------
+
+    def get_stem_set(self, set_key: str) -> dict | None:
+        """A stem set's stored values (SetMeasurement.to_dict()), or None."""
+        with self._guard("reading a stored stem set"):
+            row = self.db.execute(
+                "SELECT set_json FROM stem_sets WHERE set_key=?", (readable(set_key),)
+            ).fetchone()
+        return from_json_safe(json.loads(row[0])) if row else None
+
+    def put_stem_set(self, set_key: str, folder: str, data: dict) -> None:
+        """Store (or replace) one stem set's values; ``set_key`` names the files (identity:
+        path, size, modification time), the engine version and the options it came from."""
+        with self._tx("storing a stem set"):
+            self.db.execute(
+                "INSERT INTO stem_sets(set_key, folder, set_json, measured_at) "
+                "VALUES (?, ?, ?, ?) ON CONFLICT(set_key) DO UPDATE SET "
+                "set_json=excluded.set_json, measured_at=excluded.measured_at",
+                (readable(set_key), readable(folder), dumps(readable_data(data)), _now()),
+            )
+
+    def get_error(self, ident: FileIdentity, engine_version: str, options_key: str) -> str | None:
+        """A stored error that is not worth retrying (the same bytes fail the same way)."""
+        with self._guard("reading a stored error"):
+            row = self.db.execute(
+                "SELECT message FROM errors WHERE path=? AND size_bytes=? AND mtime_ns=? AND "
+                "ctime_ns=? AND engine_version=? AND options_key=? AND retry=0",
+                (*ident.key(), ident.ctime_ns, engine_version, options_key),
+            ).fetchone()
+        return row[0] if row else None
+
+    def put_error(
+        self,
+        ident: FileIdentity,
+        engine_version: str,
+        options_key: str,
+        message: str,
+        retry: bool,
+    ) -> None:
+        """Store a per-file error. ``retry``: a timeout or crash, tried again next run."""
+        with self._tx("storing a file's error"):
+            self.db.execute(
+                "INSERT INTO errors(path, size_bytes, mtime_ns, ctime_ns, engine_version, "
+                "options_key, message, retry, failed_at) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?) "
+                "ON CONFLICT(path, size_bytes, mtime_ns, engine_version, options_key) DO UPDATE "
+                "SET message=excluded.message, retry=excluded.retry, ctime_ns=excluded.ctime_ns, "
+                "failed_at=excluded.failed_at, attempts=attempts + 1",
+                (
+                    *ident.key(),
+                    ident.ctime_ns,
+                    engine_version,
+                    options_key,
+                    readable(message),
+                    int(retry),
+                    _now(),
+                ),
+            )
+
+    def _delete_error(self, ident: FileIdentity, engine_version: str, options_key: str) -> None:
+        self.db.execute(
+            "DELETE FROM errors WHERE path=? AND size_bytes=? AND mtime_ns=? AND "
+            "engine_version=? AND options_key=?",
+            (*ident.key(), engine_version, options_key),
+        )
+
+    # -- runs and verdicts -------------------------------------------------------
+
+    def start_run(self, run: RunInfo) -> None:
+        with self._tx("recording the run"):
+            self.db.execute(
+                "INSERT INTO runs(run_id, started_at, finished_at, profile_name, run_json) "
+                "VALUES (?, ?, ?, ?, ?)",
+                (run.run_id, run.started_at, run.finished_at, run.profile_name, _run_json(run)),
+            )
+
+    def finish_run(self, run: RunInfo) -> None:
+        with self._tx("recording the run"):
+            self.db.execute(
+                "UPDATE runs SET finished_at=?, run_json=? WHERE run_id=?",
+                (run.finished_at, _run_json(run), run.run_id),
+            )
+
+    def put_result(self, run_id: str, result: FileResult) -> None:
+        with self._tx("storing a verdict"):
+            self.db.execute(
+                "INSERT INTO verdicts(run_id, path, status, verdict_json, error) "
+                "VALUES (?, ?, ?, ?, ?) ON CONFLICT(run_id, path) DO UPDATE SET "
+                "status=excluded.status, verdict_json=excluded.verdict_json, "
+                "error=excluded.error",
+                (
+                    run_id,
+                    readable(result.path),
+                    result.status,
+                    dumps(readable_data(result.verdict.to_dict())) if result.verdict else None,
+                    readable(result.error) if result.error is not None else None,
+                ),
+            )
+
+    def run_results(self, run_id: str) -> list[tuple[str, str, Verdict | None, str | None]]:
+        rows = self.db.execute(
+            "SELECT path, status, verdict_json, error FROM verdicts WHERE run_id=? ORDER BY path",
+            (run_id,),
+        ).fetchall()
+        return [
+            (p, s, Verdict.from_dict(from_json_safe(json.loads(v))) if v else None, e)
+            for p, s, v, e in rows
+        ]
+
+    def runs(self) -> list[RunInfo]:
+        rows = self.db.execute("SELECT run_json FROM runs ORDER BY started_at, rowid").fetchall()
+        out = []
+        for (text,) in rows:
+            d = from_json_safe(json.loads(text))
+            d["inputs"] = tuple(d.get("inputs", ()))
+            d["profile_limits"] = tuple(d.get("profile_limits", ()))
+            d["not_checked"] = tuple(d.get("not_checked", ()))
+            out.append(RunInfo(**d))
+        return out
+
+    def measurement_attempts(self) -> dict[str, int]:
+        """Resolved path -> how many times it was measured (all identities summed)."""
+        rows = self.db.execute(
+            "SELECT path, SUM(attempts) FROM measurements GROUP BY path"
+        ).fetchall()
+        return {p: int(n) for p, n in rows}
+
+    def counts(self) -> dict[str, int]:
+        return {
+            table: self.db.execute(f"SELECT COUNT(*) FROM {table}").fetchone()[0]
+            for table in ("measurements", "errors", "runs", "verdicts")
+        }
+
+
+def _run_json(run: RunInfo) -> str:
+    return dumps(readable_data(run.to_dict()))
+
+
+_SQLITE_PERM, _SQLITE_BUSY, _SQLITE_LOCKED, _SQLITE_READONLY = 3, 5, 6, 8
+_SQLITE_CORRUPT, _SQLITE_FULL, _SQLITE_NOTADB = 11, 13, 26
+
+
+def _probe_folder(folder: Path) -> OSError | None:
+    """Try to create (and remove) a file in ``folder``: the OSError that stops it, or None."""
+    try:
+        fd, name = tempfile.mkstemp(prefix=".deliverycheck-probe-", dir=folder)
+    except OSError as exc:
+        return exc
+    os.close(fd)
+    with contextlib.suppress(OSError):  # created but not removable: leave it
+        os.unlink(name)
+    try:
+        st = os.statvfs(folder)
+    except (OSError, AttributeError):  # pragma: no cover - not POSIX
+        return None
+    if st.f_bavail == 0:
+        return OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+    return None
+
+
+def open_store(out_dir: str | Path) -> Store:
+    return Store(Path(out_dir) / STORE_NAME)
