@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-test
 
-.PHONY: demo test bench lint format clean
+.PHONY: demo test check bench lint format clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -21,6 +21,12 @@ test: $(STAMP)
 	$(BIN)/ruff check .
 	$(BIN)/ruff format --check .
 	$(BIN)/python -m pytest -q
+
+# Daily work: lint plus the unit, conformance and hardening tiers (no end-to-end runs, no browser).
+check: $(STAMP)
+	$(BIN)/ruff check .
+	$(BIN)/ruff format --check .
+	$(BIN)/python -m pytest -q tests/unit tests/conformance tests/hardening
 
 bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/run_bench.py

@@ -438,7 +438,7 @@ def named_file(d: Path, key: str) -> Path:
 
 
 # --- Intake: what a batch finds in a delivery folder -------------------------------------------
-# Each maker writes one file into a folder and returns its path. tests/test_intake.py holds the
+# Each maker writes one file into a folder and returns its path. tests/e2e/test_intake.py holds the
 # expected outcome of each (measured / error row / not checked) and the batch that mixes them.
 
 #: ISO base media (MP4/M4A) starts with a box: uint32 size, "ftyp", major brand (ISO/IEC 14496-12).

@@ -13,7 +13,7 @@ arithmetic. Phase ``p`` (0 <= p < L) estimates the signal at ``m + p / L``
 Each phase (and each fractional offset, :func:`fractional_taps`) is scaled to
 unit gain at DC. Default T = 64, beta = 4.5 (numbers measured here, 4x and 2x
 alike, because the filter spans T input samples at either factor; see
-tests/test_truepeak_transients.py): largest complex gain error of any phase
+tests/conformance/test_truepeak_transients.py): largest complex gain error of any phase
 or fine offset 0.0040 up to 0.45 fs, 0.0049 up to 0.47 fs and 0.032 at
 0.48 fs (gain -0.29 dB there); sum of |taps| per phase at 4x = 1, 2.44, 3.02,
 2.44. Chosen over T = 32, beta 5 (the previous default: flat only to 0.45 fs,

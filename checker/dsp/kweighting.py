@@ -13,7 +13,7 @@ corner frequency (``K = tan(pi f0 / fs)``):
 These are the full-precision values of the fit (the rounded forms quoted in
 docs/standards.md: ~1681.97 Hz, ~3.99984 dB, Q ~0.7072; ~38.135
 Hz, Q ~0.5003). At 48 kHz the design reproduces Tables 1 and 2 to about
-1e-15 (tested to 1e-8 in tests/test_loudness_conformance.py).
+1e-15 (tested to 1e-8 in tests/conformance/test_loudness_conformance.py).
 
 Drift at other rates (measured with scipy.signal.sosfreqz, gain of the design
 at fs minus the gain of the 48 kHz table filter, in dB):

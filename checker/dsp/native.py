@@ -6,7 +6,7 @@ functions are plain C, loaded here with ctypes, which releases the GIL during ea
 Meters ask
 :func:`enabled` once, when built, and use their numpy code when it says False: when the
 library is missing or from another build (``dc_abi_version``), or when the environment
-sets ``DELIVERYCHECK_KERNELS=numpy``. The two paths agree to rounding (tests/test_native.py).
+sets ``DELIVERYCHECK_KERNELS=numpy``. The two paths agree to rounding (tests/unit/test_native.py).
 
 Why compiled code at all: measured with ``make bench``, the numpy/scipy version spent
 about 4.7x the decoding time on an hour of stereo (target 3x); the K-weighting recursion

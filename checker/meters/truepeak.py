@@ -15,7 +15,7 @@ Method
   per input sample over +-1 grid step, and the largest of those is refined once
   more by the sinusoid fit (at most +0.01 dB at that spacing). The reading is
   the filter's own band-limited reconstruction, not a model of it.
-- Accuracy (measured; tests/test_truepeak.py, tests/test_truepeak_transients.py;
+- Accuracy (measured; tests/conformance/test_truepeak.py, tests/conformance/test_truepeak_transients.py;
   the README's accuracy table): sines of amplitude A, 0.01-0.45 fs, 12 phases,
   44.1 / 48 / 96 kHz, away from file edges: 0.002 dB below to 0.032 dB above
   20 log10(A) (tests assert 0.02 / 0.05). Gaussian-envelope bursts (1.5 and 3

@@ -178,7 +178,7 @@ def test_readme_encode_example_validates(tmp_path):
     import re
     from pathlib import Path
 
-    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text()
     block = next(b for b in re.findall(r"```toml\n(.*?)```", readme, re.S) if "[encode]" in b)
     path = tmp_path / "podcast-mp3-check.toml"
     path.write_text(block)

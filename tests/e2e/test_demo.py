@@ -15,7 +15,7 @@ import pytest
 
 from checker.cli.main import main
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 GENERATOR = ROOT / "demo" / "generate.py"
 PROMISES = ROOT / "demo" / "README.md"
 

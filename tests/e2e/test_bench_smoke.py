@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pytest
 
-BENCH = Path(__file__).parent / "benchmarks" / "run_bench.py"
+BENCH = Path(__file__).resolve().parents[1] / "benchmarks" / "run_bench.py"
 
 
 @pytest.mark.slow

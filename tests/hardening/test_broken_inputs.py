@@ -424,7 +424,7 @@ def test_cli_runs_the_whole_corpus_exit_3_and_strict_json(tmp_path):
     assert len(lines) == len(paths)
     rows = {row["path"]: row for row in map(strict_json, lines)}
     assert list(rows) == paths
-    # tests/test_containers.py: a cut CAF and a cut FLAC are refused naming the cut.
+    # tests/unit/test_containers.py: a cut CAF and a cut FLAC are refused naming the cut.
     refused = set(REFUSED) | {"mp3_garbage_middle", "caf_cut", "flac_cut"}
     if os.geteuid() != 0:
         refused.add("unreadable")

@@ -9,7 +9,7 @@ from pathlib import Path
 from checker.cli.main import main
 from checker.profile.load import validate_profile_file
 
-README = Path(__file__).resolve().parents[1] / "README.md"
+README = Path(__file__).resolve().parents[2] / "README.md"
 
 
 def test_readme_profile_example_validates(tmp_path):

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-PACKAGE = Path(__file__).resolve().parent.parent / "checker"
+PACKAGE = Path(__file__).resolve().parents[2] / "checker"
 
 #: Stage -> rank. A module may import its own stage and stages of lower rank only.
 RANKS = {

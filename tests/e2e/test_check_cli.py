@@ -30,7 +30,7 @@ from checker.model.errors import EXIT_FAILED, EXIT_OK, EXIT_UNCHECKED, EXIT_USAG
 from checker.run.progress import Progress
 from checker.run.store import open_store
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 PROFILE_TEMPLATE = """\
 name = "{name}"
