@@ -9,6 +9,7 @@ from typing import Any
 
 import numpy as np
 
+from checker.analysis.span import apply_span
 from checker.dsp.threads import one_thread_pools
 from checker.io.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range, read_blocks
 from checker.io.carriers import add_player_loudness, read_carriers
@@ -342,6 +343,8 @@ def _measure(
         findings.extend(getattr(result, "findings", ()) or ())
         if hasattr(meter, "series"):
             series.update(meter.series())
+    bext_ref = header.bext_time_reference_frames if header else None
+    findings.extend(apply_span(values, meters, options, bext_ref))
     add_player_loudness(values)
     add_shifts(values)
     findings.extend(values["metadata_findings"])

@@ -19,6 +19,8 @@ Facts used (see docs/standards.md):
   LoudnessRange, MaxTruePeakLevel, MaxMomentaryLoudness, MaxShortTermLoudness at
   412, 414, 416, 418, 420, each int16 holding 100 x the value; 0x7FFF = not set;
   version 1 files hold zeros there and carry no loudness.
+- ``bext`` TimeReference (all versions): a 64-bit count of samples since midnight at
+  body offset 338 (low DWORD, then high DWORD at 342), just before Version.
 - ``fmt `` of WAVE_FORMAT_EXTENSIBLE (tag 0xFFFE, cbSize >= 22): valid bits at 18,
   channel mask (DWORD) at 20, sub-format GUID at 24 (its first WORD is the tag).
 - RF64 / BW64: the RIFF size and the ``data`` size are 0xFFFFFFFF and the real
@@ -59,6 +61,7 @@ WAV_KEYS: tuple[str, ...] = (
     "wav_format_tag",
     "channel_mask",
     "bext_version",
+    "bext_time_reference_frames",
     *(key for key, _ in BEXT_LOUDNESS_OFFSETS),
     "header_findings",
 )
@@ -86,6 +89,8 @@ class WavHeader:
     channel_mask: int | None = None
     subformat_tag: int | None = None
     bext_version: int | None = None
+    #: bext TimeReference: frames (samples per channel) since midnight of the first frame.
+    bext_time_reference_frames: int | None = None
     declared: dict[str, float | None] = field(default_factory=dict)
     ds64: dict[str, int] | None = None
     chunks: tuple[ChunkInfo, ...] = ()
@@ -97,6 +102,7 @@ class WavHeader:
             "wav_format_tag": self.format_tag,
             "channel_mask": self.channel_mask,
             "bext_version": self.bext_version,
+            "bext_time_reference_frames": self.bext_time_reference_frames,
         }
         for key, _ in BEXT_LOUDNESS_OFFSETS:
             out[key] = self.declared.get(key)
@@ -211,6 +217,7 @@ def _read(fh: BinaryIO, file_size: int) -> WavHeader | None:
         channel_mask=state.get("channel_mask"),
         subformat_tag=state.get("subformat_tag"),
         bext_version=state.get("bext_version"),
+        bext_time_reference_frames=state.get("bext_time_reference_frames"),
         declared=dict(state["declared"]),
         ds64=ds64,
         chunks=tuple(chunks),
@@ -333,6 +340,8 @@ def _parse_bext(
     raw = fh.read(min(present, BEXT_READ_BYTES))
     version = struct.unpack_from("<H", raw, BEXT_VERSION_OFFSET)[0]
     state["bext_version"] = version
+    # TimeReferenceLow / High: two DWORDs at 338 and 342 (EBU Tech 3285, all versions).
+    state["bext_time_reference_frames"] = struct.unpack_from("<Q", raw, BEXT_VERSION_OFFSET - 8)[0]
     if version < 2:
         return
     if len(raw) < BEXT_READ_BYTES:

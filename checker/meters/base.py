@@ -62,6 +62,22 @@ class MeasureOptions:
     #: times the rest of the analysis; on for `measure --speech` and profiles with a speech
     #: limit. Off adds no keys, so stored measurements without it stay valid.
     speech: bool = False
+    #: The programme span (checker/analysis/span.py): "auto" (detect a head and tail of
+    #: line-up tone and silence), or None (the whole file, unless in/out points are given).
+    span: str | None = None
+    #: Explicit in and out points: seconds ("12.5") or timecode ("10:00:00:00", relative to
+    #: the WAV bext time reference, at ``timecode_fps``); None: the file's start / end.
+    span_in: str | None = None
+    span_out: str | None = None
+    timecode_fps: float | None = None
+    #: Parts: a break is at least this long below the absolute gate (or digital silence);
+    #: None: no split into parts.
+    break_min_s: float | None = None
+
+    @property
+    def keeps_step_records(self) -> bool:
+        """Meters keep per-100 ms / per-chunk records for a span or parts."""
+        return bool(self.span or self.span_in or self.span_out or self.break_min_s)
 
 
 class MeterResult(Protocol):

@@ -60,6 +60,7 @@ from checker.io.audio import INT32_SCALE, MAX_SAMPLE_MAGNITUDE, Block, StreamInf
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.blockstats import piece_squares, sample_stats, segment_cuts, segment_frames
+from checker.meters.steprecords import StepRecorder
 from checker.model.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
 
 NOISE_BLOCK_SEGMENTS = 4  # 400 ms blocks, 100 ms step
@@ -237,6 +238,8 @@ class LevelsMeter:
         self.part_zeros = 0
         self.part_frames = 0
         self.native = native.enabled()
+        #: Per-100 ms records for a programme span or parts (checker/meters/steprecords.py).
+        self.steps = StepRecorder(self.rate, ch) if options.keeps_step_records else None
 
     # ------------------------------------------------------------------ feed
     def prepare(self, block: Block) -> None:
@@ -296,6 +299,8 @@ class LevelsMeter:
                     self.grid_bits[active] = np.maximum(self.grid_bits[active], bits)
         self._add_pieces(squares, zeros, cuts, n)
         self.frames += n
+        if self.steps is not None:
+            self.steps.feed(xt)
 
     def _count_nonfinite(self, x: np.ndarray, start: int) -> np.ndarray:
         """NaN, Inf and samples beyond MAX_SAMPLE_MAGNITUDE counted, returned as 0."""

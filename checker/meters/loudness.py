@@ -333,15 +333,60 @@ class LoudnessMeter:
             self.step_chunks = [np.concatenate(self.step_chunks)]
         return self.step_chunks[0]
 
-    def window_powers(self, width: int) -> np.ndarray:
-        """Mean power of each complete ``width``-step window, at a 100 ms hop."""
-        steps = self._steps()
+    def window_powers(self, width: int, first: int = 0, stop: int | None = None) -> np.ndarray:
+        """Mean power of each complete ``width``-step window, at a 100 ms hop, of the
+        windows lying within steps [first, stop) (default: the whole file)."""
+        steps = self._steps()[first:stop]
         if steps.size < width:
             return np.zeros(0)
         totals = sliding_window_view(steps, width).sum(axis=1)
-        ends = np.arange(width, steps.size + 1, dtype=np.int64)
+        ends = np.arange(first + width, first + steps.size + 1, dtype=np.int64)
         lengths = _boundaries(ends, self.rate, 10) - _boundaries(ends - width, self.rate, 10)
         return totals / lengths
+
+    def step_count(self) -> int:
+        """Complete 100 ms steps recorded."""
+        return int(self._steps().size)
+
+    def step_powers(self) -> np.ndarray:
+        """Mean weighted power of each complete 100 ms step."""
+        steps = self._steps()
+        ends = np.arange(1, steps.size + 1, dtype=np.int64)
+        return steps / (_boundaries(ends, self.rate, 10) - _boundaries(ends - 1, self.rate, 10))
+
+    def span_values(self, first: int, stop: int) -> dict:
+        """The LoudnessResult keys for the 100 ms steps [first, stop) only (a programme span
+        or a part): gating and LRA as for a whole file; maxima at a 100 ms hop (the whole
+        file's are found at a 1 ms / 10 ms hop), times at the end of their window."""
+        stop = min(stop, self.step_count())
+        first = min(first, stop)
+        integrated, note = integrated_from_blocks(self.window_powers(MOMENTARY_STEPS, first, stop))
+        lra, lra_note = loudness_range_from_short_term(
+            self.window_powers(SHORT_TERM_STEPS, first, stop)
+        )
+        out = {
+            "integrated_lufs": integrated,
+            "integrated_note": note,
+            "integrated_dual_mono_lufs": (
+                integrated + units.DUAL_MONO_OFFSET_LU
+                if self.mono and integrated is not None
+                else None
+            ),
+            "loudness_range_lu": lra,
+            "loudness_range_note": lra_note,
+            "loudness_range_stable": lra is not None and (stop - first) * HOP_S >= LRA_STABLE_MIN_S,
+        }
+        for name, width in (("momentary", MOMENTARY_STEPS), ("short_term", SHORT_TERM_STEPS)):
+            powers = self.window_powers(width, first, stop)
+            level = time_s = None
+            if powers.size:
+                i = int(np.argmax(powers))
+                level = units.power_to_lufs(float(powers[i]))
+                end = first + width + i
+                time_s = None if level == -math.inf else _boundaries(end, self.rate, 10) / self.rate
+            out[f"max_{name}_lufs"] = level
+            out[f"max_{name}_time_s"] = None if time_s is None else float(time_s)
+        return out
 
     def series(self) -> dict[str, tuple[float, np.ndarray]]:
         """Momentary and short-term loudness at a 100 ms hop; value i ends at (i + 1) * 0.1 s."""

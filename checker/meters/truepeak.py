@@ -163,6 +163,11 @@ class _State:
     in_run: np.ndarray  # last grid point of the previous chunk was above the ceiling
     overs: int = 0
     over_index: list[int] = field(default_factory=list)  # grid indices of first run starts
+    #: Span records (options.keeps_step_records), else None: (chunk, channel, exact
+    #: reading, fine index) of every refined chunk-channel, and (first chunk, last chunk,
+    #: running maximum after them) per fed block, which bounds every other chunk-channel.
+    refined: list[tuple[int, int, float, int]] | None = None
+    ranges: list[tuple[int, int, float]] | None = None
 
 
 @dataclass(frozen=True)
@@ -247,6 +252,9 @@ class TruePeakMeter:
             best_inner=np.zeros(self.channels),
             in_run=np.zeros(self.channels, dtype=bool),
         )
+        if options.keeps_step_records:
+            self.state.refined, self.state.ranges = [], []
+        self.final: _State | None = None  # the state after result(), for span_values()
         #: Chunk-channels interpolated / seen (for benchmarks; not part of the result).
         self.computed = 0
         self.seen = 0
@@ -256,6 +264,11 @@ class TruePeakMeter:
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
         chunks = list(self.stream.push(x))  # views of one buffer, valid until the next push
+        self._feed_chunks(chunks)
+        if self.state.ranges is not None and chunks:
+            self.state.ranges.append((chunks[0][0], chunks[-1][0], float(self.state.best.max())))
+
+    def _feed_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
         if chunks and chunks[0][0] == 0:  # the file's start: edge rule, per chunk below
             self._chunk(self.state, 0, chunks[0][1], None)
             chunks = chunks[1:]
@@ -442,6 +455,9 @@ class TruePeakMeter:
             values[chosen] = np.where(better, fine_values, values[chosen])
             fine_pos[chosen] = np.where(better, fine_at, fine_pos[chosen])
         i = int(np.argmax(values))
+        if st.refined is not None:
+            chunk = (base // self.factor + ROW_POSITIONS) // CHUNK_FRAMES
+            st.refined.append((chunk, c, float(values[i]), base * step + int(fine_pos[i])))
         if values[i] > st.best[c]:
             st.best[c] = values[i]
             st.best_index[c] = base * step + int(fine_pos[i])
@@ -473,9 +489,13 @@ class TruePeakMeter:
         st = copy.deepcopy(self.state)
         computed, seen = self.computed, self.seen
         frames = self.stream.frames_in
-        for j, window in self.stream.remaining():
+        rest = list(self.stream.remaining())
+        for j, window in rest:
             self._chunk(st, j, window, frames - 1)
+        if st.ranges is not None and rest:
+            st.ranges.append((rest[0][0], rest[-1][0], float(st.best.max(initial=0.0))))
         self.computed, self.seen = computed, seen
+        self.final = st
         return self._make_result(st, frames)
 
     def _make_result(self, st: _State, frames: int) -> TruePeakResult:
@@ -501,3 +521,50 @@ class TruePeakMeter:
             true_peak_overs=st.overs,
             true_peak_over_times_s=[k / grid_rate for k in st.over_index],
         )
+
+    def span_values(self, first_frame: int, stop_frame: int) -> dict[str, Any]:
+        """True peak of frames [first_frame, stop_frame) from the records (after result()),
+        to chunk resolution: every 4096-frame chunk touching the span counts whole.
+
+        Exact when every chunk-channel of the span that was not refined (skipped, or
+        below the running maximum) is bounded by the span's refined maximum; otherwise a
+        louder head set the running maximum, and the reading can be low by at most the
+        difference, which ``true_peak_note`` states."""
+        st = self.final
+        if st is None or st.refined is None or st.ranges is None:
+            raise RuntimeError("TruePeakMeter.span_values: call result() of a recording meter")
+        j0 = first_frame // CHUNK_FRAMES
+        j1 = max(stop_frame - 1, first_frame) // CHUNK_FRAMES
+        best = np.zeros(self.channels)
+        best_index = np.full(self.channels, -1, dtype=np.int64)
+        done = set()
+        for j, c, value, index in st.refined:
+            if j0 <= j <= j1:
+                done.add((j, c))
+                if value > best[c]:
+                    best[c], best_index[c] = value, index
+        top = float(best.max(initial=0.0))
+        bound = 0.0
+        for a, b, level in st.ranges:
+            if b < j0 or a > j1 or level <= top:
+                continue
+            for j in range(max(a, j0), min(b, j1) + 1):
+                if any((j, c) not in done for c in range(self.channels)):
+                    bound = max(bound, level)
+                    break
+        time_s = None
+        if top > 0.0:
+            index = int(best_index[best == top].min())
+            time_s = index / (FINE_STEPS * self.rate_hz)
+        note = None
+        if bound > top:
+            note = (
+                f"span true peak may read up to {amplitude_to_db(bound) - amplitude_to_db(top):.2f}"
+                " dB low: a louder head or tail set the meter's running maximum"
+            )
+        return {
+            "true_peak_dbtp": amplitude_to_db(top),
+            "true_peak_time_s": time_s,
+            "true_peak_channel_dbtp": [amplitude_to_db(v) for v in best],
+            "true_peak_note": note,
+        }
