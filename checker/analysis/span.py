@@ -113,9 +113,7 @@ def _runs(tone: np.ndarray, level: np.ndarray, ups: np.ndarray, i: int, step: in
     return abs(k - i)
 
 
-def _edge(
-    rec: StepRecords, quiet_amp: float, step: int
-) -> tuple[int, list[tuple[int, int]]]:
+def _edge(rec: StepRecords, quiet_amp: float, step: int) -> tuple[int, list[tuple[int, int]]]:
     """Scan from the start (step = 1) or the end (step = -1): (steps in the head or tail,
     its tone runs as (first, stop) step ranges)."""
     tone, level, ups, peak_all = _tone_steps(rec)
@@ -186,6 +184,8 @@ def resolve_span(
             span.first, span.stop, span.source = head, n - tail, "detected"
             if head_runs:
                 span.values.update(_tone_values(rec, head_runs))
+        if not head_runs:
+            span.values["lineup_tone_note"] = "no line-up tone found in the head"
             if tail_runs:
                 span.values["tail_tone_s"] = (
                     float(sum(rec.frames[x:y].sum() for x, y in tail_runs)) / rate
@@ -281,8 +281,9 @@ def span_note(span: Span, rec: StepRecords) -> str | None:
     )
 
 
-def apply_span(values: dict[str, Any], meters: list, options: MeasureOptions,
-               bext_ref: int | None) -> list[str]:
+def apply_span(
+    values: dict[str, Any], meters: list, options: MeasureOptions, bext_ref: int | None
+) -> list[str]:
     """Replace the loudness and peak values by the span's and add the span and parts keys;
     returns findings. A no-op unless the options ask for a span or parts."""
     if not options.keeps_step_records:
@@ -324,18 +325,20 @@ def part_values(loud, tp, rec: StepRecords, span: Span, break_min_s: float) -> l
         first_frame = int(step_boundary(a, rec.rate_hz))
         stop_frame = int(min(step_boundary(b, rec.rate_hz), rec.frames.sum()))
         peaks = tp.span_values(first_frame, stop_frame)
-        out.append({
-            "part": i,
-            "start_s": step_seconds(rec, a),
-            "end_s": step_seconds(rec, b),
-            "duration_s": step_seconds(rec, b) - step_seconds(rec, a),
-            "integrated_lufs": lv["integrated_lufs"],
-            "integrated_note": lv["integrated_note"],
-            "max_short_term_lufs": lv["max_short_term_lufs"],
-            "true_peak_dbtp": peaks["true_peak_dbtp"],
-            "true_peak_note": peaks["true_peak_note"],
-            "sample_peak_dbfs": span_peaks(rec, a, b)["sample_peak_dbfs"],
-        })
+        out.append(
+            {
+                "part": i,
+                "start_s": step_seconds(rec, a),
+                "end_s": step_seconds(rec, b),
+                "duration_s": step_seconds(rec, b) - step_seconds(rec, a),
+                "integrated_lufs": lv["integrated_lufs"],
+                "integrated_note": lv["integrated_note"],
+                "max_short_term_lufs": lv["max_short_term_lufs"],
+                "true_peak_dbtp": peaks["true_peak_dbtp"],
+                "true_peak_note": peaks["true_peak_note"],
+                "sample_peak_dbfs": span_peaks(rec, a, b)["sample_peak_dbfs"],
+            }
+        )
     return out
 
 

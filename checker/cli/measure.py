@@ -30,6 +30,25 @@ def add_parser(sub) -> argparse.ArgumentParser:
         help="also measure speech-gated loudness (speech_lufs, speech_share; several times slower)",
     )
     p.add_argument("--layout", help='channel layout, e.g. "L R C LFE Ls Rs" (default: from file)')
+    g = p.add_argument_group("programme span and parts (default: the whole file, no parts)")
+    g.add_argument(
+        "--span",
+        choices=("auto", "whole_file"),
+        default="whole_file",
+        help="auto: leave out a head and tail of line-up tone and silence",
+    )
+    g.add_argument(
+        "--in-point",
+        help='programme start: seconds ("12.5") or timecode '
+        '("10:00:00:00", relative to the bext time reference; needs --timecode-fps)',
+    )
+    g.add_argument("--out-point", help="programme end, as --in-point")
+    g.add_argument("--timecode-fps", type=float, help="frame rate of the timecode points")
+    g.add_argument(
+        "--break-min-s",
+        type=float,
+        help="split the programme into parts at breaks this long (below -70 LUFS)",
+    )
     p.add_argument(
         "--block-frames", type=int, default=MeasureOptions.block_frames, help=argparse.SUPPRESS
     )
@@ -68,7 +87,16 @@ SUMMARY_KEYS = (
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
-    options = MeasureOptions(block_frames=args.block_frames, layout=args.layout, speech=args.speech)
+    options = MeasureOptions(
+        block_frames=args.block_frames,
+        layout=args.layout,
+        speech=args.speech,
+        span="auto" if args.span == "auto" else None,
+        span_in=args.in_point,
+        span_out=args.out_point,
+        timecode_fps=args.timecode_fps,
+        break_min_s=args.break_min_s,
+    )
     status = EXIT_OK
     for path in args.files:
         try:

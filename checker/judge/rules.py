@@ -29,6 +29,8 @@ from checker.profile.catalogue import (
     MUST_BE_TRUE,
     NO_CUTOFF_BELOW,
     ONE_OF,
+    PART_MAX,
+    PART_TARGET,
     REQUIRED,
     SET,
     TARGET,
@@ -369,7 +371,45 @@ def _check_cutoff(lim: Limit, values, profile) -> Flag | None:
     return _flag(lim, m, lim.value, msg)
 
 
+def _check_parts(lim: Limit, values, profile) -> Flag | None:
+    """Per-part limits: one flag naming every part off the limit and its time range."""
+    d = lim.definition
+    parts = values.get("parts")
+    if not isinstance(parts, list):
+        return unmeasured(lim, values, "parts")
+    target = profile.value("integrated_target_lufs") if d.kind == PART_TARGET else None
+    if d.kind == PART_TARGET and target is None:
+        msg = (
+            f"{_cap(d.what)} was not checked: the profile sets no integrated target "
+            "(loudness.integrated_target_lufs)."
+        )
+        return _flag(lim, None, lim.value, msg)
+    off, worst = [], None
+    for p in parts:
+        m = p.get(d.part_field)
+        where = f"part {p.get('part')} ({fmt(p.get('start_s'))}-{fmt(p.get('end_s'))} s)"
+        if not _present(m):
+            off.append(f"{where}: not measurable")
+            continue
+        excess = abs(m - target) - lim.value if d.kind == PART_TARGET else m - lim.value
+        if excess > EPS:
+            off.append(f"{where}: {_with_unit(m, 'LUFS' if target is not None else d.unit)}")
+            worst = m if worst is None else worst
+    if not off:
+        return None
+    want = (
+        f"within +- {fmt(lim.value)} LU of {_with_unit(target, 'LUFS')}"
+        if target is not None
+        else f"at most {_with_unit(lim.value, d.unit)}"
+    )
+    msg = f"{_cap(d.what)} must be {want}; off: {'; '.join(off)}: {d.hint}."
+    first = next((p.get("start_s") for p in parts), None)
+    return _flag(lim, worst, lim.text(), msg, first)
+
+
 _CHECKS = {
+    PART_TARGET: _check_parts,
+    PART_MAX: _check_parts,
     MAX: _check_max_min,
     MIN: _check_max_min,
     TARGET: _check_target,

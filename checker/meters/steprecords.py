@@ -122,8 +122,13 @@ class StepRecorder:
         partial = self.frames - int(step_boundary(self.done, self.rate))
         if partial > 0:
             parts.append(
-                (self.p_peak[None], self.p_sq[None], self.p_up[None], np.array([self.p_frame]),
-                 np.array([partial]))  # fmt: skip
+                (
+                    self.p_peak[None],
+                    self.p_sq[None],
+                    self.p_up[None],
+                    np.array([self.p_frame]),
+                    np.array([partial]),
+                )  # fmt: skip
             )
         if not parts:
             empty = np.zeros((0, ch))

@@ -264,9 +264,25 @@ class TruePeakMeter:
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
         chunks = list(self.stream.push(x))  # views of one buffer, valid until the next push
-        self._feed_chunks(chunks)
-        if self.state.ranges is not None and chunks:
-            self.state.ranges.append((chunks[0][0], chunks[-1][0], float(self.state.best.max())))
+        if self.state.ranges is None or not chunks:
+            self._feed_chunks(chunks)
+        else:
+            self._block_local(self.state, chunks, lambda: self._feed_chunks(chunks))
+
+    @staticmethod
+    def _block_local(st: _State, chunks: list, run) -> None:
+        """Span records: process a block's chunks against the block's own running maximum
+        (so a louder head or earlier part does not hide a quieter part's peak), record it
+        as the bound of the block's unrefined chunk-channels, then merge it into the file's
+        maximum (ties keep the earlier position, as without records)."""
+        best, index = st.best.copy(), st.best_index.copy()
+        st.best[:] = 0.0
+        st.best_index[:] = -1
+        run()
+        st.ranges.append((chunks[0][0], chunks[-1][0], float(st.best.max(initial=0.0))))
+        keep = best >= st.best
+        st.best = np.where(keep, best, st.best)
+        st.best_index = np.where(keep, index, st.best_index)
 
     def _feed_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
         if chunks and chunks[0][0] == 0:  # the file's start: edge rule, per chunk below
@@ -490,10 +506,15 @@ class TruePeakMeter:
         computed, seen = self.computed, self.seen
         frames = self.stream.frames_in
         rest = list(self.stream.remaining())
-        for j, window in rest:
-            self._chunk(st, j, window, frames - 1)
-        if st.ranges is not None and rest:
-            st.ranges.append((rest[0][0], rest[-1][0], float(st.best.max(initial=0.0))))
+
+        def run() -> None:
+            for j, window in rest:
+                self._chunk(st, j, window, frames - 1)
+
+        if st.ranges is None or not rest:
+            run()
+        else:
+            self._block_local(st, rest, run)
         self.computed, self.seen = computed, seen
         self.final = st
         return self._make_result(st, frames)

@@ -45,6 +45,10 @@ DECLARED = "declared"
 REQUIRED = "required"
 MUST_BE_TRUE = "must_be_true"
 NO_CUTOFF_BELOW = "no_cutoff_below"
+#: Per part (checker/analysis/span.py ``parts``): every part's integrated loudness within
+#: value LU of the profile's integrated target / every part's ``part_field`` <= value.
+PART_TARGET = "part_target"
+PART_MAX = "part_max"
 
 FILE = "file"
 SET = "set"
@@ -62,6 +66,7 @@ SECTIONS = (
     "stems",
     "encode",
     "speech",
+    "programme",
 )
 
 #: The encode round trip a profile may ask for ([encode] codec, bit_rate_kbps): the
@@ -102,6 +107,7 @@ class LimitDef:
     #: (values, measured, limit) -> words appended to a max/min violation (gain advice)
     advice: Callable[[Mapping[str, Any], float, float], str] | None = None
     ran: str | None = None  # see the module doc
+    part_field: str | None = None  # PART_TARGET / PART_MAX: the key judged in each part
 
 
 def _d(key, kind, measure, unit, what, section, **kw) -> LimitDef:
@@ -300,6 +306,28 @@ CATALOGUE: tuple[LimitDef, ...] = (
        "speech loudness relative to the programme", "speech", none_means_ok=True,
        ran="speech_detector",
        hint="the voice stands far above the rest of the programme: check the balance"),
+    # programme structure (checker/analysis/span.py): line-up tone in the head, head length,
+    # per-part limits (parts exist when [programme] break_min_s is set)
+    _d("lineup_tone_min_dbfs", MIN, "lineup_tone_dbfs", "dBFS", "line-up tone level",
+       "programme", hint="the line-up tone is quieter than this delivery's line-up level"),
+    _d("lineup_tone_max_dbfs", MAX, "lineup_tone_dbfs", "dBFS", "line-up tone level",
+       "programme", hint="the line-up tone is louder than this delivery's line-up level"),
+    _d("lineup_tone_min_hz", MIN, "lineup_tone_hz", "Hz", "line-up tone frequency",
+       "programme", hint="use the line-up tone frequency this delivery asks for"),
+    _d("lineup_tone_max_hz", MAX, "lineup_tone_hz", "Hz", "line-up tone frequency",
+       "programme", hint="use the line-up tone frequency this delivery asks for"),
+    _d("head_min_s", MIN, "programme_start_s", "s", "head length (line-up tone and silence "
+       "before the programme)", "programme", hint="lengthen the head before the programme"),
+    _d("head_max_s", MAX, "programme_start_s", "s", "head length (line-up tone and silence "
+       "before the programme)", "programme", hint="shorten the head before the programme"),
+    _d("part_integrated_tolerance_lu", PART_TARGET, "parts", "LU",
+       "integrated loudness of each part", "programme", part_field="integrated_lufs",
+       hint="bring the part to the target (gain on that part alone)"),
+    _d("part_true_peak_max_dbtp", PART_MAX, "parts", "dBTP", "true peak of each part",
+       "programme", part_field="true_peak_dbtp", hint=_LOWER),
+    _d("part_short_term_max_lufs", PART_MAX, "parts", "LUFS",
+       "maximum short-term loudness of each part", "programme",
+       part_field="max_short_term_lufs", hint="tame the loudest passage of the part"),
     # stem sets (issue 8): judged on the set-level values, not on each stem
     _d("formats_must_match", MUST_BE_TRUE, "set_formats_match", "", "stem formats match",
        "stems", item="bool", scope=SET,

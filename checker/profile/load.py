@@ -43,6 +43,8 @@ from checker.profile.catalogue import (
     MIN,
     NO_CUTOFF_BELOW,
     ONE_OF,
+    PART_MAX,
+    PART_TARGET,
     SETTING_BY_KEY,
     TARGET,
     LimitDef,
@@ -50,6 +52,7 @@ from checker.profile.catalogue import (
 from checker.profile.syntax import (  # noqa: F401  (re-exported for callers)
     MONO_CONVENTIONS,
     OFF,
+    PROGRAMME_SETTINGS,
     SEVERITIES,
     err,
     parse_layer,
@@ -82,6 +85,10 @@ class Limit:
         d, u = self.definition, (" " + self.definition.unit).rstrip()
         if d.kind == TARGET:
             return f"target {_num(self.value)} {d.unit} +- {_num(self.tolerance_lu)} LU"
+        if d.kind == PART_TARGET:
+            return f"each part within +- {_num(self.value)} LU of the integrated target"
+        if d.kind == PART_MAX:
+            return f"each part <= {_num(self.value)}{u}"
         if d.kind in (MAX, MIN):
             op = "<=" if d.kind == MAX else ">="
             warn = f" (warn beyond {_num(self.warn_value)})" if self.warn_value is not None else ""
@@ -115,6 +122,9 @@ class Profile:
     lineage: tuple[str, ...] = field(default_factory=tuple)  # root ancestor first, self last
     #: The encode round trip asked for ([encode] codec, bit_rate_kbps), or None.
     encode: tuple[str, float] | None = None
+    #: [programme] settings (checker/analysis/span.py): span = "auto" | "whole_file",
+    #: in_point, out_point (seconds or timecode), timecode_fps, break_min_s.
+    programme: tuple[tuple[str, Any], ...] = ()
 
     def limit(self, key: str) -> Limit | None:
         for lim in self.limits:
@@ -325,6 +335,9 @@ def _load_path(path: Path) -> Profile:
         channel_layout=settings.get("channel_layout"),
         lineage=lineage,
         encode=_encode_request(path, settings, limits),
+        programme=tuple(
+            (k, settings[k]) for k in PROGRAMME_SETTINGS if settings.get(k) is not None
+        ),
     )
 
 

@@ -42,6 +42,21 @@ SETTINGS = {
     ("loudness", "mono_loudness"): MONO_CONVENTIONS,
     ("encode", "codec"): ENCODE_CODECS,
     ("encode", "bit_rate_kbps"): ENCODE_BIT_RATES,
+    ("programme", "span"): ("whole_file", "auto"),
+}
+#: [programme] settings with free values: key -> (type check, expected words).
+PROGRAMME_SETTINGS = ("span", "in_point", "out_point", "timecode_fps", "break_min_s")
+_FREE_SETTINGS = {
+    "in_point": (
+        lambda v: isinstance(v, str) and v.strip() != "",
+        'seconds or timecode as a string ("12.5", "10:00:00:00")',
+    ),
+    "out_point": (
+        lambda v: isinstance(v, str) and v.strip() != "",
+        'seconds or timecode as a string ("12.5", "10:00:00:00")',
+    ),
+    "timecode_fps": (lambda v: is_number(v) and 1 <= v <= 120, "a frame rate, 1-120"),
+    "break_min_s": (lambda v: is_number(v) and 0.1 <= v <= 3600, "seconds, 0.1-3600"),
 }
 #: The channel order of the delivery's files (a setting, not a limit): "L C R Ls Rs LFE".
 LAYOUT_SETTING = ("format", "channel_layout")
@@ -308,6 +323,11 @@ def parse_layer(path: Path) -> dict[str, Any]:
                     if entry not in SETTINGS[(top, key)]:
                         choices = " or ".join(f'"{c}"' for c in SETTINGS[(top, key)])
                         raise err(where, f"{top}.{key}", entry, choices)
+                    settings[key] = entry
+                elif top == "programme" and key in _FREE_SETTINGS:
+                    ok, words = _FREE_SETTINGS[key]
+                    if not ok(entry):
+                        raise err(where, f"{top}.{key}", entry, words)
                     settings[key] = entry
                 elif key in SETTING_BY_KEY and SETTING_BY_KEY[key].section == top:
                     settings[key] = _check_setting(where, SETTING_BY_KEY[key], entry)

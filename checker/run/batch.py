@@ -126,9 +126,19 @@ def measure_options(profile, layout: str | None = None) -> MeasureOptions:
     speech = needs_speech(profile)
     given = layout or getattr(profile, "channel_layout", None)
     encode = getattr(profile, "encode", None)  # the round trip asked for, or None
+    prog = dict(getattr(profile, "programme", ()) or ())
+    span = {
+        "span": "auto" if prog.get("span") == "auto" else None,
+        "span_in": prog.get("in_point"),
+        "span_out": prog.get("out_point"),
+        "timecode_fps": prog.get("timecode_fps"),
+        "break_min_s": prog.get("break_min_s"),
+    }
     if given:
-        return MeasureOptions(layout=given, layout_strict=False, encode=encode, speech=speech)
-    return MeasureOptions(encode=encode, speech=speech)
+        return MeasureOptions(
+            layout=given, layout_strict=False, encode=encode, speech=speech, **span
+        )
+    return MeasureOptions(encode=encode, speech=speech, **span)
 
 
 def options_key(options: MeasureOptions) -> str:
@@ -139,6 +149,9 @@ def options_key(options: MeasureOptions) -> str:
         d.pop("encode", None)  # no round trip: the key of every earlier measurement
     if not d.get("speech"):
         d.pop("speech", None)  # keys of measurements stored before the speech gate stay valid
+    for key in ("span", "span_in", "span_out", "timecode_fps", "break_min_s"):
+        if d.get(key) is None:
+            d.pop(key, None)  # no span asked for: the key of every earlier measurement
     return json.dumps(d, sort_keys=True)
 
 

@@ -1,0 +1,141 @@
+"""Programme span and parts: block-size invariance, bext timecode points, per-part limits.
+
+Expected values come from the generated signals (their layout in seconds) and from the
+meters' own whole-programme results; pyebur128 comparisons are in
+tests/conformance/test_span.py.
+"""
+
+from __future__ import annotations
+
+import struct
+
+import numpy as np
+import pytest
+import soundfile as sf
+from numpy.testing import assert_allclose
+
+from checker.analysis.onepass import measure
+from checker.analysis.span import point_seconds
+from checker.judge.rules import evaluate
+from checker.meters.base import MeasureOptions
+from checker.profile.load import validate_profile_file
+
+FS = 48000
+
+
+def _signal() -> np.ndarray:
+    rng = np.random.default_rng(5)
+    t = np.arange(2 * FS) / FS
+    tone = 10 ** (-20 / 20) * np.sin(2 * np.pi * 1000 * t)
+    parts = [rng.standard_normal(4 * FS) * g for g in (0.1, 0.02)]
+    x = np.concatenate([tone, np.zeros(FS), parts[0], np.zeros(3 * FS), parts[1]])
+    return np.stack([x, 0.5 * x], axis=1)
+
+
+@pytest.fixture(scope="module")
+def wav(tmp_path_factory):
+    path = tmp_path_factory.mktemp("span") / "prog.wav"
+    sf.write(path, _signal(), FS, subtype="PCM_24")
+    return str(path)
+
+
+KEYS = ("integrated_lufs", "true_peak_dbtp", "sample_peak_dbfs", "max_short_term_lufs",
+        "programme_start_s", "programme_end_s", "lineup_tone_hz", "lineup_tone_dbfs")  # fmt: skip
+
+
+def test_span_and_parts_do_not_depend_on_block_size(wav):
+    opts = {"span": "auto", "break_min_s": 2.0}
+    runs = [
+        measure(wav, MeasureOptions(block_frames=b, **opts)).values
+        for b in (None, 777, 4800, 65536)
+    ]
+    for v in runs[1:]:
+        for key in KEYS:  # house rule: exact for peaks, ~1e-9 for sums
+            assert_allclose(v[key], runs[0][key], rtol=0, atol=1e-9, err_msg=key)
+        assert len(v["parts"]) == len(runs[0]["parts"]) == 2
+        for a, b in zip(v["parts"], runs[0]["parts"], strict=True):
+            for key in ("start_s", "end_s", "integrated_lufs", "true_peak_dbtp"):
+                assert_allclose(a[key], b[key], rtol=0, atol=1e-9, err_msg=key)
+
+
+def test_whole_file_values_unchanged_by_records(wav):
+    plain = measure(wav, MeasureOptions()).values
+    span = measure(wav, MeasureOptions(span="auto")).values
+    # the whole file's values, kept as file_*, equal a measurement without a span
+    assert_allclose(span["file_integrated_lufs"], plain["integrated_lufs"], rtol=0, atol=1e-12)
+    assert_allclose(span["file_true_peak_dbtp"], plain["true_peak_dbtp"], rtol=0, atol=1e-9)
+    assert_allclose(span["file_sample_peak_dbfs"], plain["sample_peak_dbfs"], rtol=0, atol=0)
+    assert "programme_start_s" not in plain  # no span asked for: no new keys
+    assert_allclose(span["programme_start_s"], 3.0, rtol=0, atol=1e-9)  # 2 s tone + 1 s silence
+
+
+def _with_bext(path, time_reference: int) -> None:
+    """Insert a version-1 bext chunk (EBU Tech 3285: TimeReference low/high at 338/342)."""
+    data = path.read_bytes()
+    body = bytearray(602)
+    struct.pack_into("<Q", body, 338, time_reference)
+    struct.pack_into("<H", body, 346, 1)
+    chunk = b"bext" + struct.pack("<I", len(body)) + bytes(body)
+    out = data[:12] + chunk + data[12:]
+    out = out[:4] + struct.pack("<I", len(out) - 8) + out[8:]
+    path.write_bytes(out)
+
+
+def test_timecode_points_relative_to_bext(tmp_path, wav):
+    path = tmp_path / "bwf.wav"
+    sf.write(path, _signal(), FS, subtype="PCM_24")
+    # file starts at 09:59:57:00 at 25 fps: 10:00:00:00 is 3.0 s into the file
+    _with_bext(path, (10 * 3600 - 3) * FS)
+    opts = MeasureOptions(span_in="10:00:00:00", span_out="10:00:04:00", timecode_fps=25)
+    v = measure(str(path), opts).values
+    assert v["bext_time_reference_frames"] == (10 * 3600 - 3) * FS
+    assert_allclose(v["programme_start_s"], 3.0, rtol=0, atol=1e-9)
+    assert_allclose(v["programme_end_s"], 7.0, rtol=0, atol=1e-9)
+    # the same span in seconds gives the same values
+    ref = measure(str(path), MeasureOptions(span_in="3", span_out="7")).values
+    assert_allclose(v["integrated_lufs"], ref["integrated_lufs"], rtol=0, atol=1e-12)
+
+
+def test_timecode_without_bext_is_a_finding(wav):
+    m = measure(wav, MeasureOptions(span_in="10:00:00:00", timecode_fps=25))
+    assert any("bext time reference" in f for f in m.findings)
+    assert m.values["programme_start_s"] == 0.0
+
+
+def test_point_parsing():
+    assert point_seconds("12.5", None, None, FS) == 12.5
+    # 29.97 fps: timecode frames at the nominal 30, each lasting 1001/30000 s
+    assert_allclose(point_seconds("00:00:01:00", 30000 / 1001, 0, FS), 1.001, rtol=0, atol=1e-12)
+    with pytest.raises(ValueError, match="frame rate"):
+        point_seconds("00:00:01:00", None, 0, FS)
+
+
+def test_part_limits_flag_the_part_that_is_off(tmp_path, wav):
+    prof = tmp_path / "parts.toml"
+    prof.write_text(
+        'name = "parts-test"\n'
+        "[loudness]\n"
+        'integrated_target_lufs = { value = -20.0, tolerance_lu = 30.0, severity = "fail", '
+        'source = "test" }\n'
+        "[programme]\n"
+        'span = "auto"\nbreak_min_s = 2.0\n'
+        'part_integrated_tolerance_lu = { value = 1.0, severity = "fail", source = "test" }\n'
+    )
+    profile = validate_profile_file(prof)
+    v = measure(wav, MeasureOptions(span="auto", break_min_s=2.0)).values
+    first = v["parts"][0]["integrated_lufs"]
+    # a target 0.5 LU from part 1: part 2 (14 dB quieter) is off, part 1 is not
+    profile = validate_profile_file(prof)
+    from dataclasses import replace
+
+    from checker.profile.load import Limit
+
+    limits = tuple(
+        Limit(lim.key, first + 0.5, lim.severity, lim.source, lim.tolerance_lu)
+        if lim.key == "integrated_target_lufs" else lim
+        for lim in profile.limits
+    )  # fmt: skip
+    verdict = evaluate(v, replace(profile, limits=limits))
+    flags = [f for f in verdict.flags if f.rule == "part_integrated_tolerance_lu"]
+    assert len(flags) == 1
+    assert "part 2 (" in flags[0].message and "part 1 (" not in flags[0].message
