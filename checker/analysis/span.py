@@ -184,8 +184,6 @@ def resolve_span(
             span.first, span.stop, span.source = head, n - tail, "detected"
             if head_runs:
                 span.values.update(_tone_values(rec, head_runs))
-        if not head_runs:
-            span.values["lineup_tone_note"] = "no line-up tone found in the head"
             if tail_runs:
                 span.values["tail_tone_s"] = (
                     float(sum(rec.frames[x:y].sum() for x, y in tail_runs)) / rate
@@ -195,6 +193,8 @@ def resolve_span(
                 "programme span: the whole file looks like line-up tone and silence; "
                 "measured the whole file"
             )
+        if span.values["lineup_tone_hz"] is None:
+            span.values["lineup_tone_note"] = "no line-up tone found in the head"
     for which, text in (("in", options.span_in), ("out", options.span_out)):
         if not text:
             continue
@@ -264,15 +264,15 @@ def span_note(span: Span, rec: StepRecords) -> str | None:
         what = ""
         if span.values.get("lineup_tone_s"):
             what = (
-                f": {span.values['lineup_tone_s']:.1f} s of "
+                f" ({span.values['lineup_tone_s']:.1f} s of "
                 f"{span.values['lineup_tone_hz']:.0f} Hz line-up tone at "
-                f"{span.values['lineup_tone_dbfs']:.1f} dBFS, and silence"
+                f"{span.values['lineup_tone_dbfs']:.1f} dBFS, and silence)"
             )
         pieces.append(f"head 0.0-{start:.1f} s{what}")
     if span.stop < rec.steps:
         what = ""
         if span.values.get("tail_tone_s"):
-            what = f": {span.values['tail_tone_s']:.1f} s of tone, and silence"
+            what = f" ({span.values['tail_tone_s']:.1f} s of tone, and silence)"
         pieces.append(f"tail {end:.1f}-{total:.1f} s{what}")
     excluded = " and ".join(pieces) if pieces else "nothing"
     return (
@@ -309,6 +309,11 @@ def apply_span(
         values.update(loud.span_values(span.first, span.stop))
         values.update(tp.span_values(first_frame, stop_frame))
         values.update(span_peaks(rec, span.first, span.stop))
+        if "DownmixMeter" in by_name:
+            down = by_name["DownmixMeter"].span_values(
+                span.first, span.stop, first_frame, stop_frame
+            )
+            values.update(down)
     if options.break_min_s:
         values["parts"] = part_values(loud, tp, rec, span, options.break_min_s)
         values["parts_count"] = len(values["parts"])

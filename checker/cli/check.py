@@ -11,6 +11,7 @@ import sys
 from pathlib import Path
 from typing import TextIO
 
+from checker.cli.spanargs import add_span_arguments, with_span_settings
 from checker.cli.summary import WORST_SHOWN, summary_lines
 from checker.io.layout import check_layout_text
 from checker.model.errors import (
@@ -87,6 +88,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
         help='channel order of the files with as many channels, e.g. "L C R Ls Rs LFE" '
         "(overrides the profile's; other files keep their own)",
     )
+    add_span_arguments(p)
     p.add_argument(
         "--worker-memory-mb",
         type=int,
@@ -216,6 +218,7 @@ def run(args, out: TextIO, err: TextIO) -> int:
             f"PATH: {', '.join(missing)} (expected an existing file or folder; nothing checked)"
         )
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    profile = with_span_settings(profile, args)  # --span etc. over the profile's [programme]
     if args.layout is not None:
         check_layout_text(args.layout)
     folders = stem_set_folders(args, profile)

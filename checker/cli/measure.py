@@ -7,6 +7,7 @@ import math
 from typing import TextIO
 
 from checker.analysis.onepass import measure
+from checker.cli.spanargs import add_span_arguments, span_settings
 from checker.meters.base import MeasureOptions
 from checker.model.errors import EXIT_OK, EXIT_UNCHECKED, CheckerError
 from checker.model.names import for_terminal, readable_data
@@ -30,25 +31,7 @@ def add_parser(sub) -> argparse.ArgumentParser:
         help="also measure speech-gated loudness (speech_lufs, speech_share; several times slower)",
     )
     p.add_argument("--layout", help='channel layout, e.g. "L R C LFE Ls Rs" (default: from file)')
-    g = p.add_argument_group("programme span and parts (default: the whole file, no parts)")
-    g.add_argument(
-        "--span",
-        choices=("auto", "whole_file"),
-        default="whole_file",
-        help="auto: leave out a head and tail of line-up tone and silence",
-    )
-    g.add_argument(
-        "--in-point",
-        help='programme start: seconds ("12.5") or timecode '
-        '("10:00:00:00", relative to the bext time reference; needs --timecode-fps)',
-    )
-    g.add_argument("--out-point", help="programme end, as --in-point")
-    g.add_argument("--timecode-fps", type=float, help="frame rate of the timecode points")
-    g.add_argument(
-        "--break-min-s",
-        type=float,
-        help="split the programme into parts at breaks this long (below -70 LUFS)",
-    )
+    add_span_arguments(p)
     p.add_argument(
         "--block-frames", type=int, default=MeasureOptions.block_frames, help=argparse.SUPPRESS
     )
@@ -67,6 +50,15 @@ def _fmt(value) -> str:
     return str(value)
 
 
+def part_line(part: dict) -> str:
+    """One programme part in words (checker/analysis/span.py)."""
+    return (
+        f"part {part['part']}: {_fmt(part['start_s'])}-{_fmt(part['end_s'])} s, integrated "
+        f"{_fmt(part['integrated_lufs'])} LUFS, max short-term {_fmt(part['max_short_term_lufs'])}"
+        f" LUFS, true peak {_fmt(part['true_peak_dbtp'])} dBTP"
+    )
+
+
 SUMMARY_KEYS = (
     "duration_s",
     "sample_rate_hz",
@@ -83,19 +75,28 @@ SUMMARY_KEYS = (
     "speech_share",
     "speech_to_programme_lu",
     "speech_note",
+    "programme_start_s",
+    "programme_end_s",
+    "lineup_tone_hz",
+    "lineup_tone_dbfs",
+    "lineup_tone_s",
+    "file_integrated_lufs",
+    "file_true_peak_dbtp",
+    "parts_count",
 )
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
+    prog = span_settings(args)
     options = MeasureOptions(
         block_frames=args.block_frames,
         layout=args.layout,
         speech=args.speech,
-        span="auto" if args.span == "auto" else None,
-        span_in=args.in_point,
-        span_out=args.out_point,
-        timecode_fps=args.timecode_fps,
-        break_min_s=args.break_min_s,
+        span="auto" if prog.get("span") == "auto" else None,
+        span_in=prog.get("in_point"),
+        span_out=prog.get("out_point"),
+        timecode_fps=prog.get("timecode_fps"),
+        break_min_s=prog.get("break_min_s"),
     )
     status = EXIT_OK
     for path in args.files:
@@ -116,6 +117,8 @@ def run(args, out: TextIO, err: TextIO) -> int:
             for key in SUMMARY_KEYS:
                 if key in m.values and m.values[key] is not None:
                     print(f"  {key:<28} {_fmt(m.values[key])}", file=out)
+            for part in m.values.get("parts") or ():
+                print(f"  {part_line(part)}", file=out)
             for finding in m.findings:
                 print(for_terminal(f"  note: {finding}"), file=out)
     return status

@@ -372,39 +372,41 @@ def _check_cutoff(lim: Limit, values, profile) -> Flag | None:
 
 
 def _check_parts(lim: Limit, values, profile) -> Flag | None:
-    """Per-part limits: one flag naming every part off the limit and its time range."""
+    """Per-part limits: one flag naming every part off the limit and its time range. The
+    part target is the profile's integrated target, else the programme's own integrated
+    loudness (parts consistent with each other)."""
     d = lim.definition
     parts = values.get("parts")
     if not isinstance(parts, list):
         return unmeasured(lim, values, "parts")
-    target = profile.value("integrated_target_lufs") if d.kind == PART_TARGET else None
-    if d.kind == PART_TARGET and target is None:
-        msg = (
-            f"{_cap(d.what)} was not checked: the profile sets no integrated target "
-            "(loudness.integrated_target_lufs)."
-        )
-        return _flag(lim, None, lim.value, msg)
-    off, worst = [], None
+    target, against = None, ""
+    if d.kind == PART_TARGET:
+        target, against = profile.value("integrated_target_lufs"), "the target"
+        if target is None:
+            target, against = values.get("integrated_lufs"), "the programme's integrated loudness"
+        if not _present(target):
+            return unmeasured(lim, values, "integrated_lufs")
+    off, measured, pos = [], None, None
     for p in parts:
         m = p.get(d.part_field)
         where = f"part {p.get('part')} ({fmt(p.get('start_s'))}-{fmt(p.get('end_s'))} s)"
         if not _present(m):
-            off.append(f"{where}: not measurable")
+            off.append(f"{where} not measurable")
+        elif (abs(m - target) if target is not None else m) - lim.value > EPS:
+            off.append(f"{where} {_with_unit(m, 'LUFS' if target is not None else d.unit)}")
+        else:
             continue
-        excess = abs(m - target) - lim.value if d.kind == PART_TARGET else m - lim.value
-        if excess > EPS:
-            off.append(f"{where}: {_with_unit(m, 'LUFS' if target is not None else d.unit)}")
-            worst = m if worst is None else worst
+        if pos is None:
+            measured, pos = m, p.get("start_s")
     if not off:
         return None
     want = (
-        f"within +- {fmt(lim.value)} LU of {_with_unit(target, 'LUFS')}"
+        f"within +- {fmt(lim.value)} LU of {against} ({_with_unit(target, 'LUFS')})"
         if target is not None
         else f"at most {_with_unit(lim.value, d.unit)}"
     )
-    msg = f"{_cap(d.what)} must be {want}; off: {'; '.join(off)}: {d.hint}."
-    first = next((p.get("start_s") for p in parts), None)
-    return _flag(lim, worst, lim.text(), msg, first)
+    msg = f"{_cap(d.what)} must be {want}; off: {', '.join(off)}: {d.hint}."
+    return _flag(lim, measured, lim.text(), msg, pos)
 
 
 _CHECKS = {

@@ -27,6 +27,7 @@ from checker.io.audio import Block, StreamInfo
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.loudness import LoudnessMeter
+from checker.meters.steprecords import StepRecorder, span_peaks
 from checker.meters.truepeak import TruePeakMeter
 from checker.model.units import amplitude_to_db
 
@@ -94,6 +95,8 @@ class DownmixMeter:
         pair = Layout(("L", "R"), "given")
         self.loudness = LoudnessMeter(stereo, pair, options)
         self.truepeak = TruePeakMeter(stereo, pair, options)
+        #: Per-100 ms peaks of the fold-down for a programme span (checker/analysis/span.py).
+        self.steps = StepRecorder(self.rate_hz, 2) if options.keeps_step_records else None
 
     def feed(self, block: Block) -> None:
         if self.matrix is None or block.frames == 0:
@@ -102,6 +105,8 @@ class DownmixMeter:
         sub = Block(folded.T, None, block.start)
         self.loudness.feed(sub)
         self.truepeak.feed(sub)
+        if self.steps is not None:
+            self.steps.feed(folded)
         mags = np.abs(folded).max(axis=0)
         i = int(mags.argmax())
         if mags[i] > self.peak:
@@ -124,3 +129,21 @@ class DownmixMeter:
             downmix_sample_peak_time_s=peak_time,
             downmix_note=loud.integrated_note,
         )
+
+    def span_values(self, first: int, stop: int, first_frame: int, stop_frame: int) -> dict:
+        """The fold-down's keys for 100 ms steps [first, stop) (frames [first_frame,
+        stop_frame)), after result(); {} when the file has no fold-down."""
+        if self.matrix is None or self.steps is None:
+            return {}
+        loud = self.loudness.span_values(first, stop)
+        tp = self.truepeak.span_values(first_frame, stop_frame)
+        peaks = span_peaks(self.steps.records(), first, stop)
+        return {
+            "downmix_integrated_lufs": loud["integrated_lufs"],
+            "downmix_max_short_term_lufs": loud["max_short_term_lufs"],
+            "downmix_true_peak_dbtp": tp["true_peak_dbtp"],
+            "downmix_true_peak_time_s": tp["true_peak_time_s"],
+            "downmix_sample_peak_dbfs": peaks["sample_peak_dbfs"],
+            "downmix_sample_peak_time_s": peaks["sample_peak_time_s"],
+            "downmix_note": loud["integrated_note"],
+        }

@@ -1,4 +1,5 @@
-"""Reports: report.csv, flags.csv, fixes.csv, results.jsonl and a self-contained report.html.
+"""Reports: report.csv, flags.csv, fixes.csv, parts.csv, results.jsonl and a self-contained
+report.html.
 
 The one entry point the batch runner calls is :func:`write_reports`; every file is
 written atomically (temporary file in the same directory, fsync, rename). ``frame`` builds
@@ -23,18 +24,20 @@ from checker.report.fixes import fixes_frame
 from checker.report.frame import flags_frame, not_checked_frame, results_frame, sorted_results
 from checker.report.html import render_html
 from checker.report.jsonl import write_jsonl
+from checker.report.parts import parts_frame
 
 REPORT_FILES = {
     "csv": "report.csv",
     "flags": "flags.csv",
     "fixes": "fixes.csv",
+    "parts": "parts.csv",
     "html": "report.html",
     "jsonl": "results.jsonl",
 }
 
 
 def write_reports(out_dir: Path, run: RunInfo, results: Sequence[FileResult]) -> dict[str, Path]:
-    """Write the five reports into ``out_dir`` (created if missing); returns name -> path."""
+    """Write the six reports into ``out_dir`` (created if missing); returns name -> path."""
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     ordered = sorted_results(results)
@@ -45,6 +48,7 @@ def write_reports(out_dir: Path, run: RunInfo, results: Sequence[FileResult]) ->
     write_csv(frame, paths["csv"])
     write_csv(flags_frame(ordered), paths["flags"])
     write_csv(fixes_frame(ordered), paths["fixes"])
+    write_csv(parts_frame(ordered), paths["parts"])  # programme parts (a header when none)
     write_jsonl(ordered, paths["jsonl"], not_checked=run.not_checked)
     generated_at = datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
     write_text_atomic(paths["html"], render_html(run, ordered, generated_at=generated_at))

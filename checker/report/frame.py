@@ -133,6 +133,21 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "downmix_sample_peak_dbfs",
     "downmix_sample_peak_time_s",
     "downmix_note",
+    # programme span and parts (checker/analysis/span.py; present when asked for)
+    "programme_start_s",
+    "programme_end_s",
+    "programme_span_source",
+    "programme_span_note",
+    "lineup_tone_hz",
+    "lineup_tone_dbfs",
+    "lineup_tone_s",
+    "lineup_tone_note",
+    "tail_tone_s",
+    "file_integrated_lufs",
+    "file_true_peak_dbtp",
+    "file_sample_peak_dbfs",
+    "true_peak_note",
+    "parts_count",
     # stream format
     "container",
     "subtype",
@@ -148,6 +163,7 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     "wav_format_tag",
     "channel_mask",
     "bext_version",
+    "bext_time_reference_frames",
     "declared_integrated_lufs",
     "declared_loudness_range_lu",
     "declared_true_peak_dbtp",
@@ -158,6 +174,9 @@ MEASUREMENT_COLUMNS: tuple[str, ...] = (
     *CARRIER_KEYS,
     *LOSSY_KEYS,
 )
+
+#: Measurement keys with a report file of their own (parts.csv), not a report.csv column.
+OWN_FILE_KEYS: tuple[str, ...] = ("parts",)
 
 FLAG_COLUMNS: tuple[str, ...] = (
     "path",
@@ -247,7 +266,7 @@ def channel_count(results: Sequence[FileResult]) -> int:
 
 
 def file_columns(results: Sequence[FileResult]) -> list[str]:
-    known = set(LEAD_COLUMNS) | set(MEASUREMENT_COLUMNS)
+    known = set(LEAD_COLUMNS) | set(MEASUREMENT_COLUMNS) | set(OWN_FILE_KEYS)
     extra: set[str] = set()
     for r in results:
         if r.measurement is not None:

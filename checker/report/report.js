@@ -361,6 +361,19 @@
       var ul = body.appendChild(el("ul", { "class": "plain" }));
       d.findings.forEach(function (f) { ul.appendChild(el("li", null, f)); });
     }
+    var parts = d.values.parts;
+    if (Array.isArray(parts) && parts.length) {  // programme parts (checker/analysis/span.py)
+      section("Programme parts");
+      var pl = body.appendChild(el("ul", { "class": "plain parts" }));
+      parts.forEach(function (p) {
+        pl.appendChild(el("li", null, "Part " + p.part + ", " + fmt("x_s", p.start_s) + "\u2013" +
+          withUnit(p.end_s, "s") + ": integrated " + withUnit(p.integrated_lufs, "LUFS") +
+          ", max short-term " + withUnit(p.max_short_term_lufs, "LUFS") +
+          ", true peak " + withUnit(p.true_peak_dbtp, "dBTP") +
+          (p.integrated_note ? " (" + p.integrated_note + ")" : "") +
+          (p.true_peak_note ? " (" + p.true_peak_note + ")" : "")));
+      });
+    }
     var keys = Object.keys(d.values);
     if (keys.length) {
       var all = body.appendChild(el("details", { "class": "all" }));

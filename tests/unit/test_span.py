@@ -139,3 +139,62 @@ def test_part_limits_flag_the_part_that_is_off(tmp_path, wav):
     flags = [f for f in verdict.flags if f.rule == "part_integrated_tolerance_lu"]
     assert len(flags) == 1
     assert "part 2 (" in flags[0].message and "part 1 (" not in flags[0].message
+
+
+def test_profile_programme_section_becomes_measure_options(tmp_path):
+    from checker.run.batch import measure_options, options_key
+
+    prof = tmp_path / "prog.toml"
+    prof.write_text(
+        'name = "prog-test"\n[programme]\nspan = "auto"\nbreak_min_s = 2.5\n'
+        'in_point = "10:00:00:00"\ntimecode_fps = 25\n'
+    )
+    opts = measure_options(validate_profile_file(prof))
+    assert (opts.span, opts.break_min_s, opts.span_in, opts.timecode_fps) == (
+        "auto",
+        2.5,
+        "10:00:00:00",
+        25,
+    )
+    # a span changes values, so it is in the cache key; no span keeps the earlier key
+    assert options_key(opts) != options_key(MeasureOptions())
+    assert "span" not in options_key(MeasureOptions())
+
+
+def test_profile_programme_section_is_validated(tmp_path):
+    from checker.model.errors import ProfileError
+
+    prof = tmp_path / "bad.toml"
+    prof.write_text('name = "bad"\n[programme]\nspan = "maybe"\n')
+    with pytest.raises(ProfileError, match="programme.span"):
+        validate_profile_file(prof)
+    prof.write_text('name = "bad"\n[programme]\nbreak_min_s = 0\n')
+    with pytest.raises(ProfileError, match="programme.break_min_s"):
+        validate_profile_file(prof)
+
+
+def test_findings_name_the_excluded_head_and_tail(wav, tmp_path):
+    m = measure(wav, MeasureOptions(span="auto"))
+    notes = [f for f in m.findings if f.startswith("programme span")]
+    assert len(notes) == 1
+    assert "head 0.0-3.0 s (2.0 s of 1000 Hz line-up tone at -20.0 dBFS" in notes[0]
+    assert m.values["programme_span_note"] == notes[0]
+    # only tone and silence: nothing is left out, and the finding says why
+    t = np.arange(3 * FS) / FS
+    only = np.concatenate([0.1 * np.sin(2 * np.pi * 1000 * t), np.zeros(FS)])
+    path = tmp_path / "tone.wav"
+    sf.write(path, only, FS, subtype="PCM_24")
+    m = measure(str(path), MeasureOptions(span="auto"))
+    assert any("whole file looks like line-up tone" in f for f in m.findings)
+    assert m.values["programme_start_s"] == 0.0
+
+
+def test_no_tone_leaves_leading_silence_out_and_says_no_tone(tmp_path):
+    rng = np.random.default_rng(3)
+    x = np.concatenate([np.zeros(FS), 0.1 * rng.standard_normal(4 * FS)])
+    path = tmp_path / "silence_head.wav"
+    sf.write(path, x, FS, subtype="PCM_24")
+    v = measure(str(path), MeasureOptions(span="auto")).values
+    assert v["lineup_tone_hz"] is None
+    assert v["lineup_tone_note"] == "no line-up tone found in the head"
+    assert_allclose(v["programme_start_s"], 1.0, rtol=0, atol=1e-9)  # generated: 1 s silence

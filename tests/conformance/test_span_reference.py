@@ -116,3 +116,26 @@ def test_parts_each_match_pyebur128(tmp_path):
         assert_allclose(part["true_peak_dbtp"], ref_tp, rtol=0, atol=0.2)  # as above
         assert_allclose(part["start_s"], start, rtol=0, atol=1e-9)  # generated layout
         assert_allclose(part["end_s"], start + 6.0, rtol=0, atol=1e-9)
+
+
+def test_downmix_values_describe_the_span(tmp_path):
+    """A 5.1 file with line-up tone on every channel: the fold-down's integrated loudness
+    is pyebur128's on the BS.775 fold-down of the programme alone (fold-down written out
+    here: Lo = L + 0.7071 C + 0.7071 Ls, Ro likewise; BS.775, from memory)."""
+    prog = np.concatenate(
+        [noise(8.0, -26.0, 21), noise(8.0, -26.0, 22), noise(8.0, -30.0, 23)], axis=1
+    )  # fmt: skip  (L R, C LFE, Ls Rs)
+    prog[:, 3] = 0.0  # LFE
+    head = np.concatenate([tone(2.0, 1000.0, -20.0)] * 3, axis=1)
+    head[:, 3] = 0.0
+    x = np.concatenate([head, np.zeros((FS, 6)), prog])
+    path = tmp_path / "five1.wav"
+    sf.write(path, x, FS, subtype="FLOAT")
+    v = measure(str(path), MeasureOptions(span="auto")).values
+    c = 0.7071
+    fold = np.stack([prog[:, 0] + c * prog[:, 2] + c * prog[:, 4],
+                     prog[:, 1] + c * prog[:, 2] + c * prog[:, 5]], axis=1)  # fmt: skip
+    ref_i, ref_tp = ebur128(fold)
+    assert_allclose(v["programme_start_s"], 3.0, rtol=0, atol=1e-9)  # generated layout
+    assert_allclose(v["downmix_integrated_lufs"], ref_i, rtol=0, atol=0.05)  # pyebur128
+    assert_allclose(v["downmix_true_peak_dbtp"], ref_tp, rtol=0, atol=0.2)  # as above
