@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 import csv
+import json
 
 from checker.model.measurement import Measurement
 from checker.model.results import FileResult, RunInfo
+from checker.model.serial import dumps, from_json_safe
 from checker.model.verdict import Verdict
 from checker.report import write_reports
 
@@ -46,3 +48,6 @@ def test_parts_csv_rows_and_round_trip(tmp_path):
     # the nested list survives the Measurement round trip (JSONL, store)
     m = results[0].measurement
     assert Measurement.from_dict(m.to_dict()).values["parts"] == PARTS
+    # ... and the JSON text the store and results.jsonl hold (-inf written as a string)
+    stored = from_json_safe(json.loads(dumps(m.to_dict())))
+    assert Measurement.from_dict(stored).values["parts"] == PARTS
