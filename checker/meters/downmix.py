@@ -96,7 +96,9 @@ class DownmixMeter:
         self.loudness = LoudnessMeter(stereo, pair, options)
         self.truepeak = TruePeakMeter(stereo, pair, options)
         #: Per-100 ms peaks of the fold-down for a programme span (checker/analysis/span.py).
-        self.steps = StepRecorder(self.rate_hz, 2) if options.keeps_step_records else None
+        self.steps = (
+            StepRecorder(self.rate_hz, 2, tone=False) if options.keeps_step_records else None
+        )
 
     def feed(self, block: Block) -> None:
         if self.matrix is None or block.frames == 0:

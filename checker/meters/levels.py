@@ -239,7 +239,11 @@ class LevelsMeter:
         self.part_frames = 0
         self.native = native.enabled()
         #: Per-100 ms records for a programme span or parts (checker/meters/steprecords.py).
-        self.steps = StepRecorder(self.rate, ch) if options.keeps_step_records else None
+        self.steps = (
+            StepRecorder(self.rate, ch, tone=options.span == "auto")
+            if options.keeps_step_records
+            else None
+        )
 
     # ------------------------------------------------------------------ feed
     def prepare(self, block: Block) -> None:

@@ -44,8 +44,10 @@ def step_boundary(j: int | np.ndarray, rate_hz: int):
 
 
 class StepRecorder:
-    def __init__(self, rate_hz: int, channels: int) -> None:
+    def __init__(self, rate_hz: int, channels: int, *, tone: bool = True) -> None:
         self.rate = int(rate_hz)
+        #: False: peaks only (sums of squares and crossings stay 0; no tone detection asked).
+        self.tone = tone
         self.channels = channels
         self.frames = 0  # frames fed
         self.done = 0  # complete steps
@@ -66,33 +68,35 @@ class StepRecorder:
         if n == 0:
             return
         start = self.frames
-        sign = xt >= 0.0
-        prev = sign[:, :1] if self.last_sign is None else self.last_sign[:, None]
-        up = sign & ~np.concatenate((prev, sign[:, :-1]), axis=1)
-        self.last_sign = sign[:, -1].copy()
         end = start + n
         last = ((end + 1) * 10 - 1) // self.rate  # steps whose end boundary is <= end
         cuts = [int(step_boundary(k, self.rate)) - start for k in range(self.done + 1, last + 1)]
-        rows: list[tuple[np.ndarray, ...]] = []
-        lo = 0
         ends = [(c, True) for c in cuts]
         if not cuts or cuts[-1] < n:
             ends.append((n, False))
-        for hi, closes in ends:
-            if hi > lo:
-                seg = xt[:, lo:hi]
-                a = np.abs(seg)
-                pk = a.max(axis=1)
-                self.p_sq = self.p_sq + np.einsum("ij,ij->i", seg, seg)
-                self.p_up = self.p_up + up[:, lo:hi].sum(axis=1)
-                c = int(np.argmax(pk))
-                if pk[c] > self.p_top:
-                    self.p_top = float(pk[c])
-                    self.p_frame = start + lo + int(np.argmax(a[c]))
-                self.p_peak = np.maximum(self.p_peak, pk)
+        starts = [0] + [c for c, _ in ends[:-1]]  # every piece is non-empty (cuts rise)
+        a = np.abs(xt)
+        peaks = np.maximum.reduceat(a, starts, axis=1)  # (channels, pieces)
+        if self.tone:  # sums of squares and upward zero crossings, for tone detection
+            sign = xt >= 0.0
+            prev = sign[:, :1] if self.last_sign is None else self.last_sign[:, None]
+            up = sign & ~np.concatenate((prev, sign[:, :-1]), axis=1)
+            self.last_sign = sign[:, -1].copy()
+            squares = np.add.reduceat(np.square(xt), starts, axis=1)
+            ups = np.add.reduceat(up, starts, axis=1, dtype=np.int64)
+        rows: list[tuple[np.ndarray, ...]] = []
+        for i, ((hi, closes), lo) in enumerate(zip(ends, starts, strict=True)):
+            pk = peaks[:, i]
+            c = int(np.argmax(pk))
+            if pk[c] > self.p_top:
+                self.p_top = float(pk[c])
+                self.p_frame = start + lo + int(np.argmax(a[c, lo:hi]))
+            self.p_peak = np.maximum(self.p_peak, pk)
+            if self.tone:
+                self.p_sq = self.p_sq + squares[:, i]
+                self.p_up = self.p_up + ups[:, i]
             if closes:
                 rows.append(self._close())
-            lo = hi
         self.frames = end
         if rows:
             self.kept.append(tuple(np.array(col) for col in zip(*rows, strict=True)))

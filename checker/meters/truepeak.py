@@ -129,6 +129,10 @@ BOUND_MARGIN = 1e-4
 FINE_STEPS = 32
 #: Candidate maxima per chunk and channel evaluated finely (best sinusoid-fit estimates).
 FINE_CANDIDATES = 4
+#: Span records: a chunk whose samples all stay at or below this is quiet; a change between
+#: quiet and louder chunks restarts the running maximum the records are bounded by (project
+#: choice: above the -60 dBFS silence threshold, far below any programme peak).
+RESET_DBFS = -50.0
 
 
 @dataclass(frozen=True)
@@ -168,6 +172,9 @@ class _State:
     #: running maximum after them) per fed block, which bounds every other chunk-channel.
     refined: list[tuple[int, int, float, int]] | None = None
     ranges: list[tuple[int, int, float]] | None = None
+    local: np.ndarray | None = None  # per channel: the running maximum of the current run
+    local_index: np.ndarray | None = None
+    last_quiet: bool | None = None  # was the last chunk quiet (None: no chunk yet)
 
 
 @dataclass(frozen=True)
@@ -254,6 +261,9 @@ class TruePeakMeter:
         )
         if options.keeps_step_records:
             self.state.refined, self.state.ranges = [], []
+            self.state.local = np.zeros(self.channels)
+            self.state.local_index = np.full(self.channels, -1, dtype=np.int64)
+        self.reset_amp = db_to_amplitude(RESET_DBFS)
         self.final: _State | None = None  # the state after result(), for span_values()
         #: Chunk-channels interpolated / seen (for benchmarks; not part of the result).
         self.computed = 0
@@ -267,22 +277,39 @@ class TruePeakMeter:
         if self.state.ranges is None or not chunks:
             self._feed_chunks(chunks)
         else:
-            self._block_local(self.state, chunks, lambda: self._feed_chunks(chunks))
+            self._by_level(self.state, chunks, self._feed_chunks)
 
-    @staticmethod
-    def _block_local(st: _State, chunks: list, run) -> None:
-        """Span records: process a block's chunks against the block's own running maximum
-        (so a louder head or earlier part does not hide a quieter part's peak), record it
-        as the bound of the block's unrefined chunk-channels, then merge it into the file's
-        maximum (ties keep the earlier position, as without records)."""
-        best, index = st.best.copy(), st.best_index.copy()
-        st.best[:] = 0.0
-        st.best_index[:] = -1
-        run()
-        st.ranges.append((chunks[0][0], chunks[-1][0], float(st.best.max(initial=0.0))))
-        keep = best >= st.best
-        st.best = np.where(keep, best, st.best)
-        st.best_index = np.where(keep, index, st.best_index)
+    def _by_level(self, st: _State, chunks: list, run) -> None:
+        """Span records: runs of quiet chunks (every sample at or below RESET_DBFS) and runs
+        of louder ones are processed against a running maximum of their own, started
+        afresh at each change (so a louder head or earlier part, which a quiet gap
+        separates, cannot hide a quieter part's peak). Each run's own maximum is recorded
+        as the bound of its unrefined chunk-channels, then merged into the file's maximum
+        (ties keep the earlier position, as without records)."""
+        lead = self.stream.lead
+        quiet = [
+            float(np.abs(w[:, lead : lead + CHUNK_FRAMES]).max(initial=0.0)) <= self.reset_amp
+            for _, w in chunks
+        ]
+        i = 0
+        while i < len(chunks):
+            k = i
+            while k < len(chunks) and quiet[k] == quiet[i]:
+                k += 1
+            group = chunks[i:k]
+            if st.last_quiet is not None and st.last_quiet != quiet[i]:
+                st.local = np.zeros(self.channels)
+                st.local_index = np.full(self.channels, -1, dtype=np.int64)
+            st.last_quiet = quiet[i]
+            best, index = st.best, st.best_index
+            st.best, st.best_index = st.local.copy(), st.local_index.copy()
+            run(group)
+            st.local, st.local_index = st.best.copy(), st.best_index.copy()
+            st.ranges.append((group[0][0], group[-1][0], float(st.local.max(initial=0.0))))
+            keep = best >= st.best
+            st.best = np.where(keep, best, st.best)
+            st.best_index = np.where(keep, index, st.best_index)
+            i = k
 
     def _feed_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
         if chunks and chunks[0][0] == 0:  # the file's start: edge rule, per chunk below
@@ -507,14 +534,14 @@ class TruePeakMeter:
         frames = self.stream.frames_in
         rest = list(self.stream.remaining())
 
-        def run() -> None:
-            for j, window in rest:
+        def run(group: list) -> None:
+            for j, window in group:
                 self._chunk(st, j, window, frames - 1)
 
         if st.ranges is None or not rest:
-            run()
+            run(rest)
         else:
-            self._block_local(st, rest, run)
+            self._by_level(st, rest, run)
         self.computed, self.seen = computed, seen
         self.final = st
         return self._make_result(st, frames)

@@ -198,3 +198,26 @@ def test_no_tone_leaves_leading_silence_out_and_says_no_tone(tmp_path):
     assert v["lineup_tone_hz"] is None
     assert v["lineup_tone_note"] == "no line-up tone found in the head"
     assert_allclose(v["programme_start_s"], 1.0, rtol=0, atol=1e-9)  # generated: 1 s silence
+
+
+@pytest.mark.parametrize("tone", [True, False])
+def test_step_records_do_not_depend_on_the_split(tone):
+    from checker.meters.steprecords import StepRecorder
+
+    rng = np.random.default_rng(9)
+    x = rng.standard_normal((2, 44100 + 1234))  # 44.1 kHz: steps of 4410 frames
+    whole = StepRecorder(44100, 2, tone=tone)
+    whole.feed(x)
+    split = StepRecorder(44100, 2, tone=tone)
+    cuts = np.sort(rng.choice(np.arange(1, x.shape[1]), 40, replace=False))
+    for piece in np.split(x, cuts, axis=1):
+        split.feed(np.ascontiguousarray(piece))
+    a, b = whole.records(), split.records()
+    assert a.steps == b.steps == 11  # 10 full steps and the 1234-frame rest
+    assert np.array_equal(a.peak, b.peak) and np.array_equal(a.peak_frame, b.peak_frame)
+    assert np.array_equal(a.crossings, b.crossings) and np.array_equal(a.frames, b.frames)
+    assert_allclose(a.sumsq, b.sumsq, rtol=1e-12, atol=0)  # sums: rounding only
+    # the records are the samples' own: step 3's peak and its frame (numpy on the slice)
+    seg = np.abs(x[:, 3 * 4410 : 4 * 4410])
+    assert a.peak[3].tolist() == seg.max(axis=1).tolist()
+    assert a.peak_frame[3] == 3 * 4410 + int(np.argmax(seg.max(axis=0)))
