@@ -144,10 +144,15 @@ class _SlidingMax:
     per window (sliding_window_view), so the result is the same for any split.
     """
 
-    def __init__(self, window: int, rate: int, per_second: int) -> None:
+    def __init__(self, window: int, rate: int, per_second: int, per_step: int = 0) -> None:
         self.window = window
         self.rate = rate
         self.per_second = per_second
+        #: Span records (per_step > 0: sub-steps per 100 ms step): per step, the largest
+        #: window mean ending in it (running-sum estimate, within 1e-12 of the exact sum)
+        #: and that window's end frame, as (steps, powers, end frames) pieces.
+        self.per_step = per_step
+        self.step_records: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
         self.ring = np.zeros(0)
         self.count = 0  # sub-steps completed so far
         self.max_power = -1.0  # no complete window yet
@@ -175,6 +180,8 @@ class _SlidingMax:
             estimate[1:] -= run[: -self.window]
             estimate /= lengths
             slack = (4 * buf.size + 64) * EPS * float(run[-1]) / float(lengths.min())
+            if self.per_step:
+                self._record(ends, estimate)
             top = float(estimate.max())
             if top + slack > self.max_power:
                 cand = np.flatnonzero(estimate >= top - 2.0 * slack)
@@ -186,6 +193,32 @@ class _SlidingMax:
                     end = ends[cand[i]]
                     self.max_end_frame = int(_boundaries(end, self.rate, self.per_second))
         self.ring = buf[-(self.window - 1) :].copy()
+
+    def _record(self, ends: np.ndarray, estimate: np.ndarray) -> None:
+        step = (ends - 1) // self.per_step  # window ending at sub-step e: e in (k p, (k+1) p]
+        starts = np.concatenate(([0], np.flatnonzero(np.diff(step)) + 1))
+        top = np.maximum.reduceat(estimate, starts)
+        counts = np.diff(np.append(starts, estimate.size))
+        first = np.flatnonzero(estimate == np.repeat(top, counts))
+        at = first[np.unique(step[first], return_index=True)[1]]
+        frames = _boundaries(ends[at], self.rate, self.per_second)
+        self.step_records.append((step[starts], np.maximum(top, 0.0), frames))
+        if len(self.step_records) > COMPACT_AFTER:
+            self.step_records = [tuple(np.concatenate(c) for c in zip(*self.step_records))]
+
+    def step_maxima(self, steps: int) -> tuple[np.ndarray, np.ndarray]:
+        """(largest window mean power ending in each of the first ``steps`` steps, -1 where
+        none; its end frame)."""
+        power = np.full(steps, -1.0)
+        frame = np.full(steps, -1, dtype=np.int64)
+        if not self.step_records:
+            return power, frame
+        k, v, f = (np.concatenate(c) for c in zip(*self.step_records, strict=True))
+        order = np.lexsort((f, -v, k))  # by step, largest first, earliest on ties
+        k, v, f = k[order], v[order], f[order]
+        keep = np.concatenate(([True], k[1:] != k[:-1])) & (k < steps)
+        power[k[keep]], frame[k[keep]] = v[keep], f[keep]
+        return power, frame
 
     def level(self) -> tuple[float | None, float | None]:
         """(max loudness LUFS, window end s); None when no window completed; -inf for silence."""
@@ -230,8 +263,9 @@ class LoudnessMeter:
         self.pending_1ms = np.zeros(0)  # completed 1 ms sums not yet grouped into 10 ms
         self.pending_10ms = np.zeros(0)  # completed 10 ms sums not yet grouped into 100 ms
         self.step_chunks: list[np.ndarray] = []  # 100 ms step power sums, one float per step
-        self.momentary_max = _SlidingMax(MOMENTARY_SUBSTEPS, self.rate, 1000)
-        self.short_term_max = _SlidingMax(SHORT_TERM_SUBSTEPS, self.rate, 100)
+        records = options.keeps_step_records  # per-step maxima for a programme span
+        self.momentary_max = _SlidingMax(MOMENTARY_SUBSTEPS, self.rate, 1000, 100 * records)
+        self.short_term_max = _SlidingMax(SHORT_TERM_SUBSTEPS, self.rate, 100, 10 * records)
 
     # -- streaming -------------------------------------------------------------------------
 
@@ -376,16 +410,30 @@ class LoudnessMeter:
             "loudness_range_note": lra_note,
             "loudness_range_stable": lra is not None and (stop - first) * HOP_S >= LRA_STABLE_MIN_S,
         }
-        for name, width in (("momentary", MOMENTARY_STEPS), ("short_term", SHORT_TERM_STEPS)):
+        for name, width, sliding in (
+            ("momentary", MOMENTARY_STEPS, self.momentary_max),
+            ("short_term", SHORT_TERM_STEPS, self.short_term_max),
+        ):
             powers = self.window_powers(width, first, stop)
             level = time_s = None
             if powers.size:
-                i = int(np.argmax(powers))
-                level = units.power_to_lufs(float(powers[i]))
-                end = first + width + i
-                time_s = None if level == -math.inf else _boundaries(end, self.rate, 10) / self.rate
+                # the first window of the span (100 ms grid), then the finer records of every
+                # window lying wholly inside it (ending in steps first + width .. stop - 1)
+                best, end_frame = float(powers[0]), int(_boundaries(first + width, self.rate, 10))
+                maxima, frames = sliding.step_maxima(stop)
+                if sliding.per_step and stop > first + width:
+                    inner = maxima[first + width : stop]
+                    i = int(np.argmax(inner))
+                    if inner[i] > best:
+                        best, end_frame = float(inner[i]), int(frames[first + width + i])
+                elif not sliding.per_step:  # no records: the 100 ms grid alone
+                    i = int(np.argmax(powers))
+                    best = float(powers[i])
+                    end_frame = int(_boundaries(first + width + i, self.rate, 10))
+                level = units.power_to_lufs(best)
+                time_s = None if level == -math.inf else end_frame / self.rate
             out[f"max_{name}_lufs"] = level
-            out[f"max_{name}_time_s"] = None if time_s is None else float(time_s)
+            out[f"max_{name}_time_s"] = time_s
         return out
 
     def series(self) -> dict[str, tuple[float, np.ndarray]]:

@@ -221,3 +221,29 @@ def test_step_records_do_not_depend_on_the_split(tone):
     seg = np.abs(x[:, 3 * 4410 : 4 * 4410])
     assert a.peak[3].tolist() == seg.max(axis=1).tolist()
     assert a.peak_frame[3] == 3 * 4410 + int(np.argmax(seg.max(axis=0)))
+
+
+def test_span_values_equal_the_programme_measured_alone(tmp_path):
+    """Head on the 100 ms grid (3.0 s) and digital silence before the programme: the span's
+    values equal a plain measurement of the programme cut out as its own file (the
+    K-weighting state has decayed to zero in the silence), including a 400 ms burst off the
+    100 ms grid that only the 1 ms momentary hop catches in full."""
+    rng = np.random.default_rng(11)
+    prog = 0.02 * rng.standard_normal((8 * FS, 2))
+    burst = slice(int(2.437 * FS), int(2.837 * FS))
+    prog[burst] *= 8.0
+    t = np.arange(2 * FS) / FS
+    head = np.stack([0.1 * np.sin(2 * np.pi * 1000 * t)] * 2, axis=1)
+    full, alone = tmp_path / "full.wav", tmp_path / "alone.wav"
+    sf.write(full, np.concatenate([head, np.zeros((FS, 2)), prog]), FS, subtype="FLOAT")
+    sf.write(alone, prog, FS, subtype="FLOAT")
+    v = measure(str(full), MeasureOptions(span="auto")).values
+    ref = measure(str(alone), MeasureOptions()).values
+    for key in ("integrated_lufs", "loudness_range_lu", "max_momentary_lufs",
+                "max_short_term_lufs", "sample_peak_dbfs"):  # fmt: skip
+        assert_allclose(v[key], ref[key], rtol=0, atol=1e-6, err_msg=key)  # same samples
+    for key in ("max_momentary_time_s", "max_short_term_time_s", "sample_peak_time_s"):
+        assert_allclose(v[key] - 3.0, ref[key], rtol=0, atol=1e-9, err_msg=key)  # 3 s head
+    # true peak: the programme's own file starts mid-waveform (edge rule: samples only in
+    # its first 32 frames); inside the span those frames are interpolated
+    assert_allclose(v["true_peak_dbtp"], ref["true_peak_dbtp"], rtol=0, atol=0.05)
