@@ -204,7 +204,9 @@ class _SlidingMax:
         frames = _boundaries(ends[at], self.rate, self.per_second)
         self.step_records.append((step[starts], np.maximum(top, 0.0), frames))
         if len(self.step_records) > COMPACT_AFTER:
-            self.step_records = [tuple(np.concatenate(c) for c in zip(*self.step_records))]
+            self.step_records = [
+                tuple(np.concatenate(c) for c in zip(*self.step_records, strict=True))
+            ]
 
     def step_maxima(self, steps: int) -> tuple[np.ndarray, np.ndarray]:
         """(largest window mean power ending in each of the first ``steps`` steps, -1 where

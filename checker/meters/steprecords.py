@@ -79,11 +79,18 @@ class StepRecorder:
         peaks = np.maximum.reduceat(a, starts, axis=1)  # (channels, pieces)
         if self.tone:  # sums of squares and upward zero crossings, for tone detection
             sign = xt >= 0.0
-            prev = sign[:, :1] if self.last_sign is None else self.last_sign[:, None]
-            up = sign & ~np.concatenate((prev, sign[:, :-1]), axis=1)
+            up = sign.copy()
+            up[:, 1:] &= ~sign[:, :-1]
+            if self.last_sign is None:
+                up[:, 0] = False
+            else:
+                up[:, 0] &= ~self.last_sign
             self.last_sign = sign[:, -1].copy()
             squares = np.add.reduceat(np.square(xt), starts, axis=1)
-            ups = np.add.reduceat(up, starts, axis=1, dtype=np.int64)
+            edges = np.array([*starts, n])
+            ups = np.stack(
+                [np.diff(np.searchsorted(np.flatnonzero(row), edges)) for row in up]
+            )  # crossings per piece, counted from their positions
         rows: list[tuple[np.ndarray, ...]] = []
         for i, ((hi, closes), lo) in enumerate(zip(ends, starts, strict=True)):
             pk = peaks[:, i]
