@@ -15,14 +15,14 @@ judge, stems, run, report, cli); DEVELOPERS.md has the map.
 
 from __future__ import annotations
 
-from checker.analysis.onepass import measure  # noqa: E402
-from checker.judge.rules import evaluate  # noqa: E402
-from checker.meters.base import MeasureOptions  # noqa: E402
-from checker.model.measurement import Measurement  # noqa: E402
-from checker.model.results import FileResult, RunInfo  # noqa: E402
-from checker.model.verdict import Flag, GainAdvice, Verdict  # noqa: E402
-from checker.model.version import __version__  # noqa: E402
-from checker.profile.load import Profile, load_profile  # noqa: E402
+from checker.analysis.onepass import measure
+from checker.judge.rules import evaluate
+from checker.meters.base import MeasureOptions
+from checker.model.measurement import Measurement
+from checker.model.results import FileResult, RunInfo
+from checker.model.verdict import Flag, GainAdvice, Verdict
+from checker.model.version import __version__
+from checker.profile.load import Profile, load_profile
 
 __all__ = [
     "FileResult",
