@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 
 from checker.meters.base import MeasureOptions
-from checker.meters.loudness import HOP_S, SHORT_TERM_STEPS
+from checker.meters.loudness import HOP_S
 from checker.meters.steprecords import StepRecords, span_peaks, step_boundary
 from checker.model import units
 
@@ -348,13 +348,11 @@ def part_values(loud, tp, rec: StepRecords, span: Span, break_min_s: float) -> l
 
 
 __all__ = [
-    "apply_span",
-    "SHORT_TERM_STEPS",
     "Span",
+    "apply_span",
     "point_seconds",
     "resolve_span",
     "span_note",
-    "span_peaks",
     "split_parts",
     "step_seconds",
 ]
