@@ -382,3 +382,28 @@ def test_the_speech_lane_marks_what_the_gate_heard(browser, tmp_path):
     assert counts == {"talk.wav": (1, 2), "music.wav": (0, 0)}
     assert watch.errors == []
     page.close()
+
+
+def test_programme_parts_are_one_line_each_in_the_detail(browser, tmp_path):
+    # Parts as checker/analysis/span.py gives them (plain dicts in values["parts"]).
+    parts = [
+        {"part": 1, "start_s": 3.0, "end_s": 9.0, "duration_s": 6.0, "integrated_lufs": -20.01,
+         "integrated_note": None, "max_short_term_lufs": -19.5, "true_peak_dbtp": -3.2,
+         "true_peak_note": None, "sample_peak_dbfs": -3.5},
+        {"part": 2, "start_s": 12.0, "end_s": 13.0, "duration_s": 1.0, "integrated_lufs": None,
+         "integrated_note": "<b>below absolute gate</b>", "max_short_term_lufs": None,
+         "true_peak_dbtp": -40.0, "true_peak_note": None, "sample_peak_dbfs": -41.0},
+    ]  # fmt: skip
+    v = {**values(), "parts": parts, "parts_count": 2}
+    rows = [FileResult("show/parts.wav", "pass", Measurement("show/parts.wav", v), Verdict("pass"))]
+    html = write_reports(tmp_path, make_run(), rows)["html"]
+    page, watch = open_report(browser, html)
+    page.click("#file-rows tr button.open")
+    lines = page.locator("#detail-body ul.parts li").all_text_contents()
+    assert len(lines) == 2
+    assert lines[0].startswith("Part 1, 3.00\u20139.00 s: integrated -20.01 LUFS")
+    assert "true peak -3.20 dBTP" in lines[0]
+    assert "(<b>below absolute gate</b>)" in lines[1]  # a note is text, never markup
+    assert page.locator("#detail-body ul.parts b").count() == 0
+    assert watch.errors == []
+    page.close()
