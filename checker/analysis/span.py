@@ -309,6 +309,8 @@ def apply_span(
         values.update(loud.span_values(span.first, span.stop))
         values.update(tp.span_values(first_frame, stop_frame))
         values.update(span_peaks(rec, span.first, span.stop))
+        if "SpeechMeter" in by_name:
+            values.update(by_name["SpeechMeter"].span_values(span.first, span.stop))
         if "DownmixMeter" in by_name:
             down = by_name["DownmixMeter"].span_values(
                 span.first, span.stop, first_frame, stop_frame

@@ -244,9 +244,25 @@ class SpeechMeter:
             return _unavailable("speech gate needs the loudness meter of the same pass")
         speech_s = round(self.speech_windows * WINDOW_SAMPLES / VAD_RATE_HZ, 3)
         powers = self.loudness.window_powers(MOMENTARY_STEPS)
+        return self._judge(powers, self._steps(powers.size + MOMENTARY_STEPS - 1), speech_s)
+
+    def span_values(self, first: int, stop: int) -> dict:
+        """The speech keys for the 100 ms steps [first, stop) (a programme span, after
+        result()); ``speech_s`` there is the speech fraction of its steps times 100 ms.
+        {} when the gate did not run."""
+        if not self.enabled or self.vad is None or self.loudness is None:
+            return {}
+        powers = self.loudness.window_powers(MOMENTARY_STEPS, first, stop)
+        steps = self._steps(stop)[first:]
+        speech_s = round(float(steps.sum()) * 0.1, 3)
+        steps = steps[: powers.size + MOMENTARY_STEPS - 1]
+        return self._judge(powers, steps, speech_s).to_dict()
+
+    def _judge(self, powers: np.ndarray, steps: np.ndarray, speech_s: float) -> SpeechResult:
+        """Speech-gated values from the 400 ms block powers and the 100 ms steps' speech
+        fractions under them."""
         if powers.size == 0:
             return self._none(speech_s, None, "shorter than one 400 ms block")
-        steps = self._steps(powers.size + MOMENTARY_STEPS - 1)
         cover = np.convolve(steps, np.ones(MOMENTARY_STEPS) / MOMENTARY_STEPS, mode="valid")
         is_speech = cover >= BLOCK_SPEECH_FRACTION - 1e-12
         gated = _gated(powers)
