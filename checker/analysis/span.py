@@ -203,6 +203,14 @@ def resolve_span(
         except ValueError as exc:
             span.findings.append(f"programme {which} {exc}; measured without it")
             continue
+        total = float(rec.frames.sum()) / rate
+        if seconds > total:
+            span.findings.append(
+                f"programme {which} point {text} lies {seconds:.3f} s into a {total:.3f} s file"
+                + ("; measured without it" if which == "in" else "; measured to the end")
+            )
+            if which == "in":
+                continue
         k = min(max(_nearest_step(seconds, rate), 0), n)
         if which == "in":
             span.first = k

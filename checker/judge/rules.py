@@ -378,7 +378,11 @@ def _check_parts(lim: Limit, values, profile) -> Flag | None:
     d = lim.definition
     parts = values.get("parts")
     if not isinstance(parts, list):
-        return unmeasured(lim, values, "parts")
+        msg = (
+            f"{_cap(d.what)} could not be measured: the file was not split into parts (set "
+            f"[programme] break_min_s, or --break-min-s); the limit ({lim.text()}) was not checked."
+        )
+        return _flag(lim, None, lim.value, msg)
     target, against = None, ""
     if d.kind == PART_TARGET:
         target, against = profile.value("integrated_target_lufs"), "the target"

@@ -458,6 +458,19 @@ def needs_speech(profile: Any) -> bool:
     return False
 
 
+#: Measured keys only span detection gives (MeasureOptions.span = "auto").
+LINEUP_KEYS = ("lineup_tone_dbfs", "lineup_tone_hz", "programme_start_s")
+
+
+def needs_lineup(profile: Any) -> bool:
+    """True when a profile limits the line-up tone or the head (so the head must be found)."""
+    for lim in getattr(profile, "limits", ()) or ():
+        d = BY_KEY.get(getattr(lim, "key", ""))
+        if d is not None and any(k in LINEUP_KEYS for k in measured_keys(d)):
+            return True
+    return False
+
+
 def with_derived(values: Mapping[str, Any]) -> Mapping[str, Any]:
     extra = {
         k: f(values)

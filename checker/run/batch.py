@@ -122,12 +122,14 @@ def measure_options(profile, layout: str | None = None) -> MeasureOptions:
     ``[encode]`` section asks for (a measurement option, part of the cache key); and a profile
     with a speech limit turns the (costly) speech gate on, which only adds the speech keys
     (see reusable_keys)."""
-    from checker.profile.catalogue import needs_speech
+    from checker.profile.catalogue import needs_lineup, needs_speech
 
     speech = needs_speech(profile)
     given = layout or getattr(profile, "channel_layout", None)
     encode = getattr(profile, "encode", None)  # the round trip asked for, or None
     prog = dict(getattr(profile, "programme", ()) or ())
+    if needs_lineup(profile) and "span" not in prog and "in_point" not in prog:
+        prog["span"] = "auto"  # a limit on the line-up tone or the head: find them
     span = {
         "span": "auto" if prog.get("span") == "auto" else None,
         "span_in": prog.get("in_point"),

@@ -247,3 +247,31 @@ def test_span_values_equal_the_programme_measured_alone(tmp_path):
     # true peak: the programme's own file starts mid-waveform (edge rule: samples only in
     # its first 32 frames); inside the span those frames are interpolated
     assert_allclose(v["true_peak_dbtp"], ref["true_peak_dbtp"], rtol=0, atol=0.05)
+
+
+def test_points_past_the_end_are_findings(wav):
+    m = measure(wav, MeasureOptions(span_in="3", span_out="99"))
+    assert any("out point 99 lies 99.000 s into a 14.000 s file" in f for f in m.findings)
+    assert_allclose(m.values["programme_end_s"], 14.0, rtol=0, atol=1e-9)  # generated: 14 s
+    m = measure(wav, MeasureOptions(span_in="20"))
+    assert any("in point 20 lies" in f and "measured without it" in f for f in m.findings)
+    assert m.values["programme_start_s"] == 0.0
+
+
+def test_a_lineup_limit_turns_detection_on_and_part_limits_need_parts(tmp_path, wav):
+    from checker.run.batch import measure_options
+
+    prof = tmp_path / "tone.toml"
+    prof.write_text(
+        'name = "tone-test"\n[programme]\n'
+        'lineup_tone_max_dbfs = { value = -18.0, severity = "fail", source = "test" }\n'
+        'part_true_peak_max_dbtp = { value = -1.0, severity = "warn", source = "test" }\n'
+    )
+    profile = validate_profile_file(prof)
+    opts = measure_options(profile)
+    assert opts.span == "auto" and opts.break_min_s is None
+    verdict = evaluate(measure(wav, opts).values, profile)
+    flags = {f.rule: f for f in verdict.flags}
+    # the generated tone is -20 dBFS: below the -18 dBFS ceiling, no flag
+    assert "lineup_tone_max_dbfs" not in flags
+    assert "not split into parts" in flags["part_true_peak_max_dbtp"].message
