@@ -8,6 +8,7 @@ Expected numbers are arithmetic on the test's own inputs (stated beside each che
 from __future__ import annotations
 
 import io
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -150,6 +151,21 @@ def test_line_shows_audio_within_a_file_with_its_total_and_an_eta_by_audio():
         "checked: 2/2 files (measured 2, from the store 0), 400 of 400 s of audio at "
         "4.0 s/s, elapsed 0:01:40"
     )
+
+
+def test_the_readme_example_line_is_what_the_progress_line_prints():
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text()
+    example = next(x for x in readme.splitlines() if x.startswith("checking: 0/5 files"))
+    clock = FakeClock()
+    p = Progress(io.StringIO(), clock=clock, heartbeat_s=None)
+    p.start(5)
+    for key in range(5):
+        p.audio.plan(key, 1_000)
+    p.audio.started(0, 10_800.0, Reader(1_520.0))  # a three-hour file, 1,520 s decoded
+    clock.t = 16.0
+    # 1,520 / 16 = 95.0 s/s; 10,800 + 4 x 1,000 bytes x 10.8 s/byte = 54,000 (estimated);
+    # ETA (54,000 - 1,520) / 95 = 552 s = 0:09:12
+    assert p.line() == example
 
 
 def test_line_before_any_length_is_known_shows_seconds_without_a_total():
