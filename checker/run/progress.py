@@ -96,11 +96,6 @@ class AudioLedger:
                 self._rate_bytes += size
             self._done_s += seconds
 
-    def live_s(self, key) -> float:
-        """Seconds decoded so far of a started file (0 when it has no reader)."""
-        with self._lock:
-            return _read(self._open.get(key, (0, None, None))[2])
-
     def done_s(self) -> float:
         """Seconds measured: finished files, and what the files in flight have decoded."""
         with self._lock:

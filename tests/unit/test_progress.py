@@ -111,7 +111,7 @@ def test_ledger_ignores_a_reader_that_is_not_a_finite_positive_number():
     ledger = AudioLedger()
     ledger.plan(0, 10)
     ledger.started(0, 1.0, Reader(float("nan")))
-    assert ledger.done_s() == 0.0 and ledger.live_s(0) == 0.0
+    assert ledger.done_s() == 0.0 and ledger.total_s() == (1.0, False)
 
 
 # -- the line ------------------------------------------------------------------------------
