@@ -291,6 +291,8 @@ class LocalPool:
                             pending.appendleft(task)
                         else:
                             code = _exit_text(w.process.exitcode)
+                            if ledger is not None:
+                                ledger.finished(task.index, 0.0, whole=False)
                             yield (
                                 task,
                                 ("error", f"{task.path}: no worker would start ({code})", True),
