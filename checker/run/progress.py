@@ -159,6 +159,8 @@ class Progress:
         self.audio = AudioLedger()  # what the pool reports, file by file and within files
         self.measured = 0  # files actually read this run
         self.stored = 0  # files whose measurement (or read error) came from the store
+        self.sets_measured = 0  # stem sets read this run
+        self.sets_stored = 0  # stem sets whose values came from the store
         self._t0 = clock()
         self._last_draw = -1e18
         self._width = 0
@@ -189,6 +191,23 @@ class Progress:
             elif stored:
                 self.stored += 1
         self._draw(force=self.tty and self.done == self.total)
+
+    def count_set(self, stored: bool) -> None:
+        """A stem set was judged (its values measured now, or from the store)."""
+        with self._lock:
+            if stored:
+                self.sets_stored += 1
+            else:
+                self.sets_measured += 1
+
+    def counts(self) -> dict[str, int]:
+        """What this run did, for the summary: files and stem sets measured or from the store."""
+        return {
+            "measured": self.measured,
+            "stored": self.stored,
+            "sets_measured": self.sets_measured,
+            "sets_stored": self.sets_stored,
+        }
 
     def line(self) -> str:
         elapsed = max(self._now() - self._t0, 1e-9)

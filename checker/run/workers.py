@@ -247,7 +247,7 @@ class LocalPool:
         timeout_s: float | None = None,
     ):
         if jobs < 1:
-            raise UsageError(f"--jobs: jobs = {jobs} (expected >= 1)")
+            raise UsageError(f"jobs: {jobs} (expected >= 1)", parameter="jobs")
         from checker.analysis.onepass import measure
 
         self.jobs = jobs
@@ -370,7 +370,7 @@ class LocalPool:
                 (
                     "error",
                     f"{task.path}: measuring took longer than the time limit "
-                    f"({limit:.0f} s; see --timeout-s) and was stopped",
+                    f"({limit:.0f} s) and was stopped",
                     True,
                 ),
                 True,
@@ -390,7 +390,9 @@ def parse_cluster(address: str) -> tuple[str, int | None]:
         except ValueError:
             n = 0
         if n < 1:
-            raise UsageError(f"--cluster: workers = {text!r} (expected local:N with N >= 1)")
+            raise UsageError(
+                f"cluster: workers = {text!r} (expected local:N with N >= 1)", parameter="cluster"
+            )
         return "local", n
     return address, None
 
@@ -422,8 +424,9 @@ class DaskPool:
             from dask.distributed import Client, LocalCluster
         except ImportError:
             raise UsageError(
-                "--cluster: dask.distributed is not installed "
-                "(expected: pip install 'deliverycheck[cluster]')"
+                "cluster: dask.distributed is not installed "
+                "(expected: pip install 'deliverycheck[cluster]')",
+                parameter="cluster",
             ) from None
         if self.address == "local":
             cluster = LocalCluster(
@@ -439,7 +442,8 @@ class DaskPool:
             return Client(self.address, timeout="30s"), None
         except Exception as exc:
             raise UsageError(
-                f"--cluster: cannot reach the Dask scheduler at {self.address} ({exc})"
+                f"cluster: cannot reach the Dask scheduler at {self.address} ({exc})",
+                parameter="cluster",
             ) from None
 
     def run(

@@ -202,6 +202,7 @@ def test_changed_file_is_measured_again(tmp_path):
     assert second[0].measurement.frames == 96_000  # 2.0 s x 48 kHz
 
 
+@pytest.mark.slow
 def test_hung_worker_becomes_error_row_and_pool_goes_on(tmp_path):
     src = make_batch(
         tmp_path / "in", [("a.wav", 1.0), ("b-hang.wav", 1.0), ("c.wav", 1.0), ("d.wav", 1.0)]
@@ -224,6 +225,7 @@ def test_hung_worker_becomes_error_row_and_pool_goes_on(tmp_path):
         assert store.db.execute("SELECT retry FROM errors").fetchall() == [(1,)]
 
 
+@pytest.mark.slow
 def test_crashed_worker_becomes_error_row_and_pool_goes_on(tmp_path):
     src = make_batch(
         tmp_path / "in", [("a.wav", 1.0), ("b-crash.wav", 1.0), ("c.wav", 1.0), ("d.wav", 2.0)]
@@ -242,6 +244,7 @@ def test_crashed_worker_becomes_error_row_and_pool_goes_on(tmp_path):
     assert "worker process died" in crashed.error and "SIGKILL" in crashed.error
 
 
+@pytest.mark.slow
 def test_memory_ceiling_becomes_error_row(tmp_path):
     src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b-greedy.wav", 1.0), ("c.wav", 1.0)])
     _, results = run_batch(

@@ -106,7 +106,7 @@ def _poll(ledger: AudioLedger, want_s: float) -> float:
     ("jobs", "fn"),
     [
         (1, _held),
-        (2, _held),
+        pytest.param(2, _held, marks=pytest.mark.slow),  # two workers start: about 7 s here
         (1, functools.partial(_held, read_ahead=True)),
     ],
     ids=["jobs1", "jobs2", "read-ahead"],
@@ -133,6 +133,7 @@ def test_seconds_decoded_reach_the_parent_while_files_are_measured(tmp_path, job
     assert ledger.total_s() == (5.0, False)
 
 
+@pytest.mark.slow  # three workers replaced and a 3 s time limit
 def test_a_file_stopped_part_way_counts_with_what_it_decoded(tmp_path):
     tasks = _files(
         tmp_path, {"a-crash.wav": 3.0, "b-hang.wav": 3.0, "c-greedy.wav": 3.0, "d.wav": 2.0}
