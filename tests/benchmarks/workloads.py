@@ -69,7 +69,7 @@ def measure_blocks(path: str, block_frames: int, report: bool) -> None:
     measure(path, MeasureOptions(block_frames=block_frames), on_frames=on_frames)
 
 
-def on_frames_cost(calls: int = 1_000_000) -> None:
+def on_frames_cost(calls: int = 200_000) -> None:
     """Nanoseconds per call of a worker's progress callback, printed (median of 5 timings)."""
     import multiprocessing as mp
     import statistics
