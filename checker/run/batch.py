@@ -314,7 +314,7 @@ def run_batch(
             pool = LocalPool(
                 workers, memory_mb=memory_mb, measure_fn=measure_fn, timeout_s=timeout_s
             )
-        outcomes = pool.run(tasks, options)
+        outcomes = pool.run(tasks, options, progress.audio)  # seconds, also within files
         try:
             for task, outcome in outcomes:
                 ident = idents[task.index]
@@ -324,15 +324,13 @@ def run_batch(
                     store.put_measurement(ident, okey, m)
                     remark = found.remarks.get(task.path)
                     result = _judge(shown, m, profile, evaluate, remark)
-                    audio_s = m.get("duration_s")
                 else:
                     _, message, retry = outcome
                     message = readable(message)
                     store.put_error(ident, ENGINE_VERSION, okey, message, retry)
                     result = FileResult.failed(shown, message)
-                    audio_s = None
                 _keep(store, run, results, result)
-                progress.advance(audio_s, measured=True)
+                progress.advance(measured=True)
         finally:
             outcomes.close()  # stops and reaps the workers
         ordered = sorted(results.values(), key=lambda r: (os.path.normcase(r.path), r.path))

@@ -34,6 +34,7 @@ from multiprocessing.connection import wait
 from checker.dsp.threads import claim_process
 from checker.meters.base import MeasureOptions
 from checker.model.errors import CheckerError, UsageError
+from checker.run import live
 
 MIB = 1024 * 1024
 #: Default per-worker address-space ceiling (virtual memory, includes libraries).
@@ -83,9 +84,14 @@ def worker_measure_fn(workers: int, cores: int) -> Callable:
     return functools.partial(measure, read_ahead=True) if cores >= 2 * workers else measure
 
 
-def measure_task(path: str, options: MeasureOptions, measure_fn: Callable) -> Outcome:
-    """Measure one file; never raises. Runs in a worker (process pool or Dask)."""
+def measure_task(
+    path: str, options: MeasureOptions, measure_fn: Callable, on_frames: Callable | None = None
+) -> Outcome:
+    """Measure one file; never raises. Runs in a worker (process pool or Dask).
+    ``on_frames``: passed to a ``measure_fn`` that takes it (checker.run.live)."""
     try:
+        if on_frames is not None:
+            return ("ok", measure_fn(path, options, on_frames=on_frames))
         return ("ok", measure_fn(path, options))
     except CheckerError as exc:
         return ("error", str(exc), False)
@@ -138,11 +144,12 @@ def _die_with_parent() -> None:
             pass
 
 
-def _worker_main(conn, memory_mb, measure_fn) -> None:
+def _worker_main(conn, memory_mb, measure_fn, slot=None) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides how to stop
     _die_with_parent()
     claim_process()  # one thread per library pool: parallelism is the pool's workers
     _limit_memory(memory_mb)
+    report = live.reporter(slot) if slot is not None and live.takes_on_frames(measure_fn) else None
     while True:
         try:
             msg = conn.recv()
@@ -151,9 +158,11 @@ def _worker_main(conn, memory_mb, measure_fn) -> None:
         if msg is None:
             return
         index, path, options = msg
+        if slot is not None:
+            slot.value = 0.0  # before "started": the parent reads it only after that
         try:
             conn.send(("started", index, probe_duration_s(path)))
-            conn.send(("done", index, measure_task(path, options, measure_fn)))
+            conn.send(("done", index, measure_task(path, options, measure_fn, report)))
         except (BrokenPipeError, OSError):
             return
 
@@ -162,8 +171,9 @@ class _Worker:
     def __init__(self, ctx, memory_mb, measure_fn):
         parent_conn, child_conn = ctx.Pipe(duplex=True)
         self.conn = parent_conn
+        self.slot = live.new_slot(ctx)  # seconds decoded of its file (checker.run.live)
         self.process = ctx.Process(
-            target=_worker_main, args=(child_conn, memory_mb, measure_fn), daemon=True
+            target=_worker_main, args=(child_conn, memory_mb, measure_fn, self.slot), daemon=True
         )
         self.process.start()
         child_conn.close()
@@ -245,11 +255,19 @@ class LocalPool:
         self.measure_fn = measure_fn or measure
         self.timeout_s = timeout_s
         self.workers_started = 0
+        self.ledger = None
 
-    def run(self, tasks: list[Task], options: MeasureOptions) -> Iterator[tuple[Task, Outcome]]:
+    def run(
+        self, tasks: list[Task], options: MeasureOptions, ledger=None
+    ) -> Iterator[tuple[Task, Outcome]]:
+        """``ledger`` (checker.run.progress.AudioLedger): told each file's size, declared
+        length, seconds decoded as it goes and seconds at the end."""
         pending = deque(tasks)
         if not pending:
             return
+        self.ledger = ledger
+        for task in tasks if ledger is not None else ():
+            ledger.plan(task.index, task.size_bytes)
         ctx = _context()
         workers: list[_Worker] = []
         broken = 0  # workers found dead before they got a file
@@ -273,6 +291,8 @@ class LocalPool:
                             pending.appendleft(task)
                         else:
                             code = _exit_text(w.process.exitcode)
+                            if ledger is not None:
+                                ledger.finished(task.index, 0.0, whole=False)
                             yield (
                                 task,
                                 ("error", f"{task.path}: no worker would start ({code})", True),
@@ -290,6 +310,8 @@ class LocalPool:
                     if result is None:
                         continue
                     task, outcome, replace = result
+                    if ledger is not None:
+                        ledger.finished(task.index, *live.outcome_seconds(outcome, w.slot.value))
                     if replace:
                         w.kill()
                         workers.remove(w)
@@ -320,6 +342,8 @@ class LocalPool:
                     if kind == "started":  # the file's own clock starts now
                         w.started = time.monotonic()
                         w.deadline = w.started + time_limit_s(task, payload, self.timeout_s)
+                        if self.ledger is not None:
+                            self.ledger.started(task.index, payload, live.reader(w.slot))
                     elif kind == "done":
                         w.task = None
                         return task, payload, False
@@ -422,11 +446,17 @@ class DaskPool:
                 parameter="cluster",
             ) from None
 
-    def run(self, tasks: list[Task], options: MeasureOptions) -> Iterator[tuple[Task, Outcome]]:
+    def run(
+        self, tasks: list[Task], options: MeasureOptions, ledger=None
+    ) -> Iterator[tuple[Task, Outcome]]:
+        """``ledger``: told each file's size and, when it ends, its seconds (per file
+        only: Dask tasks report nothing while they run)."""
         if not tasks:
             return
         from dask.distributed import as_completed
 
+        for task in tasks if ledger is not None else ():
+            ledger.plan(task.index, task.size_bytes)
         client, cluster = self._client()
         try:
             futures = {}
@@ -444,6 +474,8 @@ class DaskPool:
                         f"{task.path}: cluster task failed ({type(exc).__name__}: {text})",
                         True,
                     )
+                if ledger is not None:
+                    ledger.finished(task.index, *live.outcome_seconds(outcome, 0.0))
                 yield task, outcome
         finally:
             client.close()

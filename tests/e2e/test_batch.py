@@ -21,6 +21,7 @@ from checker.analysis.onepass import measure
 from checker.io.discover import Discovery, discover
 from checker.model.verdict import ERROR, FAIL, PASS, Verdict
 from checker.run.batch import Interrupted, run_batch
+from checker.run.progress import Progress
 from checker.run.store import open_store
 
 # -- helpers -----------------------------------------------------------------------------
@@ -302,11 +303,19 @@ def test_dask_local_cluster_matches_process_pool(tmp_path):
     src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b.wav", 2.0), ("c.wav", 1.5)])
     (src / "bad.wav").write_text("not audio")
     _, local = run_batch([src], StubProfile(), tmp_path / "pool", jobs=2, evaluate=duration_rule)
+    progress = Progress(None)
     _, dask = run_batch(
-        [src], StubProfile(), tmp_path / "dask", cluster="local:1", evaluate=duration_rule
+        [src],
+        StubProfile(),
+        tmp_path / "dask",
+        cluster="local:1",
+        evaluate=duration_rule,
+        progress=progress,
     )
     assert [r.to_dict(timeline=True) for r in dask] == [r.to_dict(timeline=True) for r in local]
     assert {r.status for r in dask} == {PASS, FAIL, ERROR}
+    # The Dask pool reports audio per file: 1.0 + 2.0 + 1.5 s, the unreadable file adds none.
+    assert progress.audio.done_s() == 4.5 and progress.audio.total_s() == (4.5, False)
 
 
 def test_workers_use_a_second_thread_only_with_cores_to_spare():
