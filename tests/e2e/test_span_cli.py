@@ -75,12 +75,21 @@ def test_check_with_span_and_parts(tmp_path):
     values = file_row.get("measurement", file_row)
     assert len(values["parts"]) == 2
 
-    # without the span options the same store measures again (they are in the cache key)
+    # without the options the same store measures again (they are in the cache key): the
+    # profile's line-up limit still turns detection on, but nothing asks for parts now
     code, _, _ = cli("check", str(src.parent), "--profile", str(prof), "--out", str(out),
                      "--quiet")  # fmt: skip
     with open(out / "report.csv", newline="", encoding="utf-8") as handle:
         row = next(csv.DictReader(handle))
-    assert row["programme_start_s"] == "" and row["parts_count"] == ""
+    assert_allclose(float(row["programme_start_s"]), 3.0, rtol=0, atol=1e-9)
+    assert row["parts_count"] == ""
+    assert (out / "parts.csv").read_text().count("\n") == 1  # the header only
+    # --span whole_file over the profile: the whole file, no span keys changed
+    code, _, _ = cli("check", str(src.parent), "--profile", str(prof), "--out", str(out),
+                     "--span", "whole_file", "--quiet")  # fmt: skip
+    with open(out / "report.csv", newline="", encoding="utf-8") as handle:
+        row = next(csv.DictReader(handle))
+    assert row["programme_start_s"] == ""
 
 
 def test_bad_points_are_usage_errors(tmp_path):
