@@ -449,13 +449,18 @@ DERIVED: dict[str, tuple[tuple[str, ...], Callable[[Mapping[str, Any]], Any]]] =
 SPEECH_KEYS = ("speech_lufs", "speech_share", "speech_to_programme_lu", "anchor_lufs")
 
 
-def needs_speech(profile: Any) -> bool:
-    """True when a profile has a limit on a speech value (so the speech gate must run)."""
+def limits_any(profile: Any, keys: tuple[str, ...]) -> bool:
+    """True when a profile has a limit on any of these measured keys."""
     for lim in getattr(profile, "limits", ()) or ():
         d = BY_KEY.get(getattr(lim, "key", ""))
-        if d is not None and any(k in SPEECH_KEYS for k in measured_keys(d)):
+        if d is not None and any(k in keys for k in measured_keys(d)):
             return True
     return False
+
+
+def needs_speech(profile: Any) -> bool:
+    """True when a profile has a limit on a speech value (so the speech gate must run)."""
+    return limits_any(profile, SPEECH_KEYS)
 
 
 #: Measured keys only span detection gives (MeasureOptions.span = "auto").
@@ -464,11 +469,7 @@ LINEUP_KEYS = ("lineup_tone_dbfs", "lineup_tone_hz", "programme_start_s")
 
 def needs_lineup(profile: Any) -> bool:
     """True when a profile limits the line-up tone or the head (so the head must be found)."""
-    for lim in getattr(profile, "limits", ()) or ():
-        d = BY_KEY.get(getattr(lim, "key", ""))
-        if d is not None and any(k in LINEUP_KEYS for k in measured_keys(d)):
-            return True
-    return False
+    return limits_any(profile, LINEUP_KEYS)
 
 
 def with_derived(values: Mapping[str, Any]) -> Mapping[str, Any]:
