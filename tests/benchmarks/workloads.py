@@ -56,6 +56,19 @@ def measure_one_thread(path: str) -> None:
     measure(path)
 
 
+def measure_all(path: str) -> None:
+    """measure() of every .wav file in folder ``path`` (or of the one file ``path``) in this
+    one process, one thread: the engine's own per-file cost, without a batch's workers,
+    store and reports."""
+    from pathlib import Path
+
+    from checker.analysis.onepass import measure
+
+    p = Path(path)
+    for f in sorted(p.glob("*.wav")) if p.is_dir() else [p]:
+        measure(str(f))
+
+
 def truepeak_skip(path: str, block_frames: int) -> None:
     """True-peak chunks interpolated / seen (the skip bound's effect), printed as 'n m'."""
     from checker.io.audio import read_blocks
@@ -84,6 +97,8 @@ if __name__ == "__main__":
         pyebur128_run(path, frames, full=False)
     elif which == "measure1":
         measure_one_thread(path)
+    elif which == "measureall":
+        measure_all(path)
     elif which == "tpskip":
         truepeak_skip(path, frames)
     else:
