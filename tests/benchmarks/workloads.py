@@ -59,10 +59,13 @@ def measure_one_thread(path: str) -> None:
 def measure_all(path: str) -> None:
     """measure() of every .wav file in folder ``path`` (or of the one file ``path``) in this
     one process, one thread: the engine's own per-file cost, without a batch's workers,
-    store and reports."""
+    store and reports (with a worker's memory set-up: checker/dsp/heap.py)."""
     from pathlib import Path
 
     from checker.analysis.onepass import measure
+    from checker.dsp.heap import keep_freed_memory
+
+    keep_freed_memory()
 
     p = Path(path)
     for f in sorted(p.glob("*.wav")) if p.is_dir() else [p]:
