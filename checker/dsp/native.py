@@ -370,11 +370,14 @@ def tp_refine(
     points count (``base``: file grid index of grid[0]); ``fine_taps`` (fine steps, T)
     float64; ``edge_s``: the times between which a point is inner. ``state`` = [best,
     best_inner] (float64) and ``best_index`` (int64, 1 value) are updated in place."""
-    _need(window, np.float32, 1, "tp_refine")
-    _need(grid, np.float32, 1, "tp_refine")
-    _need(fine_taps, np.float64, 2, "tp_refine")
-    _need(state, np.float64, 1, "tp_refine")
-    _need(best_index, np.int64, 1, "tp_refine")
+    for a, dtype, ndim in (
+        (window, np.float32, 1),
+        (grid, np.float32, 1),
+        (fine_taps, np.float64, 2),
+        (state, np.float64, 1),
+        (best_index, np.int64, 1),
+    ):
+        _need(a, dtype, ndim, "tp_refine")
     steps, ntaps = fine_taps.shape
     step = steps // factor if factor in (1, 2, 4) else 0
     back = ntaps // 2 - 1
