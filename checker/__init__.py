@@ -5,21 +5,24 @@ Public API::
     measure(path, options=None) -> Measurement      # one file, one pass, no profile
     load_profile(name_or_path) -> Profile           # a shipped profile by name, or a TOML file
     evaluate(measurement, profile) -> Verdict       # pure: no audio is read
-    check(paths, profile, out_dir, jobs=None) -> (RunInfo, [FileResult])
-                                                    # a whole batch: store, reports, resume
+    check(paths, profile, out_dir, jobs=None, mix=None, ...) -> (RunInfo, [FileResult])
+                                                    # a whole batch: store, reports, resume,
+                                                    # stem sets (same rows as the command line)
+
+The package is one subpackage per stage of the flow (model, io, dsp, meters, analysis, profile,
+judge, stems, run, report, cli); DEVELOPERS.md has the map.
 """
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
-from checker.analysis.onepass import measure  # noqa: E402
-from checker.judge.rules import evaluate  # noqa: E402
-from checker.meters.base import MeasureOptions  # noqa: E402
-from checker.model.measurement import Measurement  # noqa: E402
-from checker.model.results import FileResult, RunInfo  # noqa: E402
-from checker.model.verdict import Flag, GainAdvice, Verdict  # noqa: E402
-from checker.profile.load import Profile, load_profile  # noqa: E402
+from checker.analysis.onepass import measure
+from checker.judge.rules import evaluate
+from checker.meters.base import MeasureOptions
+from checker.model.measurement import Measurement
+from checker.model.results import FileResult, RunInfo
+from checker.model.verdict import Flag, GainAdvice, Verdict
+from checker.model.version import __version__
+from checker.profile.load import Profile, load_profile
 
 __all__ = [
     "FileResult",
@@ -40,8 +43,10 @@ __all__ = [
 
 def check(paths, profile, out_dir, jobs: int | None = None, fresh: bool = False, **kwargs):
     """Check a batch like ``deliverycheck check``: measure (or reuse stored measurements),
-    judge against ``profile`` (a Profile, a shipped name or a TOML path), write the reports
-    into ``out_dir``; returns (RunInfo, [FileResult]). Per-file problems are error rows."""
+    judge against ``profile`` (a Profile, a shipped name or a TOML path), check stem sets
+    (a folder is one when ``mix=`` names its reference mix or the profile has set limits),
+    write the reports into ``out_dir``; returns (RunInfo, [FileResult]). Per-file problems are
+    error rows. Other keywords go to checker.run.batch.run_batch (layout, timeout_s, ...)."""
     from pathlib import Path
 
     from checker.dsp.threads import one_thread_pools

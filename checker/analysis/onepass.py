@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import os
+from collections.abc import Callable
 from dataclasses import replace
 from typing import Any
 
@@ -222,8 +223,16 @@ def guard_values(values: dict[str, Any]) -> None:
             values[f"{stem}_note"] = values[f"{stem}_note"] or NOT_MEASURABLE
 
 
+#: ``on_frames(frames_done, sample_rate_hz)``: how far the pass has got (see measure()).
+FramesCallback = Callable[[int, int], None]
+
+
 def measure(
-    path: str, options: MeasureOptions | None = None, *, read_ahead: bool = False
+    path: str,
+    options: MeasureOptions | None = None,
+    *,
+    read_ahead: bool = False,
+    on_frames: FramesCallback | None = None,
 ) -> Measurement:
     """Measure one file in a single streaming pass. Raises AudioReadError.
 
@@ -231,17 +240,25 @@ def measure(
     meters' prepare steps there (for a lone measurement with a core to spare; batch
     workers keep one thread each unless there are fewer files than jobs). The values are
     the same either way. Library thread pools (BLAS) run one thread meanwhile
-    (checker/dsp/threads.py): parallelism is deliverycheck's own."""
+    (checker/dsp/threads.py): parallelism is deliverycheck's own.
+
+    ``on_frames(frames_done, sample_rate_hz)``: called in the calling thread after each
+    block has been fed to every meter, with the frames measured so far: strictly
+    increasing, the last call equals the file's decoded frames whatever the block size
+    (a file with no frames gets one call with 0). A batch worker uses it for the progress
+    line (checker/run/workers.py); it is not an option, so it never enters a cache key."""
     with one_thread_pools():
-        return _measure_one(str(path), options or MeasureOptions(), read_ahead)
+        return _measure_one(str(path), options or MeasureOptions(), read_ahead, on_frames)
 
 
-def _measure_one(path: str, options: MeasureOptions, read_ahead: bool) -> Measurement:
+def _measure_one(
+    path: str, options: MeasureOptions, read_ahead: bool, on_frames: FramesCallback | None
+) -> Measurement:
     before = _stat(str(path))
     length = read_container_length(str(path))  # AIFF, W64, AU, CAF, FLAC, Ogg; else None
     source = _unknown_length_view(str(path), length)
     try:
-        return _measure(str(path), options, read_ahead, before, length, source)
+        return _measure(str(path), options, read_ahead, before, length, source, on_frames)
     finally:
         if source is not None:
             source.close()
@@ -260,8 +277,10 @@ def _unknown_length_view(path: str, length: ContainerLength | None) -> FlacUnkno
         return None
 
 
-def _feed_all(blocks, meters: list) -> int:
-    """Feed every block to every meter; the frames decoded."""
+def _feed_all(
+    blocks, meters: list, on_frames: FramesCallback | None = None, rate_hz: int = 0
+) -> int:
+    """Feed every block to every meter; the frames decoded. ``on_frames``: see measure()."""
     # Meters that count NaN/Inf (class attribute sees_nonfinite = True) get the untouched
     # block; every other meter then gets those samples as 0.
     counting = [m for m in meters if getattr(m, "sees_nonfinite", False)]
@@ -278,6 +297,10 @@ def _feed_all(blocks, meters: list) -> int:
         else:
             for meter in meters:
                 meter.feed(block)
+        if on_frames is not None and block.frames:
+            on_frames(frames, rate_hz)
+    if on_frames is not None and frames == 0:
+        on_frames(0, rate_hz)
     return frames
 
 
@@ -288,6 +311,7 @@ def _measure(
     before: tuple[int, int],
     length: ContainerLength | None,
     source: FlacUnknownLength | None,
+    on_frames: FramesCallback | None = None,
 ) -> Measurement:
     hooks: list = []  # the meters' prepare steps, filled once the meters exist
     try:
@@ -308,7 +332,7 @@ def _measure(
     # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
     hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
     try:
-        frames = _feed_all(blocks, meters)
+        frames = _feed_all(blocks, meters, on_frames, info.sample_rate_hz)
     except AudioReadError as exc:  # a cut FLAC loses sync at its end: say so
         if length is None or not length.findings:
             raise

@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import dataclasses
-import json
 import os
 import shlex
 import sys
@@ -20,7 +18,6 @@ from checker.model.errors import (
     EXIT_OUTPUT,
     EXIT_UNCHECKED,
     OutputError,
-    StoreError,
     UsageError,
     os_cause,
 )
@@ -115,93 +112,6 @@ def missing_paths(paths) -> list[str]:
     return [p for p in paths if not os.path.lexists(p)]
 
 
-def stem_set_folders(args, profile) -> list[str]:
-    """Each folder PATH is one stem set when --mix is given or the profile has set limits."""
-    has_set_limits = any(row.get("scope") == "set" for row in profile.limits_table())
-    folders = [p for p in args.paths if os.path.isdir(p)]
-    if args.mix:
-        if len(folders) != 1 or len(args.paths) != 1:
-            raise UsageError(
-                f"--mix: PATH = {' '.join(args.paths)} (expected exactly one folder of stems)"
-            )
-        if not os.path.isfile(args.mix):
-            raise UsageError(f"--mix: {args.mix} (expected an existing audio file)")
-    return folders if (args.mix or has_set_limits) else []
-
-
-def stem_set_key(stem_set, options) -> str | None:
-    """What a stem set's stored values depend on: every file's identity (resolved path, size,
-    modification and change time), the engine version and the options; None when a file cannot be
-    stat'ed (then the set is checked again, and says why)."""
-    from checker.model.version import ENGINE_VERSION
-    from checker.run.batch import options_key
-    from checker.run.store import FileIdentity
-
-    try:
-        files = [FileIdentity.of(p) for p in stem_set.stem_paths]
-        mix = FileIdentity.of(stem_set.mix_path) if stem_set.mix_path else None
-    except OSError:
-        return None
-    parts = [ENGINE_VERSION, options_key(options), stem_set.name, os.path.realpath(stem_set.folder)]
-    parts += [[f.path, f.size_bytes, f.mtime_ns, f.ctime_ns] for f in files]
-    parts.append([mix.path, mix.size_bytes, mix.mtime_ns, mix.ctime_ns] if mix else None)
-    return json.dumps(parts)
-
-
-def measure_stem_set(stem_set, options, store=None, fresh: bool = False, counts=None):
-    """The set's SetMeasurement: from the store when its files are unchanged (a re-check
-    against another profile, a resumed batch), else one lockstep pass, stored when clean.
-    ``counts`` (a dict) gets ``sets_stored`` or ``sets_measured`` incremented."""
-    from checker.stems.sets import SetMeasurement, check_stem_set
-
-    counts = {} if counts is None else counts
-    key = stem_set_key(stem_set, options) if store is not None else None
-    if key is not None and not fresh:
-        cached = store.get_stem_set(key)
-        if cached is not None:
-            counts["sets_stored"] = counts.get("sets_stored", 0) + 1
-            return SetMeasurement.from_dict(cached)
-    counts["sets_measured"] = counts.get("sets_measured", 0) + 1
-    sm = check_stem_set(
-        list(stem_set.stem_paths),
-        stem_set.mix_path,
-        options,
-        name=stem_set.name,
-        folder=stem_set.folder,
-    )
-    if key is not None and not sm.errors:  # read errors may be passing: measure again next run
-        store.put_stem_set(key, stem_set.folder, sm.to_dict())
-    return sm
-
-
-def add_stem_sets(
-    folders: list[str],
-    mix: str | None,
-    profile,
-    results: list,
-    store=None,
-    fresh: bool = False,
-    layout: str | None = None,
-    counts=None,
-) -> list:
-    """Set-level rows (one per folder), each followed by its stems' own rows."""
-    from checker.run.batch import measure_options
-    from checker.stems.sets import evaluate_set, stem_set_from_folder
-
-    by_path = {os.path.abspath(r.path): r for r in results}
-    ordered, used = [], set()
-    for folder in folders:
-        stem_set = stem_set_from_folder(folder, mix)
-        sm = measure_stem_set(stem_set, measure_options(profile, layout), store, fresh, counts)
-        ordered.append(evaluate_set(sm, profile))
-        for stem in stem_set.stem_paths:
-            row = by_path.get(os.path.abspath(stem))
-            if row is not None and id(row) not in used:
-                used.add(id(row))
-                ordered.append(dataclasses.replace(row, group=stem_set.name))
-    return ordered + [r for r in results if id(r) not in used]
-
-
 def run(args, out: TextIO, err: TextIO) -> int:
     from checker.profile.load import load_profile
     from checker.run.batch import Interrupted, StoreFailed, run_batch
@@ -218,7 +128,6 @@ def run(args, out: TextIO, err: TextIO) -> int:
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
     if args.layout is not None:
         check_layout_text(args.layout)
-    folders = stem_set_folders(args, profile)
     out_dir = Path(args.out)
     notes: list[str] = []
     progress = Progress(err, quiet=args.quiet)
@@ -235,9 +144,10 @@ def run(args, out: TextIO, err: TextIO) -> int:
             memory_mb=args.worker_memory_mb or None,
             on_note=notes.append,
             layout=args.layout,
+            mix=args.mix,
         )
     except StoreFailed as exc:  # the store failed part-way: report what was measured
-        return _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err)
+        return _after_store_failure(exc, args, out_dir, notes, out, err)
     except Interrupted as exc:
         # --fresh would measure everything again: the resume command leaves it out.
         resume = [a for a in sys.argv[1:] if a != "--fresh"]
@@ -251,33 +161,8 @@ def run(args, out: TextIO, err: TextIO) -> int:
         )
         print(for_terminal(f"to resume, run again: {again}"), file=err)
         return EXIT_INTERRUPTED
-    failure = None
-    counts = {"measured": progress.measured, "stored": progress.stored}
-    if folders:
-        results, failure = _with_stem_sets(folders, args, profile, results, out_dir, counts)
-    code = _report(out_dir, run_info, results, notes, out, err, counts=counts, strict=args.strict)
-    if failure is not None:
-        print(for_terminal(f"deliverycheck: {failure}"), file=err)
-        return EXIT_OUTPUT
-    return code
-
-
-def _with_stem_sets(folders, args, profile, results, out_dir, counts):
-    """Results with the stem sets' rows; (rows, the store's failure or None). A store that
-    fails leaves the sets measured without it."""
-    from checker.run.store import open_store
-
-    try:
-        with open_store(out_dir) as store:
-            rows = add_stem_sets(
-                folders, args.mix, profile, results, store, args.fresh, args.layout, counts
-            )
-            return rows, None
-    except StoreError as exc:
-        rows = add_stem_sets(
-            folders, args.mix, profile, results, None, args.fresh, args.layout, counts
-        )
-        return rows, exc
+    counts = progress.counts()
+    return _report(out_dir, run_info, results, notes, out, err, counts=counts, strict=args.strict)
 
 
 def _report(
@@ -318,12 +203,10 @@ def _report(
     return exit_code(results, strict=strict)
 
 
-def _after_store_failure(exc, args, profile, folders, out_dir, notes, out, err) -> int:
+def _after_store_failure(exc, args, out_dir, notes, out, err) -> int:
     """The batch finished without its store: write the reports if possible, then say what
     failed. Exit EXIT_OUTPUT either way."""
     results = exc.results
-    if folders:
-        results = add_stem_sets(folders, args.mix, profile, results, None, args.fresh, args.layout)
     try:
         _report(out_dir, exc.run, results, notes, out, err, stored=False, strict=args.strict)
         where = f"the reports in {out_dir} hold all {len(exc.results)} files of this run"

@@ -52,6 +52,29 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+#: Library parameter -> the flag that sets it (UsageError.parameter).
+FLAG_FOR_PARAMETER = {
+    "jobs": "--jobs",
+    "timeout_s": "--timeout-s",
+    "cluster": "--cluster",
+    "mix": "--mix",
+    "layout": "--layout",
+    "memory_mb": "--worker-memory-mb",
+}
+
+
+def in_flag_words(exc: Exception) -> str:
+    """The message with a library parameter's name replaced by the command-line flag."""
+    text = str(exc)
+    parameter = getattr(exc, "parameter", None)
+    flag = FLAG_FOR_PARAMETER.get(parameter or "")
+    if flag and text.startswith(f"{parameter}:"):
+        return flag + text[len(parameter) :]
+    if flag and text.startswith(f"{parameter} "):  # "layout 'X Y': ..."
+        return f"{flag}: {text}"
+    return text
+
+
 def main(
     argv: list[str] | None = None, out: TextIO | None = None, err: TextIO | None = None
 ) -> int:
@@ -72,7 +95,7 @@ def main(
     except CheckerError as exc:
         if args.debug:
             traceback.print_exc(file=err)
-        print(for_terminal(f"deliverycheck: {exc}"), file=err)
+        print(for_terminal(f"deliverycheck: {in_flag_words(exc)}"), file=err)
         return exc.exit_code
     except KeyboardInterrupt:
         print("deliverycheck: interrupted", file=err)

@@ -1,4 +1,4 @@
-"""Reading deliverables: what counts as audio (``discover.classify``), content sniffing, the
+"""Reading deliverables: what counts as audio (``intake.classify``), walking the inputs (``discover``), content sniffing, the
 block reader (``audio``), RIFF/WAV chunks, channel layouts, container length checks, metadata
 carriers and lossy-stream facts.
 

@@ -144,7 +144,8 @@ def check_layout_text(text: str) -> tuple[str, ...]:
     if unknown or not labels:
         raise UsageError(
             f"layout {text!r}: unknown channel label(s) {', '.join(unknown) or '(none given)'} "
-            f"(expected some of {', '.join(sorted(SPEAKERS))})"
+            f"(expected some of {', '.join(sorted(SPEAKERS))})",
+            parameter="layout",
         )
     return labels
 
@@ -157,7 +158,8 @@ def parse_layout(text: str, channels: int) -> Layout:
     if len(labels) != channels:
         raise UsageError(
             f"layout {text!r}: {len(labels)} labels for a {channels}-channel file "
-            f"(expected {channels})"
+            f"(expected {channels})",
+            parameter="layout",
         )
     return Layout(labels, "given")
 

@@ -231,7 +231,7 @@ def _lead(values: Mapping[str, Any], key: str | None) -> str:
 
 
 def _none_is_result(d, values: Mapping[str, Any], key: str) -> bool:
-    """None is a result, not a failure to measure (see limitdefs: none_means_ok, ran)."""
+    """None is a result, not a failure to measure (see profile.catalogue: none_means_ok, ran)."""
     if not d.none_means_ok or key not in values:
         return False
     return d.ran is None or _present(values.get(d.ran))

@@ -27,7 +27,15 @@ class CheckerError(Exception):
 
 
 class UsageError(CheckerError):
+    """A caller's argument is wrong. Library code words the message in terms of the
+    parameter (``jobs: 0 (expected >= 1)``) and names it in ``parameter``; the command line
+    rewrites the leading ``parameter:`` to its own flag (``--jobs:``)."""
+
     exit_code = EXIT_USAGE
+
+    def __init__(self, message: str, parameter: str | None = None):
+        super().__init__(message)
+        self.parameter = parameter
 
 
 class ProfileError(CheckerError):

@@ -16,6 +16,21 @@ import numpy as np
 MAX_POINTS = 2000
 
 
+def bucket_step(n: int, max_points: int) -> int:
+    """Values per bucket so that ``n`` values make at most ``max_points`` buckets."""
+    return max(1, math.ceil(n / max_points))
+
+
+def bucket_max(values: np.ndarray, step: int) -> np.ndarray:
+    """The maximum of each run of ``step`` values (the last bucket may be shorter); NaN counts
+    as no level (-inf). The one max-preserving reduction: storage and the report's graphs."""
+    v = np.asarray(values, dtype=np.float64)
+    m = math.ceil(v.size / step)
+    padded = np.full(m * step, -np.inf)
+    padded[: v.size] = np.where(np.isnan(v), -np.inf, v)
+    return padded.reshape(m, step).max(axis=1)
+
+
 def reduce_series(values: np.ndarray, hop_s: float, max_points: int = MAX_POINTS):
     """Max-preserving reduction. Returns (times_s, values) as lists; -inf -> None.
 
@@ -26,12 +41,9 @@ def reduce_series(values: np.ndarray, hop_s: float, max_points: int = MAX_POINTS
     n = v.size
     if n == 0:
         return [], []
-    step = max(1, math.ceil(n / max_points))
-    m = math.ceil(n / step)
-    padded = np.full(m * step, -np.inf)
-    padded[:n] = v
-    buckets = padded.reshape(m, step).max(axis=1)
-    times = (np.arange(m) * step + 1) * hop_s
+    step = bucket_step(n, max_points)
+    buckets = bucket_max(v, step)
+    times = (np.arange(buckets.size) * step + 1) * hop_s
     out = [None if not np.isfinite(b) else round(float(b), 3) for b in buckets]
     return [round(float(t), 4) for t in times], out
 

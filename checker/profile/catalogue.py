@@ -4,7 +4,7 @@ Each entry says which profile key sets the limit, which measured value it
 judges, how (``kind``), in which unit, in which profile section it lives, where
 in the file the violation is (``position``), and what to do about it (``hint``).
 Adding a simple min/max limit on any flat measured value is one entry here;
-profiles.py validates it and rules.py evaluates it without further code.
+profile/syntax.py validates it and judge/rules.py evaluates it without further code.
 
 Kinds:
   max / min      measured <= value / measured >= value (optional ``warn_value``)

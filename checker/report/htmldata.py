@@ -9,24 +9,22 @@ from __future__ import annotations
 
 import json
 import math
-import re
 from typing import Any
 
 import numpy as np
 
 from checker.model.results import FileResult, RunInfo
-from checker.model.timeline import Timeline
-from checker.report.jsonl import safe
+from checker.model.serial import json_safe
+from checker.model.timeline import Timeline, bucket_max, bucket_step
+from checker.profile.catalogue import BY_KEY, FILE, MAX, TARGET
 
 #: Points per series in the embedded graph data (the SVG is about 700 px wide).
 GRAPH_POINTS = 480
 
-_PLUS_MINUS = re.compile(r"^\s*(-?\d+(?:\.\d+)?)\s*(?:\+-|\+/-|±)\s*(\d+(?:\.\d+)?)")
-
 
 def embed_json(value: Any) -> str:
     """JSON text that is inert inside an HTML ``<script type="application/json">`` element."""
-    text = json.dumps(safe(value), allow_nan=False, ensure_ascii=False, separators=(",", ":"))
+    text = json.dumps(json_safe(value), allow_nan=False, ensure_ascii=False, separators=(",", ":"))
     return (
         text.replace("&", "\\u0026")
         .replace("<", "\\u003c")
@@ -53,7 +51,7 @@ def reduce_timeline(timeline: Timeline | None, max_points: int = GRAPH_POINTS) -
         return None
     times = np.asarray(timeline.times_s, dtype=np.float64)
     n = times.size
-    step = max(1, math.ceil(n / max_points))
+    step = bucket_step(n, max_points)
     m = math.ceil(n / step)
     kept = times[::step][:m]
     out: dict[str, Any] = {"n": m}
@@ -63,10 +61,10 @@ def reduce_timeline(timeline: Timeline | None, max_points: int = GRAPH_POINTS) -
     else:
         out["t"] = np.round(kept, 3).tolist()
     for name, values in timeline.series.items():
-        v = np.full(m * step, -np.inf)
-        given = np.array(values[:n], dtype=float)  # None -> NaN
-        v[: given.size] = np.where(np.isfinite(given), given, -np.inf)
-        buckets = v.reshape(m, step).max(axis=1)
+        given = np.full(n, -np.inf)
+        level = np.array(values[:n], dtype=float)  # None -> NaN: no level
+        given[: level.size] = level
+        buckets = bucket_max(given, step)
         finite = np.isfinite(buckets)
         tenths = np.round(np.where(finite, buckets, 0.0) * 10).astype(np.int64).tolist()
         for k in np.flatnonzero(~finite).tolist():
@@ -75,63 +73,45 @@ def reduce_timeline(timeline: Timeline | None, max_points: int = GRAPH_POINTS) -
     return out
 
 
-def profile_limits_for_graph(run: RunInfo) -> dict[str, float | None]:
-    """Target band, true-peak ceiling and loudness maxima read from the profile's limits.
+#: What a file's graph draws, by the catalogue's meaning of a limit: (measured key, kind) ->
+#: field. Only file-scope limits count (a stem set's sum or a downmix has its own values).
+GRAPH_LINES: dict[tuple[str, str], str] = {
+    ("integrated_lufs", TARGET): "target_lufs",
+    ("true_peak_dbtp", MAX): "ceiling_dbtp",
+    ("max_short_term_lufs", MAX): "short_term_max_lufs",
+    ("max_momentary_lufs", MAX): "momentary_max_lufs",
+}
 
-    Accepts the shapes a limit can take: a target with a ``tolerance`` field (the shape of
-    ``Profile.limits_table()``), ``"-23.0 +- 1.0"`` text, a ``[low, high]`` pair, a
-    ``{"target", "tolerance"}`` or ``{"min", "max"}`` mapping, or separate numeric limits
-    whose keys name integrated loudness and target / tolerance / min / max.
-    """
-    target = tol = low = high = ceiling = short_max = momentary_max = None
+
+def profile_limits_for_graph(run: RunInfo) -> dict[str, float | None]:
+    """Target band, true-peak ceiling and loudness maxima of the run's profile, each found by
+    what the limit catalogue says the limit judges (checker.profile.catalogue), never by its
+    name. Rows are ``Profile.limits_table()`` dicts; a key the catalogue does not know is
+    ignored."""
+    got: dict[str, float | None] = {field: None for field in GRAPH_LINES.values()}
+    tolerance = None
     for limit in run.profile_limits:
-        key = str(limit.get("key", "")).lower()
-        value = limit.get("value")
-        number = _finite(value)
-        # Per-file levels only: not declared_* (header checks) nor sum_*/set_* (stem sets).
-        if (
-            key.startswith("true_peak")
-            and ("max" in key or "ceiling" in key)
-            and number is not None
-        ):
-            ceiling = number
-        if key.startswith(("short_term", "max_short_term")) and "max" in key and number is not None:
-            short_max = number
-        if key.startswith(("momentary", "max_momentary")) and "max" in key and number is not None:
-            momentary_max = number
-        if not key.startswith("integrated"):
+        definition = BY_KEY.get(str(limit.get("key", "")))
+        if definition is None or definition.scope != FILE:
             continue
-        if _finite(limit.get("tolerance")) is not None:
-            tol = _finite(limit.get("tolerance"))
-        if isinstance(value, str) and (match := _PLUS_MINUS.match(value)):
-            target, tol = float(match.group(1)), float(match.group(2))
-        elif isinstance(value, (list, tuple)) and len(value) == 2:
-            low, high = _finite(value[0]), _finite(value[1])
-        elif isinstance(value, dict):
-            target = _finite(value.get("target", target))
-            tol = _finite(value.get("tolerance", tol))
-            low = _finite(value.get("min", low))
-            high = _finite(value.get("max", high))
-        elif number is not None:
-            if "tolerance" in key:
-                tol = number
-            elif "min" in key:
-                low = number
-            elif "max" in key:
-                high = number
-            else:
-                target = number
-    if target is not None and tol is not None:
-        low, high = target - tol, target + tol
-    elif target is None and low is not None and high is not None:
-        target = (low + high) / 2
+        field = GRAPH_LINES.get((definition.measure, definition.kind))  # type: ignore[arg-type]
+        number = _finite(limit.get("value"))
+        if field is None or number is None:
+            continue
+        got[field] = number
+        if field == "target_lufs":
+            tolerance = _finite(limit.get("tolerance"))
+    target = got["target_lufs"]
+    low = high = None
+    if target is not None and tolerance is not None:
+        low, high = target - tolerance, target + tolerance
     return {
         "target_lufs": target,
         "band_low_lufs": low,
         "band_high_lufs": high,
-        "ceiling_dbtp": ceiling,
-        "short_term_max_lufs": short_max,
-        "momentary_max_lufs": momentary_max,
+        "ceiling_dbtp": got["ceiling_dbtp"],
+        "short_term_max_lufs": got["short_term_max_lufs"],
+        "momentary_max_lufs": got["momentary_max_lufs"],
     }
 
 
@@ -177,7 +157,7 @@ def file_detail(result: FileResult, profile: dict[str, float | None]) -> dict[st
     """Everything the detail view shows for one file, as JSON-safe plain data."""
     m = result.measurement
     verdict = result.verdict
-    detail = safe(
+    detail = json_safe(
         {
             "path": result.path,
             "kind": result.kind,
@@ -192,6 +172,6 @@ def file_detail(result: FileResult, profile: dict[str, float | None]) -> dict[st
             "marks": graph_marks(result),
         }
     )
-    # Already JSON-ready (finite rounded floats and None): kept out of safe() for speed.
+    # Already JSON-ready (finite rounded floats and None): kept out of json_safe() for speed.
     detail["timeline"] = reduce_timeline(m.timeline if m else None)
     return detail

@@ -36,6 +36,7 @@ from checker.model.names import readable
 from checker.model.results import FileResult, RunInfo
 from checker.model.verdict import ERROR
 from checker.run.progress import Progress
+from checker.run.stemsets import stem_set_folders, with_stem_sets
 from checker.run.store import FileIdentity, Store, open_store
 from checker.run.workers import (
     DEFAULT_MEMORY_MB,
@@ -217,13 +218,17 @@ def run_batch(
     on_note: Callable[[str], Any] | None = None,
     store: Store | None = None,
     layout: str | None = None,
+    mix: str | None = None,
 ) -> tuple[RunInfo, list[FileResult]]:
     """Check every audio file under ``paths`` against ``profile``; see the module doc.
-    ``layout``: the channel order of files with as many channels (else the profile's)."""
+    ``layout``: the channel order of files with as many channels (else the profile's).
+    ``mix``: a reference mix; the one folder in ``paths`` is then a stem set (folders are
+    stem sets anyway when the profile has set limits: checker.run.stemsets)."""
     if timeout_s is not None and not timeout_s > 0:
-        raise UsageError(f"--timeout-s: timeout_s = {timeout_s} (expected > 0)")
+        raise UsageError(f"timeout_s: {timeout_s} (expected > 0)", parameter="timeout_s")
     if jobs is not None and int(jobs) < 1:
-        raise UsageError(f"--jobs: jobs = {jobs} (expected >= 1)")
+        raise UsageError(f"jobs: {jobs} (expected >= 1)", parameter="jobs")
+    folders = stem_set_folders([str(p) for p in paths], profile, mix)
     # The Dask path sizes itself (local:N, or the scheduler's workers): no cap there.
     jobs = capped_jobs(None if jobs is None else int(jobs), None if cluster else on_note)
     evaluate = evaluate or _default_evaluate()
@@ -300,7 +305,7 @@ def run_batch(
             pool = LocalPool(
                 workers, memory_mb=memory_mb, measure_fn=measure_fn, timeout_s=timeout_s
             )
-        outcomes = pool.run(tasks, options)
+        outcomes = pool.run(tasks, options, progress.audio)  # seconds, also within files
         try:
             for task, outcome in outcomes:
                 ident = idents[task.index]
@@ -310,17 +315,25 @@ def run_batch(
                     store.put_measurement(ident, okey, m)
                     remark = found.remarks.get(task.path)
                     result = _judge(shown, m, profile, evaluate, remark)
-                    audio_s = m.get("duration_s")
                 else:
                     _, message, retry = outcome
                     message = readable(message)
                     store.put_error(ident, ENGINE_VERSION, okey, message, retry)
                     result = FileResult.failed(shown, message)
-                    audio_s = None
                 _keep(store, run, results, result)
-                progress.advance(audio_s, measured=True)
+                progress.advance(measured=True)
         finally:
             outcomes.close()  # stops and reaps the workers
+        ordered = sorted(results.values(), key=lambda r: (os.path.normcase(r.path), r.path))
+        if folders:
+
+            def keep_set(row: FileResult, from_store: bool) -> None:
+                store.put_result(run.run_id, row)
+                progress.count_set(stored=from_store)
+
+            ordered = with_stem_sets(
+                folders, mix, profile, ordered, options, okey, store, fresh, on_set=keep_set
+            )
         run = dataclasses.replace(run, finished_at=_now())
         store.finish_run(run)
     except KeyboardInterrupt:
@@ -333,7 +346,6 @@ def run_batch(
         store.group_writes(1)
         if own_store:
             store.store.close()
-    ordered = sorted(results.values(), key=lambda r: (os.path.normcase(r.path), r.path))
     if store.failure is not None:
         raise StoreFailed(str(store.failure), run, ordered)
     return run, ordered

@@ -1,18 +1,21 @@
 """Progress of a batch on stderr: files done, where they came from, audio seconds per second.
 
 - On a terminal: one line redrawn in place (at most every ``min_interval_s``), and once a
-  second even when no file finishes, so the elapsed time moves during a long file.
+  second even when no file finishes, so the figures move during a long file.
 - Not a terminal (a pipe, a CI log): a full line every ``log_every_s`` seconds while the
   batch runs, and one final line.
 - ``quiet``: nothing.
 
-The line reads ``checking: 3/15 files (measured 1, from the store 2), 1,800 s of audio at
-95.2 s/s, elapsed 0:00:19, ETA 0:01:02``: the speed is seconds of audio measured per
-wall-clock second (files from the store are not counted in it).
+The line reads ``checking: 3/15 files (measured 1, from the store 2), 1,800 of ~5,400 s of
+audio at 95.2 s/s, elapsed 0:00:19, ETA 0:00:38``: seconds of audio measured so far (files
+still being read count with what their workers have decoded: ``AudioLedger``) of the audio
+to measure ("~" while part of it is estimated from file sizes), and the speed in seconds of
+audio per wall-clock second (files from the store are not counted in either).
 """
 
 from __future__ import annotations
 
+import math
 import threading
 import time
 from collections.abc import Callable
@@ -24,6 +27,108 @@ def _clock(seconds: float) -> str:
     h, rest = divmod(seconds, 3600)
     m, s = divmod(rest, 60)
     return f"{h}:{m:02d}:{s:02d}"
+
+
+class AudioLedger:
+    """Seconds of audio of the files a batch measures, keyed by the task's index.
+
+    A file is planned (its size in bytes), then started (the seconds its header declares,
+    when it gives them, and ``live``: a reader of the seconds decoded so far), then
+    finished (the seconds decoded; ``whole=False`` for a file that failed part-way, which
+    then counts with what was decoded). The local pool reports all three
+    (checker/run/workers.py); the Dask pool only plans and finishes. The total is exact
+    once every unfinished file has a declared length; until then the rest is estimated
+    from file sizes at the seconds per byte of the files whose length is known.
+
+    The pool calls it from the batch's thread, the progress line reads it from its own:
+    every method takes the lock. Sums are kept as files move, so reading costs only the
+    files in flight."""
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self._waiting: dict = {}  # planned, not started: key -> bytes
+        self._waiting_bytes = 0
+        self._open: dict = {}  # started: key -> (bytes, declared s or None, live or None)
+        self._done_s = 0.0  # finished files
+        self._finished: set = set()
+        self._rate_s = 0.0  # seconds and bytes of files whose length is known
+        self._rate_bytes = 0
+
+    def plan(self, key, size_bytes: int) -> None:
+        with self._lock:
+            if key in self._waiting or key in self._open or key in self._finished:
+                return
+            size = max(0, int(size_bytes or 0))
+            self._waiting[key] = size
+            self._waiting_bytes += size
+
+    def started(
+        self, key, declared_s: float | None = None, live: Callable[[], float] | None = None
+    ) -> None:
+        with self._lock:
+            if key in self._finished or key in self._open:
+                return
+            size = self._waiting.pop(key, 0)
+            self._waiting_bytes -= size
+            if declared_s is None or not (math.isfinite(declared_s) and declared_s >= 0):
+                declared_s = None
+            else:
+                self._rate_s += declared_s
+                self._rate_bytes += size
+            self._open[key] = (size, declared_s, live)
+
+    def finished(self, key, seconds: float | None, whole: bool = True) -> None:
+        with self._lock:
+            if key in self._finished:
+                return
+            seconds = max(0.0, float(seconds or 0.0))
+            self._finished.add(key)
+            if key in self._waiting:
+                size, declared = self._waiting.pop(key), None
+                self._waiting_bytes -= size
+            else:
+                size, declared, _ = self._open.pop(key, (0, None, None))
+            if declared is not None:  # its declared length calibrated the estimate
+                self._rate_s -= declared
+                self._rate_bytes -= size
+            if whole:
+                self._rate_s += seconds
+                self._rate_bytes += size
+            self._done_s += seconds
+
+    def done_s(self) -> float:
+        """Seconds measured: finished files, and what the files in flight have decoded."""
+        with self._lock:
+            return self._done_s + sum(_read(live) for _, _, live in self._open.values())
+
+    def total_s(self) -> tuple[float | None, bool]:
+        """(seconds of audio to measure, estimated?): None while nothing gives a length."""
+        with self._lock:
+            per_byte = self._rate_s / self._rate_bytes if self._rate_bytes > 0 else None
+            total, estimated = self._done_s, bool(self._waiting)
+            for size, declared, live in self._open.values():
+                if declared is None:
+                    estimated = True
+                    if per_byte is None:
+                        return None, True
+                    declared = size * per_byte
+                total += max(declared, _read(live))
+            if self._waiting:
+                if per_byte is None:
+                    return None, True
+                total += self._waiting_bytes * per_byte
+            return total, estimated
+
+    def planned(self) -> bool:
+        with self._lock:
+            return bool(self._waiting or self._open or self._finished)
+
+
+def _read(live: Callable[[], float] | None) -> float:
+    if live is None:
+        return 0.0
+    value = live()
+    return value if math.isfinite(value) and value > 0 else 0.0
 
 
 class Progress:
@@ -50,9 +155,12 @@ class Progress:
         self._now = clock
         self.total = 0
         self.done = 0
-        self.audio_s = 0.0
+        self.audio_s = 0.0  # audio of files counted by advance(audio_s), outside the ledger
+        self.audio = AudioLedger()  # what the pool reports, file by file and within files
         self.measured = 0  # files actually read this run
         self.stored = 0  # files whose measurement (or read error) came from the store
+        self.sets_measured = 0  # stem sets read this run
+        self.sets_stored = 0  # stem sets whose values came from the store
         self._t0 = clock()
         self._last_draw = -1e18
         self._width = 0
@@ -72,6 +180,8 @@ class Progress:
             self._thread.start()
 
     def advance(self, audio_s: float | None = None, measured: bool = False, stored=False) -> None:
+        """One more file done; ``audio_s``: its seconds when the pool did not report them
+        to ``self.audio`` (the batch's pools do)."""
         with self._lock:
             self.done += 1
             if measured:
@@ -82,16 +192,40 @@ class Progress:
                 self.stored += 1
         self._draw(force=self.tty and self.done == self.total)
 
+    def count_set(self, stored: bool) -> None:
+        """A stem set was judged (its values measured now, or from the store)."""
+        with self._lock:
+            if stored:
+                self.sets_stored += 1
+            else:
+                self.sets_measured += 1
+
+    def counts(self) -> dict[str, int]:
+        """What this run did, for the summary: files and stem sets measured or from the store."""
+        return {
+            "measured": self.measured,
+            "stored": self.stored,
+            "sets_measured": self.sets_measured,
+            "sets_stored": self.sets_stored,
+        }
+
     def line(self) -> str:
         elapsed = max(self._now() - self._t0, 1e-9)
         text = f"checking: {self.done}/{self.total} files"
         if self.measured or self.stored:
             text += f" (measured {self.measured}, from the store {self.stored})"
-        if self.audio_s > 0:
-            text += f", {self.audio_s:,.0f} s of audio at {self.audio_s / elapsed:,.1f} s/s"
+        done_s = self.audio_s + self.audio.done_s()
+        total_s, estimated = self.audio.total_s() if self.audio.planned() else (None, False)
+        if total_s is not None:
+            total_s = max(total_s + self.audio_s, done_s)
+        if done_s > 0:
+            of = "" if total_s is None else f" of {'~' if estimated else ''}{total_s:,.0f}"
+            text += f", {done_s:,.0f}{of} s of audio at {done_s / elapsed:,.1f} s/s"
         text += f", elapsed {_clock(elapsed)}"
         remaining = self.total - self.done
-        if self.done > 0 and remaining > 0:
+        if remaining > 0 and total_s is not None and done_s > 0:  # by audio: long files weigh more
+            text += f", ETA {_clock((total_s - done_s) / (done_s / elapsed))}"
+        elif self.done > 0 and remaining > 0:
             text += f", ETA {_clock(elapsed / self.done * remaining)}"
         return text
 

@@ -35,6 +35,7 @@ from checker.dsp.heap import keep_freed_memory
 from checker.dsp.threads import claim_process
 from checker.meters.base import MeasureOptions
 from checker.model.errors import CheckerError, UsageError
+from checker.run import live
 
 MIB = 1024 * 1024
 #: Default per-worker address-space ceiling (virtual memory, includes libraries).
@@ -84,9 +85,14 @@ def worker_measure_fn(workers: int, cores: int) -> Callable:
     return functools.partial(measure, read_ahead=True) if cores >= 2 * workers else measure
 
 
-def measure_task(path: str, options: MeasureOptions, measure_fn: Callable) -> Outcome:
-    """Measure one file; never raises. Runs in a worker (process pool or Dask)."""
+def measure_task(
+    path: str, options: MeasureOptions, measure_fn: Callable, on_frames: Callable | None = None
+) -> Outcome:
+    """Measure one file; never raises. Runs in a worker (process pool or Dask).
+    ``on_frames``: passed to a ``measure_fn`` that takes it (checker.run.live)."""
     try:
+        if on_frames is not None:
+            return ("ok", measure_fn(path, options, on_frames=on_frames))
         return ("ok", measure_fn(path, options))
     except CheckerError as exc:
         return ("error", str(exc), False)
@@ -139,12 +145,13 @@ def _die_with_parent() -> None:
             pass
 
 
-def _worker_main(conn, memory_mb, measure_fn) -> None:
+def _worker_main(conn, memory_mb, measure_fn, slot=None) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides how to stop
     _die_with_parent()
     claim_process()  # one thread per library pool: parallelism is the pool's workers
     keep_freed_memory()  # no page faults for every file's buffers again
     _limit_memory(memory_mb)
+    report = live.reporter(slot) if slot is not None and live.takes_on_frames(measure_fn) else None
     while True:
         try:
             msg = conn.recv()
@@ -153,9 +160,11 @@ def _worker_main(conn, memory_mb, measure_fn) -> None:
         if msg is None:
             return
         index, path, options = msg
+        if slot is not None:
+            slot.value = 0.0  # before "started": the parent reads it only after that
         try:
             conn.send(("started", index, probe_duration_s(path)))
-            conn.send(("done", index, measure_task(path, options, measure_fn)))
+            conn.send(("done", index, measure_task(path, options, measure_fn, report)))
         except (BrokenPipeError, OSError):
             return
 
@@ -164,8 +173,9 @@ class _Worker:
     def __init__(self, ctx, memory_mb, measure_fn):
         parent_conn, child_conn = ctx.Pipe(duplex=True)
         self.conn = parent_conn
+        self.slot = live.new_slot(ctx)  # seconds decoded of its file (checker.run.live)
         self.process = ctx.Process(
-            target=_worker_main, args=(child_conn, memory_mb, measure_fn), daemon=True
+            target=_worker_main, args=(child_conn, memory_mb, measure_fn, self.slot), daemon=True
         )
         self.process.start()
         child_conn.close()
@@ -239,7 +249,7 @@ class LocalPool:
         timeout_s: float | None = None,
     ):
         if jobs < 1:
-            raise UsageError(f"--jobs: jobs = {jobs} (expected >= 1)")
+            raise UsageError(f"jobs: {jobs} (expected >= 1)", parameter="jobs")
         from checker.analysis.onepass import measure
 
         self.jobs = jobs
@@ -247,11 +257,19 @@ class LocalPool:
         self.measure_fn = measure_fn or measure
         self.timeout_s = timeout_s
         self.workers_started = 0
+        self.ledger = None
 
-    def run(self, tasks: list[Task], options: MeasureOptions) -> Iterator[tuple[Task, Outcome]]:
+    def run(
+        self, tasks: list[Task], options: MeasureOptions, ledger=None
+    ) -> Iterator[tuple[Task, Outcome]]:
+        """``ledger`` (checker.run.progress.AudioLedger): told each file's size, declared
+        length, seconds decoded as it goes and seconds at the end."""
         pending = deque(tasks)
         if not pending:
             return
+        self.ledger = ledger
+        for task in tasks if ledger is not None else ():
+            ledger.plan(task.index, task.size_bytes)
         ctx = _context()
         workers: list[_Worker] = []
         broken = 0  # workers found dead before they got a file
@@ -275,6 +293,8 @@ class LocalPool:
                             pending.appendleft(task)
                         else:
                             code = _exit_text(w.process.exitcode)
+                            if ledger is not None:
+                                ledger.finished(task.index, 0.0, whole=False)
                             yield (
                                 task,
                                 ("error", f"{task.path}: no worker would start ({code})", True),
@@ -292,6 +312,8 @@ class LocalPool:
                     if result is None:
                         continue
                     task, outcome, replace = result
+                    if ledger is not None:
+                        ledger.finished(task.index, *live.outcome_seconds(outcome, w.slot.value))
                     if replace:
                         w.kill()
                         workers.remove(w)
@@ -322,6 +344,8 @@ class LocalPool:
                     if kind == "started":  # the file's own clock starts now
                         w.started = time.monotonic()
                         w.deadline = w.started + time_limit_s(task, payload, self.timeout_s)
+                        if self.ledger is not None:
+                            self.ledger.started(task.index, payload, live.reader(w.slot))
                     elif kind == "done":
                         w.task = None
                         return task, payload, False
@@ -348,7 +372,7 @@ class LocalPool:
                 (
                     "error",
                     f"{task.path}: measuring took longer than the time limit "
-                    f"({limit:.0f} s; see --timeout-s) and was stopped",
+                    f"({limit:.0f} s) and was stopped",
                     True,
                 ),
                 True,
@@ -368,7 +392,9 @@ def parse_cluster(address: str) -> tuple[str, int | None]:
         except ValueError:
             n = 0
         if n < 1:
-            raise UsageError(f"--cluster: workers = {text!r} (expected local:N with N >= 1)")
+            raise UsageError(
+                f"cluster: workers = {text!r} (expected local:N with N >= 1)", parameter="cluster"
+            )
         return "local", n
     return address, None
 
@@ -400,8 +426,9 @@ class DaskPool:
             from dask.distributed import Client, LocalCluster
         except ImportError:
             raise UsageError(
-                "--cluster: dask.distributed is not installed "
-                "(expected: pip install 'deliverycheck[cluster]')"
+                "cluster: dask.distributed is not installed "
+                "(expected: pip install 'deliverycheck[cluster]')",
+                parameter="cluster",
             ) from None
         if self.address == "local":
             cluster = LocalCluster(
@@ -417,14 +444,21 @@ class DaskPool:
             return Client(self.address, timeout="30s"), None
         except Exception as exc:
             raise UsageError(
-                f"--cluster: cannot reach the Dask scheduler at {self.address} ({exc})"
+                f"cluster: cannot reach the Dask scheduler at {self.address} ({exc})",
+                parameter="cluster",
             ) from None
 
-    def run(self, tasks: list[Task], options: MeasureOptions) -> Iterator[tuple[Task, Outcome]]:
+    def run(
+        self, tasks: list[Task], options: MeasureOptions, ledger=None
+    ) -> Iterator[tuple[Task, Outcome]]:
+        """``ledger``: told each file's size and, when it ends, its seconds (per file
+        only: Dask tasks report nothing while they run)."""
         if not tasks:
             return
         from dask.distributed import as_completed
 
+        for task in tasks if ledger is not None else ():
+            ledger.plan(task.index, task.size_bytes)
         client, cluster = self._client()
         try:
             futures = {}
@@ -442,6 +476,8 @@ class DaskPool:
                         f"{task.path}: cluster task failed ({type(exc).__name__}: {text})",
                         True,
                     )
+                if ledger is not None:
+                    ledger.finished(task.index, *live.outcome_seconds(outcome, 0.0))
                 yield task, outcome
         finally:
             client.close()

@@ -46,7 +46,7 @@ import numpy as np
 
 from checker.analysis.onepass import resolve_layout
 from checker.io.audio import DEFAULT_BLOCK_FRAMES, Block, StreamInfo, read_blocks
-from checker.io.discover import is_audio
+from checker.io.intake import is_audio
 from checker.meters.base import MeasureOptions
 from checker.model.errors import AudioReadError
 from checker.model.measurement import FlatValues, Measurement
@@ -71,7 +71,7 @@ class StemSet:
 def stem_set_from_folder(folder: str, mix_path: str | None = None) -> StemSet:
     """The audio files directly inside ``folder`` (not recursive), sorted by name.
 
-    What is audio is decided by checker.io.discover.classify, the same function that
+    What is audio is decided by checker.io.intake.classify, the same function that
     decides which files a batch measures: every file it counts as audio is a stem
     (one it cannot read makes the set an error, never a smaller sum that passes);
     text, images, sidecars and ``._*`` resource forks are not. The mix is left out

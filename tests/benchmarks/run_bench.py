@@ -12,7 +12,8 @@ Per file (threads used by each row in brackets): (a) decode only [1]; (b)
 (b1) the same analysis on one thread, what a batch worker spends per file [1]; (b0)
 b with the compiled kernels off [2]; (c) pyloudnorm integrated [1]; (d) pyebur128
 integrated + LRA + true peak + sample peak [1]; (d1) pyebur128 integrated only [1].
-Then: a batch with --jobs 1 and --jobs 2, the same with a second process spinning
+Then: the progress callback's cost (b1 with and without it, per block); a batch with
+--jobs 1 and --jobs 2, the same with a second process spinning
 on one core; the per-file overhead of one-second files against the same audio as
 one file (--jobs 1); with --long, peak RSS of a 3-hour file against a 10-minute one.
 
@@ -244,6 +245,38 @@ def truepeak_skip(path: Path) -> tuple[int, int]:
     return int(out[0]), int(out[1])
 
 
+def bench_progress(path: Path, reps: int) -> None:
+    """Progress within a file: b1 with and without a worker's on_frames callback, runs
+    alternating, at the engine's block size and at 4,800-frame blocks (the most blocks,
+    so the most calls); and the callback's own cost per call against a block's."""
+    w = str(HERE / "workloads.py")
+    info = sf.info(str(path))
+    dur = info.frames / info.samplerate
+    print(f"\nprogress within a file ({path.name}, {dur / 60:.1f} min), b1 [1 thread]:")
+    for block in (int(engine_block(path)), 4_800):
+        runs: dict[str, list[Run]] = {"without": [], "with": []}
+        for _ in range(reps):
+            runs["without"].append(run_once([PY, w, "blocks", str(path), str(block)]))
+            runs["with"].append(run_once([PY, w, "blocks-progress", str(path), str(block)]))
+        a, b = medians(runs["without"]), medians(runs["with"])
+        blocks = -(-info.frames // block)
+        print(
+            f"  {block:>7}-frame blocks ({blocks} calls): CPU without {a.cpu_s:.2f} s, with "
+            f"{b.cpu_s:.2f} s, ratio {b.cpu_s / a.cpu_s:.3f}; wall ratio {b.wall_s / a.wall_s:.3f}"
+        )
+        if block == 4_800:
+            per_call_ns = float(
+                subprocess.run(
+                    [PY, w, "onframes", str(path)], capture_output=True, text=True, check=True
+                ).stdout
+            )
+            per_block_ns = 1e9 * a.cpu_s / blocks
+            print(
+                f"  callback {per_call_ns:.0f} ns per call, a 4,800-frame block "
+                f"{per_block_ns / 1000:.0f} us: {100 * per_call_ns / per_block_ns:.3f} % per block"
+            )
+
+
 def bench_memory(long_file: Path, short_file: Path, reps: int) -> None:
     """Peak RSS of (b) on a 3-hour file against a 10-minute one: streaming keeps it flat."""
     print("\nmemory: deliverycheck measure (2 threads), peak RSS (MB) by file length")
@@ -405,6 +438,7 @@ def main(argv: list[str] | None = None) -> int:
         make_file(c / f"batch-{i:02d}-{scale:g}.wav", 10 * scale, 2, 48_000, "PCM_24", False)
         for i in range(batch)
     ]
+    bench_progress(files[3], max(1, min(reps, 5)))
     bench_jobs(ten, max(1, min(reps, 3)), c / "batch-out")
     shorts, joined = make_shorts(c / f"clips-{clips}", clips)
     bench_overhead(shorts, joined, max(1, min(reps, 5)), c / "clips-out")

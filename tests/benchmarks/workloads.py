@@ -72,6 +72,32 @@ def measure_all(path: str) -> None:
         measure(str(f))
 
 
+def measure_blocks(path: str, block_frames: int, report: bool) -> None:
+    """(p) b1 at a given block size, with or without a batch worker's progress callback
+    (``on_frames`` writing seconds to a shared double after every block, checker/run/live.py)."""
+    import multiprocessing as mp
+
+    from checker.analysis.onepass import measure
+    from checker.meters.base import MeasureOptions
+    from checker.run.live import new_slot, reporter
+
+    on_frames = reporter(new_slot(mp.get_context("spawn"))) if report else None
+    measure(path, MeasureOptions(block_frames=block_frames), on_frames=on_frames)
+
+
+def on_frames_cost(calls: int = 200_000) -> None:
+    """Nanoseconds per call of a worker's progress callback, printed (median of 5 timings)."""
+    import multiprocessing as mp
+    import statistics
+    import timeit
+
+    from checker.run.live import new_slot, reporter
+
+    report = reporter(new_slot(mp.get_context("spawn")))
+    times = timeit.repeat(lambda: report(480_000, 48_000), number=calls, repeat=5)
+    print(f"{1e9 * statistics.median(times) / calls:.0f}")
+
+
 def truepeak_skip(path: str, block_frames: int) -> None:
     """True-peak chunks interpolated / seen (the skip bound's effect), printed as 'n m'."""
     from checker.io.audio import read_blocks
@@ -102,6 +128,10 @@ if __name__ == "__main__":
         measure_one_thread(path)
     elif which == "measureall":
         measure_all(path)
+    elif which in ("blocks", "blocks-progress"):
+        measure_blocks(path, frames, which == "blocks-progress")
+    elif which == "onframes":
+        on_frames_cost()
     elif which == "tpskip":
         truepeak_skip(path, frames)
     else:

@@ -244,6 +244,7 @@ def many_results(n: int):
     return out
 
 
+@pytest.mark.slow
 def test_five_thousand_rows_sort_and_filter(browser, tmp_path):
     results = many_results(5000)
     html = write_text_atomic(tmp_path / "report.html", render_html(make_run(), results, "now"))

@@ -21,6 +21,7 @@ from checker.analysis.onepass import measure
 from checker.io.discover import Discovery, discover
 from checker.model.verdict import ERROR, FAIL, PASS, Verdict
 from checker.run.batch import Interrupted, run_batch
+from checker.run.progress import Progress
 from checker.run.store import open_store
 
 # -- helpers -----------------------------------------------------------------------------
@@ -202,6 +203,7 @@ def test_changed_file_is_measured_again(tmp_path):
     assert second[0].measurement.frames == 96_000  # 2.0 s x 48 kHz
 
 
+@pytest.mark.slow
 def test_hung_worker_becomes_error_row_and_pool_goes_on(tmp_path):
     src = make_batch(
         tmp_path / "in", [("a.wav", 1.0), ("b-hang.wav", 1.0), ("c.wav", 1.0), ("d.wav", 1.0)]
@@ -224,6 +226,7 @@ def test_hung_worker_becomes_error_row_and_pool_goes_on(tmp_path):
         assert store.db.execute("SELECT retry FROM errors").fetchall() == [(1,)]
 
 
+@pytest.mark.slow
 def test_crashed_worker_becomes_error_row_and_pool_goes_on(tmp_path):
     src = make_batch(
         tmp_path / "in", [("a.wav", 1.0), ("b-crash.wav", 1.0), ("c.wav", 1.0), ("d.wav", 2.0)]
@@ -242,6 +245,7 @@ def test_crashed_worker_becomes_error_row_and_pool_goes_on(tmp_path):
     assert "worker process died" in crashed.error and "SIGKILL" in crashed.error
 
 
+@pytest.mark.slow
 def test_memory_ceiling_becomes_error_row(tmp_path):
     src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b-greedy.wav", 1.0), ("c.wav", 1.0)])
     _, results = run_batch(
@@ -299,11 +303,19 @@ def test_dask_local_cluster_matches_process_pool(tmp_path):
     src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b.wav", 2.0), ("c.wav", 1.5)])
     (src / "bad.wav").write_text("not audio")
     _, local = run_batch([src], StubProfile(), tmp_path / "pool", jobs=2, evaluate=duration_rule)
+    progress = Progress(None)
     _, dask = run_batch(
-        [src], StubProfile(), tmp_path / "dask", cluster="local:1", evaluate=duration_rule
+        [src],
+        StubProfile(),
+        tmp_path / "dask",
+        cluster="local:1",
+        evaluate=duration_rule,
+        progress=progress,
     )
     assert [r.to_dict(timeline=True) for r in dask] == [r.to_dict(timeline=True) for r in local]
     assert {r.status for r in dask} == {PASS, FAIL, ERROR}
+    # The Dask pool reports audio per file: 1.0 + 2.0 + 1.5 s, the unreadable file adds none.
+    assert progress.audio.done_s() == 4.5 and progress.audio.total_s() == (4.5, False)
 
 
 def test_workers_use_a_second_thread_only_with_cores_to_spare():

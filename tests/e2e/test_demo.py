@@ -15,6 +15,9 @@ import pytest
 
 from checker.cli.main import main
 
+#: The demo runs whole batches (tens of seconds each).
+pytestmark = pytest.mark.slow
+
 ROOT = Path(__file__).resolve().parents[2]
 GENERATOR = ROOT / "demo" / "generate.py"
 PROMISES = ROOT / "demo" / "README.md"

@@ -22,7 +22,8 @@ from corpus import INTAKE, M4A_HEAD, png_bytes, sine_pcm16, wav_bytes
 from signals import sine, write
 
 from checker.cli.main import main
-from checker.io.discover import MEASURE, NOT_CHECKED, REFUSE, classify, discover
+from checker.io.discover import discover
+from checker.io.intake import MEASURE, NOT_CHECKED, REFUSE, classify
 from checker.io.sniff import NOT_AUDIO, READABLE, UNKNOWN, UNSUPPORTED, sniff
 from checker.model.names import for_terminal, readable
 from checker.run.batch import capped_jobs, run_batch

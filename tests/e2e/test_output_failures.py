@@ -166,6 +166,7 @@ def test_a_full_disk_before_the_run_is_named(tmp_path):
 
 
 @needs_namespace
+@pytest.mark.slow
 def test_a_disk_that_fills_during_the_run_is_named(tmp_path):
     # 512 KiB with 120 KiB left: the store opens, then fills while measurements are stored
     # (each holds a loudness timeline), and the reports find no room either.

@@ -29,9 +29,10 @@ from numpy.testing import assert_allclose
 from test_rules import one_limit_profile
 
 from checker.analysis.onepass import measure
-from checker.io.carriers import empty_carrier_values, read_carriers, safe_xml
+from checker.io.carriers import empty_carrier_values, read_carriers
 from checker.io.oggpages import read_head, read_page
 from checker.io.wavchunks import read_wav_header
+from checker.io.xmlchunks import safe_xml
 from checker.judge.rules import evaluate
 
 # ---------------------------------------------------------------- builders

@@ -30,13 +30,12 @@ from checker.report.cells import PER_CHANNEL_KEYS
 from checker.report.csv_out import neutralise
 from checker.report.frame import LEAD_COLUMNS, MEASUREMENT_COLUMNS, results_frame, sorted_results
 from checker.report.htmldata import embed_json, profile_limits_for_graph, reduce_timeline
-from checker.report.jsonl import dumps as jsonl_dumps
 
 HOSTILE = "stems/<img src=x onerror=alert(1)>.wav"
 
 LIMITS = (
-    {"key": "integrated_lufs", "value": "-23.0 +- 1.0", "unit": "LUFS", "severity": "fail",
-     "source": "EBU R 128 (2020) s. 2.1 and 2.2 (from memory)"},
+    {"key": "integrated_target_lufs", "value": -23.0, "tolerance": 1.0, "text": "-23.0 +- 1.0",
+     "unit": "LUFS", "severity": "fail", "source": "EBU R 128 (2020) s. 2.1 and 2.2 (from memory)"},
     {"key": "true_peak_max_dbtp", "value": -1.0, "unit": "dBTP", "severity": "fail",
      "source": "EBU R 128 (2020) s. 2.5 (from memory)"},
     {"key": "sample_rates_hz", "value": [48000], "unit": "Hz", "severity": "fail",
@@ -380,15 +379,17 @@ def test_graph_limits_from_the_profile_table():
         -14.5,
     )
     assert (got["ceiling_dbtp"], got["short_term_max_lufs"]) == (None, -18.0)
-    separate = RunInfo("r", "t", (), "p", "P", profile_limits=(
-        {"key": "integrated_min_lufs", "value": -20.0}, {"key": "integrated_max_lufs", "value": -18.0},
+    # Meaning comes from the catalogue, not the key's words: the true peak after an encode,
+    # of a downmix or of a stem sum is not the file's ceiling; an unknown key is ignored.
+    others = RunInfo("r", "t", (), "p", "P", profile_limits=(
+        {"key": "encoded_true_peak_max_dbtp", "value": -2.0},
+        {"key": "downmix_true_peak_max_dbtp", "value": -1.5},
+        {"key": "sum_true_peak_max_dbtp", "value": 0.0},
+        {"key": "integrated_lufs_guess", "value": -20.0},
+        {"key": "true_peak_max_dbtp", "value": -1.0},
     ))  # fmt: skip
-    got = profile_limits_for_graph(separate)
-    assert (got["target_lufs"], got["band_low_lufs"], got["band_high_lufs"]) == (
-        -19.0,
-        -20.0,
-        -18.0,
-    )
+    got = profile_limits_for_graph(others)
+    assert got["ceiling_dbtp"] == -1.0 and got["target_lufs"] is None
 
 
 def test_timeline_reduction_keeps_the_loudest_value():
@@ -409,13 +410,16 @@ def test_timeline_reduction_keeps_the_loudest_value():
 
 
 def test_jsonl_lines_are_the_shared_serialiser_text(written):
-    # results.jsonl uses a one-pass encoder; it must write exactly what checker.model.serial.dumps does.
+    # results.jsonl is written by the project's one JSON encoder, checker.model.serial.dumps.
     out, results, _ = written
     lines = (out / "results.jsonl").read_text(encoding="utf-8").splitlines()
     assert lines == [serial_dumps(r.to_dict(timeline=True)) for r in sorted_results(results)]
     odd = {"a": np.float64("nan"), "b": np.array([1.5, -np.inf]), "c": (np.int64(3), np.bool_(True)),
            "d": {"e": [float("inf"), None, "x"]}, 4: np.float32(0.25)}  # fmt: skip
-    assert jsonl_dumps(odd) == serial_dumps(odd)
+    # json_safe's rules: NaN -> null, -inf -> "-inf", numpy scalars and arrays -> Python values
+    assert serial_dumps(odd) == (
+        '{"a": null, "b": [1.5, "-inf"], "c": [3, true], "d": {"e": ["inf", null, "x"]}, "4": 0.25}'
+    )
 
 
 def test_html_never_carries_file_text_raw(written):

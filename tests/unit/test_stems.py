@@ -478,7 +478,7 @@ def test_a_set_is_the_audio_files_of_one_folder_without_the_mix(tmp_path):
     sf.write(str(folder / "mix.wav"), np.zeros((100, 1)), RATE)
     (folder / "notes.txt").write_text("x")
     # macOS copies leave '._' resource forks (AppleDouble magic 00 05 16 07) and .DS_Store
-    # beside the stems: checker.io.discover.classify says they are not audio.
+    # beside the stems: checker.io.intake.classify says they are not audio.
     (folder / "._b_bass.wav").write_bytes(b"\x00\x05\x16\x07" + bytes(60))
     (folder / ".DS_Store").write_bytes(b"\x00\x00\x00\x01Bud1" + bytes(60))
     (folder / "sub").mkdir()
