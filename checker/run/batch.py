@@ -48,8 +48,9 @@ from checker.run.workers import (
 )
 
 #: Per-file rows (a measurement or an error, and a verdict) per store transaction: a
-#: commit per file cost about 1 ms here; a SIGKILLed batch measures again at most the
-#: files of the open group (GROUP_ROWS / 2 measured files).
+#: commit per file cost about 1 ms here. A SIGKILLed batch measures again the files of the
+#: open group (at most GROUP_ROWS / 2 = 3) plus the files the workers had in hand (up to one
+#: per job): 4 of 12 in tests/e2e/test_check_cli.py's halfway kill with two jobs.
 GROUP_ROWS = 6
 
 
