@@ -3,4 +3,6 @@
 __version__ = "0.1.0"
 
 #: Bumped whenever a change alters any measured value; part of the store's cache key.
-ENGINE_VERSION = f"{__version__}+engine10"  # 7: containers; 8: carriers, lossy; 9: quiet parts; 10: programme span, parts, bext time reference
+ENGINE_VERSION = f"{__version__}+engine11"  # 7: containers; 8: carriers, lossy; 9: quiet parts;
+# 10: true-peak refinement compiled (fine sums in tap order: readings move by <= 1e-14 dB);
+# 11: programme span and parts (span requests only), bext time reference
