@@ -133,10 +133,12 @@ class AudioLedger:
 
 
 def _columns(stream) -> int:
+    """The terminal's width; a large number when unknown (a pseudo-terminal may say 0)."""
     try:
-        return max(20, os.get_terminal_size(stream.fileno()).columns)
+        columns = os.get_terminal_size(stream.fileno()).columns
     except (AttributeError, OSError, ValueError):
         return 10_000
+    return max(20, columns) if columns > 0 else 10_000
 
 
 def _read(live: Callable[[], float] | None) -> float:
