@@ -213,3 +213,22 @@ def test_measure_line_in_a_log_every_few_seconds_and_no_final_line_for_a_quick_r
         "measuring: 0/1 files, 20 of 100 s of audio at 4.0 s/s, elapsed 0:00:05, ETA 0:00:20",
         "measured: 1/1 files, 100 of 100 s of audio at 12.5 s/s, elapsed 0:00:08",
     ]
+
+
+class Tty(io.StringIO):
+    def isatty(self) -> bool:
+        return True
+
+
+def test_aside_erases_the_line_on_a_terminal_then_draws_it_again():
+    """What `deliverycheck measure` prints between redraws does not land after the line."""
+    clock, term = FakeClock(), Tty()
+    p = Progress(term, clock=clock, heartbeat_s=None, verbs=("measuring", "measured"))
+    p.start(1)
+    drawn = "measuring: 0/1 files, elapsed 0:00:00"
+    assert term.getvalue() == "\r" + drawn
+    with p.aside():
+        term.write("result\n")
+    p.close()
+    blank = "\r" + " " * len(drawn) + "\r"
+    assert term.getvalue() == "\r" + drawn + blank + "result\n" + "\r" + drawn + blank
