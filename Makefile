@@ -10,7 +10,7 @@ $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
 
-$(STAMP): pyproject.toml setup.py checker/dsp/kernels.c | $(BIN)/python
+$(STAMP): pyproject.toml setup.py checker/dsp/kernels.c checker/dsp/native.py | $(BIN)/python
 	$(BIN)/python -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 

@@ -13,13 +13,16 @@ import sys
 import traceback
 from typing import TextIO
 
+from checker.dsp.heap import keep_freed_memory
 from checker.dsp.threads import claim_process
 from checker.model.errors import EXIT_INTERRUPTED, EXIT_UNCHECKED, EXIT_USAGE, CheckerError
 from checker.model.names import for_terminal
 from checker.model.version import __version__
 
-# The command line owns its process: library pools run one thread (checker/dsp/threads.py).
+# The command line owns its process: library pools run one thread (checker/dsp/threads.py),
+# freed memory stays for the next file (checker/dsp/heap.py).
 claim_process()
+keep_freed_memory()
 
 #: Subcommand modules under checker.cli, in help order.
 COMMANDS = ("measure", "check", "profiles")

@@ -23,8 +23,12 @@
 #define CLONES
 #endif
 
-/* Version of the functions' signatures; native.py refuses a library with another one. */
-EXPORT int64_t dc_abi_version(void) { return 8; }
+/* Version of the functions' signatures: written once, as ABI_VERSION in native.py, which
+ * refuses a library with another one; setup.py passes it in as DC_ABI_VERSION. */
+#ifndef DC_ABI_VERSION
+#error "DC_ABI_VERSION is not defined (setup.py passes native.py's ABI_VERSION)"
+#endif
+EXPORT int64_t dc_abi_version(void) { return DC_ABI_VERSION; }
 
 /* ------------------------------------------------------------------------ reading */
 
@@ -590,4 +594,175 @@ CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, in
         }
     }
     return computed;
+}
+
+/* ------------------------------------------------------------- true-peak refinement */
+/* The refinement of one chunk-channel whose grid could raise the running maximum (numpy
+ * twin: TruePeakMeter._refine / _fine and interp.refine_peaks; float64 like them, every
+ * operation in the same order except the fine sums, which add the taps in tap order). */
+
+static inline double clip_d(double v, double lo, double hi)
+{
+    v = v > lo ? v : lo;
+    return v < hi ? v : hi;
+}
+
+/* interp.refine_peaks for one point: |y0| * sqrt(1 + t^2), cos_max = cos(omega_max). */
+static double tp_sinusoid_peak(double ym, double y0, double yp, double cos_max)
+{
+    const double u0 = fabs(y0), s = y0 < 0 ? -1.0 : 1.0;
+    const double um = s * ym, up = s * yp;
+    const double safe_u0 = u0 > 0 ? u0 : 1.0;
+    const double c = clip_d((um + up) / (2.0 * safe_u0), cos_max, 1.0);
+    const double sin_w = sqrt(1.0 - c * c);
+    const double limit = u0 * (1.0 - c);
+    const double half_diff = clip_d((up - um) / 2.0, -limit, limit);
+    double t = 0.0;
+    if (limit > 0 && sin_w > 0 && u0 > 0)
+        t = half_diff / (safe_u0 * sin_w);
+    return u0 * sqrt(1.0 + t * t);
+}
+
+#define TP_MAX_CANDIDATES 16
+#define TP_MAX_FINE 129 /* 2 * fine_steps + 1 with fine_steps <= 64 */
+#define TP_MAX_ABOVE 4096 /* points above the threshold kept for the second pass */
+
+/* Fine evaluation around window grid point k (TruePeakMeter._fine): the filter at
+ * fine_steps / factor points per grid step over +-1 grid step; returns the largest |v|
+ * refined by a sinusoid fit, and its window-local fine index in *at_fine. */
+static double tp_fine(const float *win, int64_t k, int64_t factor, const double *fine_taps,
+                      int64_t ntaps, int64_t history, int64_t fine_steps, double cos_fine,
+                      int64_t *at_fine)
+{
+    const int64_t step = fine_steps / factor, back = ntaps / 2 - 1, n = 2 * step + 1;
+    double v[TP_MAX_FINE];
+    int64_t at = 0;
+    double best = -1.0;
+    for (int64_t i = 0; i < n; i++) {
+        const int64_t fine = k * step + i - step;
+        const float *x = win + history + fine / fine_steps - back;
+        const double *taps = fine_taps + (fine % fine_steps) * ntaps;
+        double acc = 0.0;
+        for (int64_t q = 0; q < ntaps; q++)
+            acc = acc + (double)x[q] * taps[q];
+        v[i] = acc;
+        if (fabs(acc) > best) {
+            best = fabs(acc);
+            at = i;
+        }
+    }
+    const int64_t j = at < 1 ? 1 : (at > n - 2 ? n - 2 : at);
+    const double peak = tp_sinusoid_peak(v[j - 1], v[j], v[j + 1], cos_fine);
+    *at_fine = k * step + at - step;
+    return peak > best ? peak : best;
+}
+
+/* The refinement of TruePeakMeter._refine for one chunk-channel. win: its input window;
+ * y: the window's grid (float32); centres are grid points lo..hi-1. Grid point k (window
+ * index; file grid index base + k) counts when first <= base + k <= last or it is a sample
+ * (phase 0), and may be refined (a candidate) when its two neighbours are such points
+ * (pass first / last far out of range away from the file's edges). Candidates: local maxima
+ * of |y| at or above max(best, top) / refine_bound (minus 1e-9), the ncand with the largest
+ * sinusoid-fit estimates (ties: the earlier) evaluated finely. state[0] (best), state[1]
+ * (best_inner, over points whose time lies in [edge_s, end_s]) and *best_index (fine index)
+ * are updated in place. */
+EXPORT void dc_tp_refine(const float *win, const float *y, int64_t lo, int64_t hi,
+                         int64_t factor, int64_t base, int64_t first, int64_t last,
+                         const double *fine_taps, int64_t ntaps, int64_t history,
+                         int64_t fine_steps, int64_t ncand, double cos_refine, double cos_fine,
+                         double top, double refine_bound, double fine_rate, double edge_s,
+                         double end_s, double *state, int64_t *best_index)
+{
+    const double high = state[0] > top ? state[0] : top;
+    const double threshold = high / refine_bound * (1.0 - 1e-9);
+    const int64_t step = fine_steps / factor;
+    int64_t cand[TP_MAX_CANDIDATES];
+    double est[TP_MAX_CANDIDATES], fval[TP_MAX_CANDIDATES];
+    int64_t fpos[TP_MAX_CANDIDATES];
+    int64_t nc = 0;
+    if (ncand > TP_MAX_CANDIDATES)
+        ncand = TP_MAX_CANDIDATES;
+#define TP_ELIGIBLE(g) (((g) >= first && (g) <= last) || (((g) % factor + factor) % factor) == 0)
+    /* Points at or above the threshold, found 8 at a time against a float32 threshold that is
+     * not above it (most of a chunk lies well below), then tested exactly one by one. */
+    float thr_f = (float)threshold;
+    if ((double)thr_f > threshold)
+        thr_f = nextafterf(thr_f, -INFINITY);
+    const v8f thr_v = {thr_f, thr_f, thr_f, thr_f, thr_f, thr_f, thr_f, thr_f};
+    int64_t above[TP_MAX_ABOVE];
+    int64_t nabove = 0, overflow = 0;
+    /* pass 1: the candidates (local maxima above the threshold, best estimates first) */
+    for (int64_t k0 = lo; k0 < hi; k0 += 8) {
+        if (k0 + 8 <= hi) {
+            const v8i hit = (v8i)(V8F_ABS(v8f_load(y + k0)) >= thr_v);
+            int any = 0;
+            for (int t = 0; t < 8; t++)
+                any |= hit[t];
+            if (!any)
+                continue;
+        }
+        const int64_t k1 = k0 + 8 < hi ? k0 + 8 : hi;
+        for (int64_t k = k0; k < k1; k++) {
+            const float a = fabsf(y[k]);
+            const double value = TP_ELIGIBLE(base + k) ? (double)a : 0.0;
+            if (!(value >= threshold))
+                continue;
+            if (nabove < TP_MAX_ABOVE)
+                above[nabove++] = k;
+            else
+                overflow = 1;
+            if (!(a >= fabsf(y[k - 1]) && a >= fabsf(y[k + 1])))
+                continue;
+            if (!(base + k - 1 >= first && base + k + 1 <= last))
+                continue;
+            const double e = tp_sinusoid_peak(y[k - 1], y[k], y[k + 1], cos_refine);
+            int64_t at = nc < ncand ? nc : ncand; /* insertion point, stable for ties */
+            while (at > 0 && e > est[at - 1])
+                at--;
+            if (at >= ncand)
+                continue;
+            const int64_t last_slot = nc < ncand ? nc : ncand - 1;
+            for (int64_t s = last_slot; s > at; s--) {
+                est[s] = est[s - 1];
+                cand[s] = cand[s - 1];
+            }
+            est[at] = e;
+            cand[at] = k;
+            if (nc < ncand)
+                nc++;
+        }
+    }
+    for (int64_t s = 0; s < nc; s++)
+        fval[s] = tp_fine(win, cand[s], factor, fine_taps, ntaps, history, fine_steps, cos_fine,
+                          &fpos[s]);
+    /* pass 2: every point above the threshold, the candidates' fine values where larger */
+    double top_value = -1.0, inner = state[1];
+    int64_t top_pos = 0;
+    const int64_t count = overflow ? hi - lo : nabove;
+    for (int64_t i = 0; i < count; i++) {
+        const int64_t k = overflow ? lo + i : above[i];
+        const double grid = TP_ELIGIBLE(base + k) ? (double)fabsf(y[k]) : 0.0;
+        if (!(grid >= threshold))
+            continue;
+        double value = grid;
+        int64_t pos = k * step;
+        for (int64_t s = 0; s < nc; s++)
+            if (cand[s] == k && fval[s] > value) {
+                value = fval[s];
+                pos = fpos[s];
+            }
+        if (value > top_value) {
+            top_value = value;
+            top_pos = pos;
+        }
+        const double time_s = (double)(base * step + pos) / fine_rate;
+        if (time_s >= edge_s && time_s <= end_s && value > inner)
+            inner = value;
+    }
+#undef TP_ELIGIBLE
+    if (top_value > state[0]) {
+        state[0] = top_value;
+        *best_index = base * step + top_pos;
+    }
+    state[1] = inner;
 }

@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 ENV = "DELIVERYCHECK_KERNELS"
-ABI_VERSION = 8
+ABI_VERSION = 9
 
 _P = ctypes.c_void_p
 _I = ctypes.c_int64
@@ -49,6 +49,10 @@ _SIGNATURES = {
         _I,
         [_P, _I, _I, _I, _I, _I, _I, _I, _I, _P, _I, _I, _I, _P, _D, _D, _F]
         + [_P, _P, _P, _P, _P, _I, _P],
+    ),
+    "dc_tp_refine": (
+        None,
+        [_P, _P, _I, _I, _I, _I, _I, _I, _P, _I, _I, _I, _I, _D, _D, _D, _D, _D, _D, _D] + [_P, _P],
     ),
 }
 
@@ -334,3 +338,66 @@ def tp_chunks(
     )  # fmt: skip
     found = [starts[c, : nstarts[c]].tolist() for c in range(ch)]
     return int(computed), top, int(overs[0]), found
+
+
+#: Most candidates dc_tp_refine evaluates finely per call (TP_MAX_CANDIDATES in kernels.c).
+TP_MAX_CANDIDATES = 16
+
+
+def tp_refine(
+    window: np.ndarray,
+    grid: np.ndarray,
+    lo: int,
+    hi: int,
+    factor: int,
+    base: int,
+    limits: tuple[int, int],
+    fine_taps: np.ndarray,
+    history: int,
+    candidates: int,
+    cos_refine: float,
+    cos_fine: float,
+    top: float,
+    refine_bound: float,
+    fine_rate: float,
+    edge_s: tuple[float, float],
+    state: np.ndarray,
+    best_index: np.ndarray,
+) -> None:
+    """The true-peak refinement of one chunk-channel (numpy twin: TruePeakMeter._refine).
+    ``window`` float32 input window, ``grid`` its oversampled grid (float32), centres
+    ``grid[lo:hi]``; ``limits`` (first, last): file grid indices where interpolated
+    points count (``base``: file grid index of grid[0]); ``fine_taps`` (fine steps, T)
+    float64; ``edge_s``: the times between which a point is inner. ``state`` = [best,
+    best_inner] (float64) and ``best_index`` (int64, 1 value) are updated in place."""
+    for a, dtype, ndim in (
+        (window, np.float32, 1),
+        (grid, np.float32, 1),
+        (fine_taps, np.float64, 2),
+        (state, np.float64, 1),
+        (best_index, np.int64, 1),
+    ):
+        _need(a, dtype, ndim, "tp_refine")
+    steps, ntaps = fine_taps.shape
+    step = steps // factor if factor in (1, 2, 4) else 0
+    back = ntaps // 2 - 1
+    if (
+        step < 1
+        or steps > 64
+        or not 1 <= lo < hi < grid.size
+        or history < back
+        or history + (hi * step) // steps - back + ntaps > window.size  # the last fine row
+        or not 0 <= candidates <= TP_MAX_CANDIDATES
+        or state.size != 2
+        or best_index.size != 1
+    ):
+        raise ValueError(
+            f"native.tp_refine: centres {lo}..{hi} of a grid of {grid.size}, factor {factor}, "
+            f"{steps}x{ntaps} fine taps, window {window.size} from history {history}, "
+            f"{candidates} candidates (expected centres and fine rows inside the buffers)"
+        )
+    _lib.dc_tp_refine(
+        _ptr(window), _ptr(grid), lo, hi, factor, base, limits[0], limits[1], _ptr(fine_taps),
+        ntaps, history, steps, candidates, cos_refine, cos_fine, top, refine_bound, fine_rate,
+        edge_s[0], edge_s[1], _ptr(state), _ptr(best_index),
+    )  # fmt: skip

@@ -134,9 +134,15 @@ def kaiser_periodic(n: int, beta: float) -> np.ndarray:
 def median_filter_nearest(x: np.ndarray, size: int) -> np.ndarray:
     """Running median over ``size`` (odd) points, edges padded with the end values
     (scipy.ndimage.median_filter(x, size, mode="nearest") for 1-D x)."""
+    if size < 1 or size % 2 == 0:
+        raise ValueError(f"median_filter_nearest: size = {size} (expected an odd number)")
     half = size // 2
     padded = np.concatenate((np.full(half, x[0]), x, np.full(half, x[-1])))
-    return np.median(sliding_window_view(padded, size), axis=1)
+    # The middle of each window after a partition: np.median's value for an odd size and
+    # finite x, without its NaN check and mean (a third of the time; per file, 2049 bins).
+    windows = np.array(sliding_window_view(padded, size))
+    windows.partition(half, axis=1)
+    return windows[:, half]
 
 
 def fft_frames_for(rate_hz: int) -> int:

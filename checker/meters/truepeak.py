@@ -83,8 +83,11 @@ per block does, for every chunk and channel, the skip test, the grid, its
 largest value and the overs (``dc_tp_chunks``; its numpy twin is the per-chunk
 code here); maxima found earlier in the same call tighten the test for later
 chunks. Only chunk-channels whose grid could raise the running maximum come
-back to Python for the refinement (their grid recomputed by ``dc_tp_grid``,
-the same bits). The numpy path tests all of a block's chunks at once (one
+back for the refinement (their grid recomputed by ``dc_tp_grid``, the same
+bits), which is compiled too (``dc_tp_refine``, twin of ``_refine``: the same
+candidates and float64 arithmetic, each fine point's 64 products added in tap
+order; a short file refines most of its chunks, as its maximum is still
+rising, so this is most of its fixed cost). The numpy path tests all of a block's chunks at once (one
 reduction over their windows, against the maxima as they stand before the
 block) and sends the rest to the per-chunk code.
 """
@@ -229,6 +232,8 @@ class TruePeakMeter:
         # Candidate selection only (not part of the skip bound): band-limited content.
         self.refine_omega = default_omega_max(factor)
         self.refine_bound = refine_gain_bound(self.refine_omega)
+        self.refine_cos, self.fine_cos = math.cos(self.refine_omega), math.cos(self.fine_omega)
+        self.fine_rate_hz = float(FINE_STEPS * self.rate_hz)  # fine points per second
         self.stream = ChunkStream(
             self.channels,
             CHUNK_FRAMES,
@@ -307,10 +312,9 @@ class TruePeakMeter:
             for c in np.flatnonzero(top[i] * self.refine_bound > st.best):
                 if top[i, c] > 0.0 and top[i, c] * self.refine_bound > st.best[c]:
                     y = self._grid(window[c])
-                    a = np.abs(y)
-                    centres = a[lo : lo + CHUNK_FRAMES * self.factor]
+                    hi = lo + CHUNK_FRAMES * self.factor
                     base = (j * CHUNK_FRAMES - ROW_POSITIONS) * self.factor
-                    self._refine(st, c, window[c], y, a, centres, lo, float(top[i, c]), base)
+                    self._refine_native(st, c, window[c], y, lo, hi, float(top[i, c]), base)
 
     def _grid(self, window: np.ndarray) -> np.ndarray:
         """Oversampled grid of one chunk-channel window (compiled or numpy)."""
@@ -360,21 +364,32 @@ class TruePeakMeter:
         Interpolated points count only where the filter window lies inside the file
         (frames back .. last - fwd); samples always count; refinement needs both
         neighbours to be such points."""
+        limits = self._edge_limits(base, lo, hi, last_frame)
+        if limits is None:
+            return None
+        first, last = limits
+        k = np.arange(base + lo, base + hi, dtype=np.int64)
+        eligible = ((k >= first) & (k <= last)) | (k % self.factor == 0)
+        refinable = (k - 1 >= first) & (k + 1 <= last)
+        return eligible, refinable
+
+    def _edge_limits(
+        self, base: int, lo: int, hi: int, last_frame: int | None
+    ) -> tuple[int, int] | None:
+        """(first, last) file grid indices between which interpolated points count, for
+        a chunk touching a file edge (its centres lo..hi-1 from file grid index base);
+        None when no centre or neighbour of one lies outside them."""
         half = self.interp_taps // 2
         first = (half - 1) * self.factor
         k0, k1 = base + lo, base + hi - 1
         if last_frame is None:
             if k0 - 1 >= first:
                 return None
-            last = k1 + 2
-        else:
-            last = (last_frame - half) * self.factor + self.factor - 1
-            if k0 - 1 >= first and k1 + 1 <= last:
-                return None
-        k = np.arange(k0, k1 + 1, dtype=np.int64)
-        eligible = ((k >= first) & (k <= last)) | (k % self.factor == 0)
-        refinable = (k - 1 >= first) & (k + 1 <= last)
-        return eligible, refinable
+            return first, k1 + 2
+        last = (last_frame - half) * self.factor + self.factor - 1
+        if k0 - 1 >= first and k1 + 1 <= last:
+            return None
+        return first, last
 
     def _chunk(self, st: _State, j: int, window: np.ndarray, last_frame: int | None) -> None:
         """Process chunk j (window: channels x frames). Centres: all its grid points, or
@@ -399,7 +414,9 @@ class TruePeakMeter:
             a = np.abs(y)
             centres = a[lo:hi] if masks is None else a[lo:hi] * masks[0]
             top = float(centres.max())
-            if top > 0.0 and top * self.refine_bound > st.best[c]:
+            if top > 0.0 and top * self.refine_bound > st.best[c] and self.native:
+                self._refine_native(st, c, window[c], y, lo, hi, top, base, last_frame)
+            elif top > 0.0 and top * self.refine_bound > st.best[c]:
                 self._refine(st, c, window[c], y, a, centres, lo, top, base, masks, last_frame)
             if top <= self.ceiling_amp:
                 st.in_run[c] = False
@@ -419,12 +436,27 @@ class TruePeakMeter:
             events.sort()
             st.over_index.extend(k for k, _ in events[: self.max_positions - len(st.over_index)])
 
+    def _refine_native(self, st, c, win, y, lo, hi, top, base, last_frame=None):
+        """Compiled twin of _refine (kernels.c, dc_tp_refine): the same candidates, the
+        same float64 arithmetic, the fine sums added in tap order."""
+        limits = self._edge_limits(base, lo, hi, last_frame) or (-(2**62), 2**62)
+        end_s = math.inf if last_frame is None else last_frame / self.rate_hz - EDGE_S
+        state = np.array([st.best[c], st.best_inner[c]])
+        index = st.best_index[c : c + 1].copy()
+        native.tp_refine(
+            win, y, lo, hi, self.factor, base, limits, self.fine_taps, self.interp.history,
+            FINE_CANDIDATES, self.refine_cos, self.fine_cos, top, self.refine_bound,
+            self.fine_rate_hz, (EDGE_S, end_s), state, index,
+        )  # fmt: skip
+        st.best[c], st.best_inner[c] = state
+        st.best_index[c] = index[0]
+
     def _refine(self, st, c, win, y, a, centres, lo, top, base, masks=None, last_frame=None):
         """Update channel c's maximum from this chunk: grid values, plus a fine evaluation
         of the filter around the FINE_CANDIDATES local maxima with the largest
         sinusoid-fit estimates among those that could beat the running maximum."""
-        threshold = max(st.best[c], top) / self.refine_bound * (1.0 - 1e-9)
-        idx = np.flatnonzero(centres >= threshold)
+        threshold = np.float64(max(st.best[c], top) / self.refine_bound * (1.0 - 1e-9))
+        idx = np.flatnonzero(centres >= threshold)  # compared in float64, as kernels.c does
         k = idx + lo
         local = (a[k] >= a[k - 1]) & (a[k] >= a[k + 1])
         if masks is not None:

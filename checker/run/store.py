@@ -14,9 +14,13 @@ per-file errors, each run and each verdict. Paths are stored in readable form
 Failures of the store itself (disk full, read-only folder, damaged file) raise
 StoreError with one line saying what, where and what to do (exit code 4).
 
-Only the parent process writes. Every finished file is committed at once, so
-a killed run loses at most the files in flight; UNIQUE keys and upserts mean
-nothing is ever stored twice. ``attempts`` counts how often a file was
+Only the parent process writes. By default every row is committed at once; a
+batch groups its per-file rows (measurement or error, and verdict) into one
+transaction per ``group_writes(rows)`` rows (by count, never by time: what a
+killed run loses is bounded by the group, whatever the machine's speed), so a
+killed run loses at most the files in flight and those of the open group, which
+the next run measures again; UNIQUE keys and upserts mean nothing is ever stored
+twice. ``attempts`` counts how often a file was
 measured (tests use it to show that a resumed run re-read nothing).
 """
 
@@ -131,6 +135,9 @@ class Store:
 
     def __init__(self, path: str | Path):
         self.path = Path(path)
+        #: Per-file rows per transaction (group_writes); 1: each committed at once.
+        self.group_rows = 1
+        self._open_rows = 0  # rows written in the open group (0: no group open)
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
@@ -256,12 +263,76 @@ class Store:
                 f"{self.path}: schema_version = {row[0]!r} (expected an integer)"
             ) from None
 
+    def group_writes(self, rows: int) -> None:
+        """From now on, commit per-file rows (measurements, errors, verdicts) ``rows`` at a
+        time (1: each at once). Any other write, flush() and close() commit the open group."""
+        if rows < 1:
+            raise ValueError(f"Store.group_writes: rows = {rows} (expected >= 1)")
+        self.flush()
+        self.group_rows = int(rows)
+
+    def flush(self) -> None:
+        """Commit the open group of rows, if any."""
+        if self._open_rows:
+            self._open_rows = 0
+            try:
+                self.db.execute("COMMIT")
+            except sqlite3.Error as exc:
+                self._abandon_group()
+                raise self._error(exc, "committing finished files") from None
+
+    def _row(self, doing: str):
+        """One per-file row: inside the open group (BEGIN IMMEDIATE on its first row,
+        COMMIT on its last). An SQLite error rolls the whole group back (StoreError); any
+        other exception (Ctrl-C) undoes this row only, keeping the group for flush()."""
+        if self.group_rows <= 1:
+            return self._tx(doing)
+        store = self
+
+        class _Row:
+            def __enter__(self):
+                try:
+                    if store._open_rows == 0:
+                        store.db.execute("BEGIN IMMEDIATE")
+                        store._open_rows = -1  # open, no row yet (flush commits it)
+                    store.db.execute("SAVEPOINT file_row")
+                except sqlite3.Error as exc:
+                    store._abandon_group()
+                    raise store._error(exc, doing) from None
+
+            def __exit__(self, exc_type, exc, tb):
+                try:
+                    if exc is None:
+                        store.db.execute("RELEASE file_row")
+                    elif not isinstance(exc, sqlite3.Error):
+                        store.db.execute("ROLLBACK TO file_row")
+                        store.db.execute("RELEASE file_row")
+                        return False
+                except sqlite3.Error as failure:
+                    exc = failure
+                if exc is not None:
+                    store._abandon_group()
+                    raise store._error(exc, doing) from None
+                store._open_rows = max(store._open_rows, 0) + 1
+                if store._open_rows >= store.group_rows:
+                    store.flush()
+                return False
+
+        return _Row()
+
+    def _abandon_group(self) -> None:
+        self._open_rows = 0
+        with contextlib.suppress(sqlite3.Error):
+            self.db.execute("ROLLBACK")
+
     def _tx(self, doing: str = "writing to it"):
-        """BEGIN IMMEDIATE ... COMMIT (ROLLBACK on error); sqlite3 errors -> StoreError."""
+        """BEGIN IMMEDIATE ... COMMIT (ROLLBACK on error); sqlite3 errors -> StoreError.
+        Commits the open group of rows first."""
         store = self
 
         class _Tx:
             def __enter__(self):
+                store.flush()
                 try:
                     store.db.execute("BEGIN IMMEDIATE")
                 except sqlite3.Error as exc:
@@ -280,7 +351,13 @@ class Store:
         return _Tx()
 
     def close(self) -> None:
-        self.db.close()
+        """Commit the open group of rows (if that fails, they are measured again next
+        run) and close."""
+        try:
+            with contextlib.suppress(StoreError):
+                self.flush()
+        finally:
+            self.db.close()
 
     def __enter__(self) -> Store:
         return self
@@ -311,7 +388,7 @@ class Store:
     ) -> None:
         """Store (or replace, counting the attempt) one measurement; committed at once."""
         timeline = measurement.timeline.to_dict() if measurement.timeline else None
-        with self._tx("storing a measurement"):
+        with self._row("storing a measurement"):
             self.db.execute(
                 "INSERT INTO measurements(path, size_bytes, mtime_ns, ctime_ns, engine_version, "
                 "options_key, measurement_json, timeline_json, measured_at) "
@@ -372,7 +449,7 @@ class Store:
         retry: bool,
     ) -> None:
         """Store a per-file error. ``retry``: a timeout or crash, tried again next run."""
-        with self._tx("storing a file's error"):
+        with self._row("storing a file's error"):
             self.db.execute(
                 "INSERT INTO errors(path, size_bytes, mtime_ns, ctime_ns, engine_version, "
                 "options_key, message, retry, failed_at) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?) "
@@ -415,7 +492,7 @@ class Store:
             )
 
     def put_result(self, run_id: str, result: FileResult) -> None:
-        with self._tx("storing a verdict"):
+        with self._row("storing a verdict"):
             self.db.execute(
                 "INSERT INTO verdicts(run_id, path, status, verdict_json, error) "
                 "VALUES (?, ?, ?, ?, ?) ON CONFLICT(run_id, path) DO UPDATE SET "

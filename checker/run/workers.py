@@ -31,6 +31,7 @@ from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from multiprocessing.connection import wait
 
+from checker.dsp.heap import keep_freed_memory
 from checker.dsp.threads import claim_process
 from checker.meters.base import MeasureOptions
 from checker.model.errors import CheckerError, UsageError
@@ -148,6 +149,7 @@ def _worker_main(conn, memory_mb, measure_fn, slot=None) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides how to stop
     _die_with_parent()
     claim_process()  # one thread per library pool: parallelism is the pool's workers
+    keep_freed_memory()  # no page faults for every file's buffers again
     _limit_memory(memory_mb)
     report = live.reporter(slot) if slot is not None and live.takes_on_frames(measure_fn) else None
     while True:

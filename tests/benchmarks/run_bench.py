@@ -356,20 +356,39 @@ def bench_jobs(files: list[Path], reps: int, out: Path) -> None:
 
 def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> None:
     """Per-file overhead: N one-second files against the same N seconds as one file, both
-    `check --jobs 1` (one worker, one thread), runs alternating."""
-    runs: dict[str, list[Run]] = {"files": [], "one": []}
+    `check --jobs 1` (one worker, one thread), runs alternating; then the engine's share:
+    measure() of each in one process (no workers, store or reports). Overheads are the
+    medians of the paired differences (each repetition's pair ran side by side)."""
+    w = str(HERE / "workloads.py")
+    cmds = {
+        "files": check_cmd([shorts[0].parent], 1, out / "files"),
+        "one": check_cmd([joined], 1, out / "one"),
+        "files measure()": [PY, w, "measureall", str(shorts[0].parent)],
+        "one measure()": [PY, w, "measureall", str(joined)],
+    }
+    runs: dict[str, list[Run]] = {k: [] for k in cmds}
     for _ in range(reps):
-        runs["files"].append(run_once(check_cmd([shorts[0].parent], 1, out / "files")))
-        runs["one"].append(run_once(check_cmd([joined], 1, out / "one")))
-    f, o = medians(runs["files"]), medians(runs["one"])
+        for name, cmd in cmds.items():
+            runs[name].append(run_once(cmd))
     n = len(shorts)
-    print(f"\nper-file overhead: {n} one-second files vs one {n}-second file, --jobs 1 (1 thread):")
-    print(f"  {n} files: wall {f.wall_s:.2f} s, CPU {f.cpu_s:.2f} s")
-    print(f"  one file: wall {o.wall_s:.2f} s, CPU {o.cpu_s:.2f} s")
-    print(
-        f"  overhead per file: wall {1000 * (f.wall_s - o.wall_s) / n:.1f} ms, "
-        f"CPU {1000 * (f.cpu_s - o.cpu_s) / n:.1f} ms (target <= 5 ms)"
-    )
+    print(f"\nper-file overhead: {n} one-second files vs one {n}-second file, one thread:")
+    for many, one, what in (
+        ("files", "one", "check --jobs 1"),
+        ("files measure()", "one measure()", "measure() in one process"),
+    ):
+        f, o = medians(runs[many]), medians(runs[one])
+        wall = statistics.median(
+            1000 * (a.wall_s - b.wall_s) / n for a, b in zip(runs[many], runs[one], strict=True)
+        )
+        cpu = statistics.median(
+            1000 * (a.cpu_s - b.cpu_s) / n for a, b in zip(runs[many], runs[one], strict=True)
+        )
+        print(
+            f"  {what:<26} {n} files: wall {f.wall_s:6.2f} s, CPU {f.cpu_s:6.2f} s; one file: "
+            f"wall {o.wall_s:6.2f} s, CPU {o.cpu_s:6.2f} s; per file: wall {wall:5.1f} ms, "
+            f"CPU {cpu:5.1f} ms"
+        )
+    print("  (target: check --jobs 1 at most 5 ms per file)")
 
 
 def make_shorts(folder: Path, n: int) -> tuple[list[Path], Path]:

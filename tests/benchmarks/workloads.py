@@ -56,6 +56,22 @@ def measure_one_thread(path: str) -> None:
     measure(path)
 
 
+def measure_all(path: str) -> None:
+    """measure() of every .wav file in folder ``path`` (or of the one file ``path``) in this
+    one process, one thread: the engine's own per-file cost, without a batch's workers,
+    store and reports (with a worker's memory set-up: checker/dsp/heap.py)."""
+    from pathlib import Path
+
+    from checker.analysis.onepass import measure
+    from checker.dsp.heap import keep_freed_memory
+
+    keep_freed_memory()
+
+    p = Path(path)
+    for f in sorted(p.glob("*.wav")) if p.is_dir() else [p]:
+        measure(str(f))
+
+
 def measure_blocks(path: str, block_frames: int, report: bool) -> None:
     """(p) b1 at a given block size, with or without a batch worker's progress callback
     (``on_frames`` writing seconds to a shared double after every block, checker/run/live.py)."""
@@ -123,6 +139,8 @@ if __name__ == "__main__":
         pyebur128_run(path, frames, full=False)
     elif which == "measure1":
         measure_one_thread(path)
+    elif which == "measureall":
+        measure_all(path)
     elif which in ("blocks", "blocks-progress"):
         measure_blocks(path, frames, which == "blocks-progress")
     elif which == "onframes":

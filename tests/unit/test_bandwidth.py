@@ -19,7 +19,12 @@ from signals import noise, programme, sine, write
 from checker.analysis.onepass import measure
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import default_layout
-from checker.meters.bandwidth import SPARSE_STRIDE, BandwidthMeter, fft_frames_for
+from checker.meters.bandwidth import (
+    SPARSE_STRIDE,
+    BandwidthMeter,
+    fft_frames_for,
+    median_filter_nearest,
+)
 from checker.meters.base import MeasureOptions
 
 
@@ -286,3 +291,17 @@ def test_sampled_frames_keep_the_white_noise_level_and_split_invariance():
     other = _run_dense(x, rate, dense_s=1.0, sizes=(1_000, 33_333, 7))
     assert_allclose(other.spectrum(), sampled.spectrum(), rtol=1e-9, atol=0)
     assert other.result() == sampled.result()
+
+
+@pytest.mark.parametrize("size", [5, 17, 33])
+def test_running_median_matches_scipy(size):
+    # Reference: scipy.ndimage.median_filter(x, size, mode="nearest") (1-D), which the
+    # meter's own running median stands in for; exact, as both pick one of the values.
+    from scipy import ndimage
+
+    x = np.random.default_rng(size).random(2049) ** 4
+    x[100:140] = x[100]  # ties
+    expected = ndimage.median_filter(x, size=size, mode="nearest")
+    assert_allclose(median_filter_nearest(x, size), expected, rtol=0, atol=0)
+    with pytest.raises(ValueError, match="odd"):
+        median_filter_nearest(x, 4)

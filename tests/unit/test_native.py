@@ -23,7 +23,13 @@ from numpy.testing import assert_allclose, assert_array_equal
 from checker.analysis.onepass import measure
 from checker.dsp import native
 from checker.dsp.iir import sosfilt_rows
-from checker.dsp.interp import ChunkInterpolator, design_phases, oversample
+from checker.dsp.interp import (
+    CHUNK_FRAMES,
+    ROW_POSITIONS,
+    ChunkInterpolator,
+    design_phases,
+    oversample,
+)
 from checker.dsp.kweighting import k_weighting_sos
 from checker.io.audio import INT32_SCALE, Block, StreamInfo
 from checker.io.layout import default_layout
@@ -32,7 +38,7 @@ from checker.meters.channels import ChannelsMeter
 from checker.meters.levels import LevelsMeter
 from checker.meters.loudness import LoudnessMeter
 from checker.meters.silence import SilenceMeter
-from checker.meters.truepeak import TruePeakMeter
+from checker.meters.truepeak import TruePeakMeter, _State
 
 needs_kernels = pytest.mark.skipif(
     not native.enabled(), reason=f"compiled kernels not loaded: {native.status()}"
@@ -420,12 +426,60 @@ def test_tp_chunks_same_bits_at_any_alignment():
         assert_array_equal(again[1], first[1])
 
 
+def _refine_both(m: TruePeakMeter, win, j: int, last_frame, best: float):
+    """One chunk-channel refined by the numpy twin (_refine) and the compiled routine."""
+    factor = m.factor
+    y = m.interp.grid(win)
+    a = np.abs(y)
+    lo = ROW_POSITIONS * factor
+    hi = lo + CHUNK_FRAMES * factor
+    if last_frame is not None:
+        hi = lo + (last_frame - j * CHUNK_FRAMES) * factor + 1
+    base = (j * CHUNK_FRAMES - ROW_POSITIONS) * factor
+    masks = m._edge_masks(base, lo, hi, last_frame)
+    centres = a[lo:hi] if masks is None else a[lo:hi] * masks[0]
+    top = float(centres.max())
+    states = []
+    for compiled in (False, True):
+        st = _State(np.array([best * top]), np.array([-1]), np.array([0.1]), np.zeros(1, bool))
+        if compiled:
+            m._refine_native(st, 0, win, y, lo, hi, top, base, last_frame)
+        else:
+            m._refine(st, 0, win, y, a, centres, lo, top, base, masks, last_frame)
+        states.append(st)
+    return states
+
+
+@needs_kernels
+@pytest.mark.parametrize("factor,rate", [(4, 48_000), (2, 96_000), (1, 192_000)])
+def test_tp_refine_matches_its_numpy_twin(factor, rate):
+    # numpy twin: TruePeakMeter._refine (its fine sums through einsum); the compiled routine
+    # (dc_tp_refine) adds the 64 float64 products of each fine point in tap order, so the
+    # values agree to rounding (1e-12 on readings below 2) and the positions are the same.
+    info = StreamInfo("x.wav", "WAV", "FLOAT", rate, 1, 10 * CHUNK_FRAMES)
+    m = TruePeakMeter(info, default_layout(1), MeasureOptions())
+    rng = np.random.default_rng(factor)
+    cases = [(0, None, 0.0), (3, None, 0.0), (3, None, 0.95), (5, 5 * CHUNK_FRAMES + 3000, 0.5)]
+    for j, last_frame, best in cases:  # file start, inside, a running maximum, file end
+        win = (rng.standard_normal(m.interp.window_frames) * 0.3).astype(np.float32)
+        plain, compiled = _refine_both(m, win, j, last_frame, best)
+        assert compiled.best_index[0] == plain.best_index[0] >= 0  # the chunk raised the maximum
+        assert_allclose(compiled.best, plain.best, rtol=0, atol=1e-12)
+        assert_allclose(compiled.best_inner, plain.best_inner, rtol=0, atol=1e-12)
+
+
 def test_tp_wrappers_refuse_wrong_buffers():
     rows = np.zeros((3, 64), dtype=np.float32)
     with pytest.raises(ValueError, match="expected 63"):
         native.tp_grid(np.zeros(10, np.float32), 0, rows, 4)  # window of the wrong length
     with pytest.raises(ValueError, match="factor - 1"):
         native.tp_grid(np.zeros(63, np.float32), 0, rows, 2)
+    with pytest.raises(ValueError, match="inside the buffers"):  # centres past the grid
+        native.tp_refine(
+            np.zeros(4176, np.float32), np.zeros(100, np.float32), 32, 200, 4, 0, (0, 10),
+            np.zeros((32, 64)), 40, 4, 1.0, 1.0, 1.0, 1.1, 1e6, (0.0, 1.0),
+            np.zeros(2), np.zeros(1, np.int64),
+        )  # fmt: skip
     with pytest.raises(ValueError, match="inside the buffer"):
         native.tp_chunks(
             np.zeros((2, 100), np.float32), 4096, 1, 4176, 48, 4096, rows, 4,

@@ -177,3 +177,65 @@ def test_store_in_a_folder_that_cannot_be_created(tmp_path):
         "folder (Not a directory); choose another output folder"
     )
     assert info.value.exit_code == 4  # errors.EXIT_OUTPUT: the output folder, not the audio
+
+
+def _idents(tmp_path, n: int) -> list[FileIdentity]:
+    out = []
+    for i in range(n):
+        f = tmp_path / f"f{i}.wav"
+        f.write_bytes(b"x" * (i + 1))
+        out.append(FileIdentity.of(str(f)))
+    return out
+
+
+def _committed(tmp_path) -> int:
+    """Measurements another connection sees (what a killed run would leave)."""
+    with sqlite3.connect(str(tmp_path / "results.sqlite")) as other:
+        return other.execute("SELECT COUNT(*) FROM measurements").fetchone()[0]
+
+
+def test_grouped_rows_commit_by_count_and_on_flush(tmp_path):
+    idents = _idents(tmp_path, 7)
+    with open_store(tmp_path) as store:
+        store.group_writes(3)
+        seen = []
+        for ident in idents:
+            store.put_measurement(ident, OPTS, _measurement(ident.path))
+            seen.append(_committed(tmp_path))
+        # Committed three rows at a time: a SIGKILL loses at most the open group.
+        assert seen == [0, 0, 3, 3, 3, 6, 6]
+        assert store.counts()["measurements"] == 7  # the writer sees its open group
+        store.flush()
+        assert _committed(tmp_path) == 7
+        store.put_error(idents[0], "e1", OPTS, "f0.wav: cannot open", retry=False)
+        assert _committed(tmp_path) == 7  # an error row waits in the group too
+    with open_store(tmp_path) as store:  # close() committed the open group
+        assert store.get_error(idents[0], "e1", OPTS) == "f0.wav: cannot open"
+
+
+def test_interrupt_inside_a_grouped_row_keeps_the_group(tmp_path):
+    idents = _idents(tmp_path, 3)
+    with open_store(tmp_path) as store:
+        store.group_writes(10)
+        for ident in idents[:2]:
+            store.put_measurement(ident, OPTS, _measurement(ident.path))
+        with pytest.raises(KeyboardInterrupt), store._row("storing a measurement"):
+            store.db.execute("DELETE FROM measurements")  # half done when Ctrl-C lands
+            raise KeyboardInterrupt
+        store.flush()
+    # The interrupted row is undone; the two finished rows of its group are kept.
+    assert _committed(tmp_path) == 2
+
+
+def test_a_failing_grouped_row_is_a_store_error_and_rolls_the_group_back(tmp_path):
+    idents = _idents(tmp_path, 2)
+    with open_store(tmp_path) as store:
+        store.group_writes(10)
+        store.put_measurement(idents[0], OPTS, _measurement(idents[0].path))
+        failing = store._row("storing a measurement")
+        with pytest.raises(StoreError, match="while storing a measurement"), failing:
+            store.db.execute("INSERT INTO no_such_table VALUES (1)")
+        store.put_measurement(idents[1], OPTS, _measurement(idents[1].path))
+        store.flush()
+    # The failed group is gone (measured again next run); writing goes on in a new one.
+    assert _committed(tmp_path) == 1
