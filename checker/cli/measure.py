@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
 from typing import TextIO
 
 from checker.analysis.onepass import measure
@@ -12,6 +13,9 @@ from checker.meters.base import MeasureOptions
 from checker.model.errors import EXIT_OK, EXIT_UNCHECKED, CheckerError
 from checker.model.names import for_terminal, readable_data
 from checker.model.serial import dumps
+from checker.run import live
+from checker.run.progress import Progress
+from checker.run.workers import probe_duration_s
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
@@ -29,6 +33,11 @@ def add_parser(sub) -> argparse.ArgumentParser:
         "--speech",
         action="store_true",
         help="also measure speech-gated loudness (speech_lufs, speech_share; several times slower)",
+    )
+    p.add_argument(
+        "--quiet",
+        action="store_true",
+        help="no progress line on stderr (else redrawn on a terminal, every few seconds in a log)",
     )
     p.add_argument("--layout", help='channel layout, e.g. "L R C LFE Ls Rs" (default: from file)')
     add_span_arguments(p)
@@ -99,17 +108,42 @@ def run(args, out: TextIO, err: TextIO) -> int:
         break_min_s=prog.get("break_min_s"),
     )
     status = EXIT_OK
-    for path in args.files:
-        try:
-            m = measure(path, options, read_ahead=True)  # one file at a time: a core to spare
-        except CheckerError as exc:
-            status = max(status, EXIT_UNCHECKED)
+    # The batch's line (checker.run.progress): files, seconds of audio, also within a file.
+    progress = Progress(err, quiet=args.quiet, verbs=("measuring", "measured"), summary=False)
+    for index, path in enumerate(args.files):
+        progress.audio.plan(index, _size_bytes(path))
+    progress.start(len(args.files))
+    try:
+        for index, path in enumerate(args.files):
+            status = max(status, _one(args, index, path, options, progress, out, err))
+    finally:
+        progress.close()
+    return status
+
+
+def _one(args, index: int, path: str, options, progress: Progress, out, err) -> int:
+    decoded = [0.0]  # seconds, written by on_frames, read by the progress line's thread
+
+    def on_frames(frames: int, sample_rate_hz: int) -> None:
+        decoded[0] = frames / sample_rate_hz if sample_rate_hz > 0 else 0.0
+
+    if progress.enabled:
+        progress.audio.started(index, probe_duration_s(path), lambda: decoded[0])
+    try:  # one file at a time: a core to spare for reading ahead
+        m = measure(path, options, read_ahead=True, on_frames=live.held(on_frames))
+    except CheckerError as exc:
+        progress.audio.finished(index, decoded[0], whole=False)
+        progress.advance()
+        with progress.aside():
             if args.json:  # names in readable form: a non-UTF-8 name cannot stop the output
                 line = dumps(readable_data({"path": path, "error": str(exc)}))
                 print(line, file=out, flush=True)
             else:
                 print(for_terminal(f"{path}: error: {exc}"), file=err, flush=True)
-            continue
+        return EXIT_UNCHECKED
+    progress.audio.finished(index, m.values.get("duration_s") or decoded[0])
+    progress.advance()
+    with progress.aside():
         if args.json:
             print(dumps(readable_data(m.to_dict(timeline=args.timeline))), file=out, flush=True)
         else:
@@ -121,4 +155,12 @@ def run(args, out: TextIO, err: TextIO) -> int:
                 print(f"  {part_line(part)}", file=out)
             for finding in m.findings:
                 print(for_terminal(f"  note: {finding}"), file=out)
-    return status
+            out.flush()
+    return EXIT_OK
+
+
+def _size_bytes(path: str) -> int:
+    try:
+        return os.path.getsize(path)
+    except OSError:
+        return 0

@@ -348,7 +348,7 @@ def run_batch(
                 progress.count_set(stored=from_store)
 
             ordered = with_stem_sets(
-                folders, mix, profile, ordered, options, okey, store, fresh, on_set=keep_set
+                folders, mix, profile, ordered, options, okey, store, fresh, keep_set, progress
             )
         run = dataclasses.replace(run, finished_at=_now())
         store.finish_run(run)

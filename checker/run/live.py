@@ -12,7 +12,8 @@ parent to wait on. Cost per block: one Python call and one store
 
 ``DELIVERYCHECK_HOLD_UNTIL`` (tests only): a worker that has reported its first block
 waits until that path exists (60 s at most), so a test can see the progress line move
-inside one file without depending on timing.
+inside one file without depending on timing; ``deliverycheck measure`` honours it too.
+``DELIVERYCHECK_HOLD_SET_UNTIL`` does the same for a batch's stem-set read (``held``).
 """
 
 from __future__ import annotations
@@ -22,8 +23,12 @@ import os
 import time
 from collections.abc import Callable
 
-#: A path: after its first reported block a worker waits for it to exist (tests only).
+#: A path: after its first reported block a worker (and ``deliverycheck measure``) waits
+#: for it to exist (tests only).
 HOLD_ENV = "DELIVERYCHECK_HOLD_UNTIL"
+#: The same for the stem-set read in the parent (checker/run/stemsets.py), so a test can
+#: let the files go and hold the set.
+HOLD_SET_ENV = "DELIVERYCHECK_HOLD_SET_UNTIL"
 HOLD_MAX_S = 60.0
 
 
@@ -53,7 +58,13 @@ def reporter(slot) -> Callable[[int, int], None]:
     def report(frames: int, sample_rate_hz: int) -> None:
         slot.value = frames / sample_rate_hz if sample_rate_hz > 0 else 0.0
 
-    hold = os.environ.get(HOLD_ENV)
+    return held(report)
+
+
+def held(report: Callable[[int, int], None], env: str = HOLD_ENV) -> Callable[[int, int], None]:
+    """``report`` itself, or, when the test hook ``env`` names a path, ``report`` followed
+    by a wait until that path exists (60 s at most) after each block with frames."""
+    hold = os.environ.get(env)
     if not hold:
         return report
 

@@ -11,14 +11,22 @@ audio at 95.2 s/s, elapsed 0:00:19, ETA 0:00:38``: seconds of audio measured so 
 still being read count with what their workers have decoded: ``AudioLedger``) of the audio
 to measure ("~" while part of it is estimated from file sizes), and the speed in seconds of
 audio per wall-clock second (files from the store are not counted in either).
+
+Stem sets are read after the files, in this process (checker/run/stemsets.py): meanwhile
+the line names the set and how far its lockstep read has got, ``checking: 6/6 files
+(...), stem set 2/3 'song-b': 41 of 180 s (sets measured 1, from the store 0), elapsed
+...``; the final line counts the sets. ``deliverycheck measure`` uses the same line with
+its own words (``verbs``) and no final line unless one was shown before.
 """
 
 from __future__ import annotations
 
 import math
+import os
 import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from typing import TextIO
 
 
@@ -124,6 +132,15 @@ class AudioLedger:
             return bool(self._waiting or self._open or self._finished)
 
 
+def _columns(stream) -> int:
+    """The terminal's width; a large number when unknown (a pseudo-terminal may say 0)."""
+    try:
+        columns = os.get_terminal_size(stream.fileno()).columns
+    except (AttributeError, OSError, ValueError):
+        return 10_000
+    return max(20, columns) if columns > 0 else 10_000
+
+
 def _read(live: Callable[[], float] | None) -> float:
     if live is None:
         return 0.0
@@ -142,7 +159,11 @@ class Progress:
         log_every_s: float = 5.0,
         clock: Callable[[], float] = time.monotonic,
         heartbeat_s: float | None = 1.0,
+        verbs: tuple[str, str] = ("checking", "checked"),
+        summary: bool = True,
     ):
+        """``verbs``: the line's first word while running and in the final line;
+        ``summary=False``: no final line in a log unless a line was written before."""
         try:
             tty = bool(stream is not None and stream.isatty())
         except (AttributeError, ValueError):
@@ -169,6 +190,12 @@ class Progress:
         self._heartbeat_s = heartbeat_s
         self._thread: threading.Thread | None = None
         self._closed = False
+        self._verbs = verbs
+        self._summary = summary
+        self._lines = 0  # lines written to a log
+        self._set: tuple | None = None  # (index, count, name, total s or None, start) read now
+        self._files_end = math.inf  # when the last file was done
+        self._set_s = 0.0  # seconds of the current set read so far
 
     def start(self, total: int) -> None:
         self.total = total
@@ -190,7 +217,25 @@ class Progress:
                     self.audio_s += audio_s
             elif stored:
                 self.stored += 1
+            if self.done >= self.total:
+                self._files_end = self._now()
         self._draw(force=self.tty and self.done == self.total)
+
+    def set_started(
+        self, index: int, count: int, name: str, total_s: float | None
+    ) -> Callable[[int, int], None]:
+        """Stem set ``index`` (from 1) of ``count`` is being judged; ``total_s``: its longest
+        file's declared seconds. Returns the ``on_frames`` callback of its read
+        (checker.stems.sets.check_stem_set); count_set() ends it."""
+        with self._lock:
+            self._set = (index, count, name, total_s, self._now())
+            self._set_s = 0.0
+        self._draw(force=self.tty)
+
+        def on_frames(frames: int, sample_rate_hz: int) -> None:
+            self._set_s = frames / sample_rate_hz if sample_rate_hz > 0 else 0.0
+
+        return on_frames
 
     def count_set(self, stored: bool) -> None:
         """A stem set was judged (its values measured now, or from the store)."""
@@ -199,6 +244,8 @@ class Progress:
                 self.sets_stored += 1
             else:
                 self.sets_measured += 1
+            self._set = None
+        self._draw(force=self.tty)
 
     def counts(self) -> dict[str, int]:
         """What this run did, for the summary: files and stem sets measured or from the store."""
@@ -210,24 +257,63 @@ class Progress:
         }
 
     def line(self) -> str:
-        elapsed = max(self._now() - self._t0, 1e-9)
-        text = f"checking: {self.done}/{self.total} files"
+        now = self._now()
+        elapsed = max(now - self._t0, 1e-9)
+        # the files' speed stops at the last file: stem sets are read after them
+        files_elapsed = max(min(now, self._files_end) - self._t0, 1e-9)
+        text = f"{self._verbs[0]}: {self.done}/{self.total} files"
         if self.measured or self.stored:
             text += f" (measured {self.measured}, from the store {self.stored})"
         done_s = self.audio_s + self.audio.done_s()
         total_s, estimated = self.audio.total_s() if self.audio.planned() else (None, False)
         if total_s is not None:
             total_s = max(total_s + self.audio_s, done_s)
-        if done_s > 0:
+        if done_s > 0 and self._set is None:  # while a set is read, its figures instead
             of = "" if total_s is None else f" of {'~' if estimated else ''}{total_s:,.0f}"
-            text += f", {done_s:,.0f}{of} s of audio at {done_s / elapsed:,.1f} s/s"
-        text += f", elapsed {_clock(elapsed)}"
+            text += f", {done_s:,.0f}{of} s of audio at {done_s / files_elapsed:,.1f} s/s"
+        sets, eta_s = self._sets_part(now)
+        text += sets + f", elapsed {_clock(elapsed)}"
         remaining = self.total - self.done
-        if remaining > 0 and total_s is not None and done_s > 0:  # by audio: long files weigh more
+        if eta_s is not None:
+            text += f", ETA {_clock(eta_s)}"
+        elif (
+            remaining > 0 and total_s is not None and done_s > 0
+        ):  # by audio: long files weigh more
             text += f", ETA {_clock((total_s - done_s) / (done_s / elapsed))}"
         elif self.done > 0 and remaining > 0:
             text += f", ETA {_clock(elapsed / self.done * remaining)}"
         return text
+
+    def _sets_part(self, now: float) -> tuple[str, float | None]:
+        """The stem sets' part of the line, and the ETA of the set being read when it is
+        the last one."""
+        sets = self.sets_measured + self.sets_stored
+        counts = f"measured {self.sets_measured}, from the store {self.sets_stored}"
+        if self._set is None:
+            return (f", stem sets {sets} ({counts})" if sets else ""), None
+        index, count, name, total_s, t0 = self._set
+        done_s, eta_s = self._set_s, None
+        text = f", stem set {index}/{count} {name!r}: {done_s:,.0f}"
+        if total_s is not None:
+            text += f" of {max(total_s, done_s):,.0f}"
+        text += " s"
+        if done_s > 0 and now > t0:
+            rate = done_s / (now - t0)
+            text += f" at {rate:,.1f} s/s"
+            if total_s is not None and index == count:  # the last set: its end is the run's
+                eta_s = max(0.0, total_s - done_s) / rate
+        return text + (f" (sets {counts})" if sets else ""), eta_s
+
+    @contextmanager
+    def aside(self) -> Iterator[None]:
+        """Write something else to the terminal: the line is erased meanwhile, then redrawn."""
+        with self._lock:
+            if self.enabled and self.tty and self._width and not self._closed:
+                self.stream.write("\r" + " " * self._width + "\r")
+                self.stream.flush()
+                self._width = 0
+            yield
+        self._draw(force=self.tty)
 
     def _beat(self) -> None:
         while not self._stop.wait(self._heartbeat_s):
@@ -244,11 +330,13 @@ class Progress:
             self._last_draw = now
             text = self.line()
             if self.tty:
+                text = text[: _columns(self.stream) - 1]  # a wrapped line cannot be redrawn
                 pad = max(0, self._width - len(text))
                 self._width = len(text)
                 self.stream.write("\r" + text + " " * pad)
             else:
                 self.stream.write(text + "\n")
+                self._lines += 1
             self.stream.flush()
 
     def close(self) -> None:
@@ -256,9 +344,11 @@ class Progress:
         if self._thread is not None:
             self._thread.join()
             self._thread = None
-        if self.enabled and not self._closed and not self.tty and self.total:
+        shown = self._summary or self._lines
+        if self.enabled and not self._closed and not self.tty and self.total and shown:
             with self._lock:
-                self.stream.write(self.line().replace("checking:", "checked:", 1) + "\n")
+                now, then = self._verbs
+                self.stream.write(self.line().replace(f"{now}:", f"{then}:", 1) + "\n")
                 self.stream.flush()
         if self.enabled and self.tty and self._width:
             self.stream.write("\r" + " " * self._width + "\r")

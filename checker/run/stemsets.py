@@ -17,6 +17,7 @@ from collections.abc import Sequence
 from checker.model.errors import UsageError
 from checker.model.results import FileResult
 from checker.model.version import ENGINE_VERSION
+from checker.run import live
 
 
 def stem_set_folders(paths: Sequence[str], profile, mix: str | None = None) -> list[str]:
@@ -53,9 +54,22 @@ def stem_set_key(stem_set, options_key: str) -> str | None:
     return json.dumps(parts)
 
 
-def measure_stem_set(stem_set, options, options_key: str, store=None, fresh: bool = False):
+def longest_declared_s(stem_set) -> float | None:
+    """The longest length the headers of a set's stems and mix declare (the lockstep read
+    runs that long), or None when none declares one."""
+    from checker.run.workers import probe_duration_s
+
+    paths = list(stem_set.stem_paths) + ([stem_set.mix_path] if stem_set.mix_path else [])
+    lengths = [s for s in map(probe_duration_s, paths) if s is not None]
+    return max(lengths, default=None)
+
+
+def measure_stem_set(
+    stem_set, options, options_key: str, store=None, fresh: bool = False, on_frames=None
+):
     """(the set's SetMeasurement, True when it came from the store): stored values when its
-    files are unchanged, else one lockstep pass, stored when it read every file."""
+    files are unchanged, else one lockstep pass, stored when it read every file.
+    ``on_frames``: how far that pass has got (checker.stems.sets.check_stem_set)."""
     from checker.stems.sets import SetMeasurement, check_stem_set
 
     key = stem_set_key(stem_set, options_key) if store is not None else None
@@ -69,6 +83,7 @@ def measure_stem_set(stem_set, options, options_key: str, store=None, fresh: boo
         options,
         name=stem_set.name,
         folder=stem_set.folder,
+        on_frames=on_frames,
     )
     if key is not None and not sm.errors:  # read errors may be passing: measure again next run
         store.put_stem_set(key, stem_set.folder, sm.to_dict())
@@ -85,16 +100,23 @@ def with_stem_sets(
     store=None,
     fresh: bool = False,
     on_set=None,
+    progress=None,
 ) -> list[FileResult]:
     """Set rows (one per folder), each followed by its stems' own rows, then the other rows.
-    ``on_set(row, from_store)`` is called for each set row as it is judged."""
+    ``on_set(row, from_store)`` is called for each set row as it is judged. ``progress``
+    (checker.run.progress.Progress): told which set is read and how far it has got."""
     from checker.stems.sets import evaluate_set, stem_set_from_folder
 
     by_path = {os.path.abspath(r.path): r for r in results}
     ordered, used = [], set()
-    for folder in folders:
+    for number, folder in enumerate(folders, 1):
         stem_set = stem_set_from_folder(folder, mix)
-        sm, from_store = measure_stem_set(stem_set, options, options_key, store, fresh)
+        on_frames = None
+        if progress is not None and progress.enabled:
+            total_s = longest_declared_s(stem_set)
+            on_frames = progress.set_started(number, len(folders), stem_set.name, total_s)
+            on_frames = live.held(on_frames, live.HOLD_SET_ENV)
+        sm, from_store = measure_stem_set(stem_set, options, options_key, store, fresh, on_frames)
         row = evaluate_set(sm, profile)
         if on_set is not None:
             on_set(row, from_store)

@@ -44,7 +44,7 @@ from typing import Any
 
 import numpy as np
 
-from checker.analysis.onepass import resolve_layout
+from checker.analysis.onepass import FramesCallback, resolve_layout
 from checker.io.audio import DEFAULT_BLOCK_FRAMES, Block, StreamInfo, read_blocks
 from checker.io.intake import is_audio
 from checker.meters.base import MeasureOptions
@@ -164,8 +164,16 @@ def check_stem_set(
     max_lag_samples: int = DEFAULT_MAX_LAG_SAMPLES,
     slip_window_s: float = DEFAULT_SLIP_WINDOW_S,
     start_threshold_dbfs: float | None = None,
+    on_frames: FramesCallback | None = None,
 ) -> SetMeasurement:
-    """Check a stem set in one lockstep pass. Unreadable files become errors, never raise."""
+    """Check a stem set in one lockstep pass. Unreadable files become errors, never raise.
+
+    ``on_frames(frames_done, sample_rate_hz)``: called after each lockstep step with the
+    frames read so far (the longest file's position; the rate of the first readable stem,
+    else the mix's, else 0): strictly increasing, the last call equals the longest
+    decoded length of the stems and the mix whatever the block size (a set with no frames
+    gets one call with 0), as measure()'s. For a progress line (checker/run/stemsets.py);
+    the values do not depend on it."""
     options = options or MeasureOptions()
     stem_paths = [str(p) for p in stem_paths]
     if folder is None:
@@ -211,7 +219,7 @@ def check_stem_set(
         if null_reason is None:
             null = NullAccumulator(readable[0].tracker.info.channels, max_lag_samples)
         aligner = SetAligner.make(readable, mix, sum_reason, null_reason, slip_window_s)
-        _run(readable, mix, sum_meters, null, aligner)
+        _run(readable, mix, sum_meters, null, aligner, on_frames)
     finally:
         for s in readable + ([mix] if mix else []):
             s.close()
@@ -305,9 +313,18 @@ def _null_problem(stems, mix, mix_path, sum_reason) -> str | None:
     return None
 
 
-def _run(stems: list[_Source], mix: _Source | None, sum_meters, null, aligner=None) -> None:
+def _run(
+    stems: list[_Source],
+    mix: _Source | None,
+    sum_meters,
+    null,
+    aligner=None,
+    on_frames: FramesCallback | None = None,
+) -> None:
     """The lockstep loop: one block of every file per step."""
     channels = stems[0].tracker.info.channels if stems else 1
+    first = stems[0] if stems else mix
+    rate_hz = first.tracker.info.sample_rate_hz if first is not None else 0
     pos = 0
     while True:
         each = [s.next() for s in stems]
@@ -315,6 +332,8 @@ def _run(stems: list[_Source], mix: _Source | None, sum_meters, null, aligner=No
         mix_block = mix.next() if mix else None
         n = max([b.frames for b in blocks] + [mix_block.frames if mix_block else 0])
         if n == 0:
+            if on_frames is not None and pos == 0:
+                on_frames(0, rate_hz)
             return
         if aligner is not None:
             aligner.feed(each, mix_block, n)
@@ -328,6 +347,8 @@ def _run(stems: list[_Source], mix: _Source | None, sum_meters, null, aligner=No
                 m = mix_block.x if mix_block is not None else np.zeros((0, channels))
                 null.feed(m, total)
         pos += n
+        if on_frames is not None:
+            on_frames(pos, rate_hz)
 
 
 def _set_values(stems, mix, names) -> dict[str, Any]:

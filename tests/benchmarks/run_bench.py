@@ -12,7 +12,8 @@ Per file (threads used by each row in brackets): (a) decode only [1]; (b)
 (b1) the same analysis on one thread, what a batch worker spends per file [1]; (b0)
 b with the compiled kernels off [2]; (c) pyloudnorm integrated [1]; (d) pyebur128
 integrated + LRA + true peak + sample peak [1]; (d1) pyebur128 integrated only [1].
-Then: the progress callback's cost (b1 with and without it, per block); a batch with
+Then: the progress callback's cost (b1 with and without it, per block; a stem set's
+lockstep read of three files with and without it); a batch with
 --jobs 1 and --jobs 2, the same with a second process spinning
 on one core; the per-file overhead of one-second files against the same audio as
 one file (--jobs 1); with --long, peak RSS of a 3-hour file against a 10-minute one.
@@ -277,6 +278,23 @@ def bench_progress(path: Path, reps: int) -> None:
             )
 
 
+def bench_set_progress(stems: list[Path], reps: int) -> None:
+    """A stem set's lockstep read with and without the progress callback, runs alternating."""
+    w = str(HERE / "workloads.py")
+    info = sf.info(str(stems[0]))
+    dur = info.frames / info.samplerate
+    runs: dict[str, list[Run]] = {"without": [], "with": []}
+    for _ in range(reps):
+        runs["without"].append(run_once([PY, w, "set", *map(str, stems)]))
+        runs["with"].append(run_once([PY, w, "set-progress", *map(str, stems)]))
+    a, b = medians(runs["without"]), medians(runs["with"])
+    print(
+        f"\nstem set read ({len(stems)} stems of {dur / 60:.1f} min, 48,000-frame steps) [1 thread]:"
+        f" CPU without the progress callback {a.cpu_s:.2f} s, with {b.cpu_s:.2f} s, ratio "
+        f"{b.cpu_s / a.cpu_s:.3f}; wall ratio {b.wall_s / a.wall_s:.3f}"
+    )
+
+
 def bench_memory(long_file: Path, short_file: Path, reps: int) -> None:
     """Peak RSS of (b) on a 3-hour file against a 10-minute one: streaming keeps it flat."""
     print("\nmemory: deliverycheck measure (2 threads), peak RSS (MB) by file length")
@@ -439,6 +457,7 @@ def main(argv: list[str] | None = None) -> int:
         for i in range(batch)
     ]
     bench_progress(files[3], max(1, min(reps, 5)))
+    bench_set_progress(ten[:3], max(1, min(reps, 5)))
     bench_jobs(ten, max(1, min(reps, 3)), c / "batch-out")
     shorts, joined = make_shorts(c / f"clips-{clips}", clips)
     bench_overhead(shorts, joined, max(1, min(reps, 5)), c / "clips-out")

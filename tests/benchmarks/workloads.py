@@ -98,6 +98,16 @@ def on_frames_cost(calls: int = 200_000) -> None:
     print(f"{1e9 * statistics.median(times) / calls:.0f}")
 
 
+def stem_set_read(paths: list[str], report: bool) -> None:
+    """(q) A stem set's lockstep read (checker.stems.sets.check_stem_set, in a batch's parent
+    process), with or without the progress line's callback after every step."""
+    from checker.run.progress import Progress
+    from checker.stems.sets import check_stem_set
+
+    on_frames = Progress(None).set_started(1, 1, "bench", None) if report else None
+    check_stem_set(paths, None, on_frames=on_frames)
+
+
 def truepeak_skip(path: str, block_frames: int) -> None:
     """True-peak chunks interpolated / seen (the skip bound's effect), printed as 'n m'."""
     from checker.io.audio import read_blocks
@@ -115,6 +125,9 @@ def truepeak_skip(path: str, block_frames: int) -> None:
 
 if __name__ == "__main__":
     which, path = sys.argv[1], sys.argv[2]
+    if which in ("set", "set-progress"):  # argv: the set's files
+        stem_set_read(sys.argv[2:], which == "set-progress")
+        raise SystemExit(0)
     frames = int(sys.argv[3]) if len(sys.argv) > 3 else 48_000
     if which == "decode":
         decode_only(path, frames)
