@@ -169,7 +169,12 @@
     // the speech lane only where the speech gate ran (measure --speech, or a speech profile)
     var sp = decode(tl && tl.speech_active);
     var hasSpeech = sp.some(function (v) { return typeof v === "number"; });
-    var H = T + PH + GAP + (hasSpeech ? 3 : 2) * LANE + 34;
+    // the programme lane only where a span or parts were asked for (checker/analysis/span.py)
+    var parts = Array.isArray(vals.parts) ? vals.parts : [];
+    var hasSpan = typeof vals.programme_start_s === "number" && typeof vals.programme_end_s === "number";
+    var hasProgramme = hasSpan || parts.length > 0;
+    var lanes = 2 + (hasSpeech ? 1 : 0) + (hasProgramme ? 1 : 0);
+    var H = T + PH + GAP + lanes * LANE + 34;
     var shift = d.judged ? d.judged.offset_lu : 0;  // mono judged as dual mono: the judged scale
     var st = decode(tl && tl.short_term_lufs), mo = decode(tl && tl.momentary_lufs);
     var n = tl ? tl.n : 0, time = function (i) { return tl.t ? tl.t[i] : tl.t0 + i * tl.dt; };
@@ -249,9 +254,11 @@
     svg("text", { x: L + 6, y: T + PH - 6, fill: "#24577a" }, root).textContent = "quieter";
     svg("rect", { x: L, y: T, width: W - L - R, height: PH, fill: "none", stroke: "#d9d5cb" }, root);
     // lanes
-    var laneY = [T + PH + GAP, T + PH + GAP + LANE, T + PH + GAP + 2 * LANE];
+    var laneY = [];
+    for (var li = 0; li < lanes; li++) laneY.push(T + PH + GAP + li * LANE);
     var laneDefs = [["overs and flags", "lane-overs"], ["no loudness", "lane-quiet"]];
     if (hasSpeech) laneDefs.push(["speech", "lane-speech"]);
+    if (hasProgramme) laneDefs.push(["programme", "lane-programme"]);
     laneDefs.forEach(function (ln, k) {
       svg("rect", { "class": ln[1], x: L, y: laneY[k], width: W - L - R, height: LANE - 3, fill: "#f1efe9" }, root);
       svg("text", { x: L - 6, y: laneY[k] + 14, "text-anchor": "end", fill: "#6b7385", "font-size": "10" }, root).textContent = ln[0];
@@ -284,6 +291,29 @@
           spStart = null;
         }
       }
+    }
+    if (hasProgramme) {  // what was left out (head, tail) and the parts between breaks
+      var py = laneY[lanes - 1];
+      var outside = function (t0, t1, label) {
+        if (!(t1 > t0)) return;
+        var g = svg("g", { "class": "excluded" }, root);
+        svg("rect", { x: x(t0), y: py + 3, width: Math.max(1, x(t1) - x(t0)), height: LANE - 9, fill: "none", stroke: "#9aa3b5", "stroke-dasharray": "2 2" }, g);
+        svg("title", {}, g).textContent = label + ", " + fmt("x_s", t0) + "\u2013" + withUnit(t1, "s") + ": not in the programme";
+      };
+      if (hasSpan) {
+        outside(0, vals.programme_start_s, "head");
+        outside(vals.programme_end_s, dur, "tail");
+      }
+      var spans = parts.length ? parts : (hasSpan ? [{ part: 1, start_s: vals.programme_start_s, end_s: vals.programme_end_s }] : []);
+      spans.forEach(function (pt, i) {
+        if (typeof pt.start_s !== "number" || typeof pt.end_s !== "number") return;
+        var g = svg("g", { "class": "part" }, root);
+        svg("rect", { x: x(pt.start_s), y: py + 3, width: Math.max(1, x(pt.end_s) - x(pt.start_s)), height: LANE - 9, fill: i % 2 ? "#6d5a8f" : "#8a78a8" }, g);
+        if (parts.length && x(pt.end_s) - x(pt.start_s) > 14) {
+          svg("text", { x: (x(pt.start_s) + x(pt.end_s)) / 2, y: py + 14, "text-anchor": "middle", fill: "#fbfaf7", "font-size": "10" }, g).textContent = String(pt.part);
+        }
+        svg("title", {}, g).textContent = (parts.length ? "part " + pt.part : "programme") + ", " + fmt("x_s", pt.start_s) + "\u2013" + withUnit(pt.end_s, "s") + (typeof pt.integrated_lufs === "number" ? ": integrated " + withUnit(pt.integrated_lufs, "LUFS") : "");
+      });
     }
     var max = vals.max_short_term_lufs;
     desc.textContent = plotted ? ("Short-term loudness as distance from " + (hasTarget ? "the target" : "the file's own level") + " over " + clock(dur) + "; highest short-term " + fmt("x_lufs", max) + " LUFS; " + (d.marks || []).length + " marked positions.") : "No loudness values to draw.";
@@ -352,7 +382,7 @@
         ["l-mark", "over or flagged position", (d.marks || []).length > 0]].forEach(function (p) {
         if (p[2]) legend.appendChild(el("li", { "class": p[0] }, p[1]));
       });
-      fig.appendChild(el("figcaption", null, "How far the short-term loudness (3 s) sits above or below the target, in LU; the lanes below mark true-peak overs and flagged positions, stretches with no loudness (silence, or below the gate) and, where the speech gate ran, the stretches it heard as speech. Reduced to at most a few hundred points, keeping each stretch's loudest value."));
+      fig.appendChild(el("figcaption", null, "How far the short-term loudness (3 s) sits above or below the target, in LU; the lanes below mark true-peak overs and flagged positions, stretches with no loudness (silence, or below the gate), where the speech gate ran the stretches it heard as speech, and where a programme span or parts were asked for the programme's parts (numbered) with the left-out head and tail dashed. Reduced to at most a few hundred points, keeping each stretch's loudest value."));
     } else {
       fig.appendChild(el("p", { "class": "muted" }, "No loudness timeline was stored for this file."));
     }

@@ -407,3 +407,52 @@ def test_programme_parts_are_one_line_each_in_the_detail(browser, tmp_path):
     assert page.locator("#detail-body ul.parts b").count() == 0
     assert watch.errors == []
     page.close()
+
+
+def test_the_programme_lane_shows_parts_and_what_was_left_out(browser, tmp_path):
+    # A 20 s file: a 3 s head (line-up tone) and a 2 s tail left out (programme 3-18 s), two
+    # parts (3-9 s and 12-18 s). The lane draws both parts, numbered, and the dashed head and
+    # tail; a file without a span or parts has no programme lane.
+    n = 200
+    short = np.full(n, -23.0)
+    tl = build_timeline({"short_term_lufs": (0.1, short), "momentary_lufs": (0.1, short)})
+    parts = [
+        {"part": 1, "start_s": 3.0, "end_s": 9.0, "integrated_lufs": -22.5},
+        {"part": 2, "start_s": 12.0, "end_s": 18.0, "integrated_lufs": -23.4},
+    ]
+    spanned = {
+        **values(duration_s=20.0),
+        "programme_start_s": 3.0,
+        "programme_end_s": 18.0,
+        "parts": parts,
+        "parts_count": 2,
+    }
+    rows = [
+        FileResult("show/a.wav", "pass", Measurement("show/a.wav", spanned, tl), Verdict("pass")),
+        FileResult(
+            "show/b.wav",
+            "pass",
+            Measurement("show/b.wav", values(duration_s=20.0), tl),
+            Verdict("pass"),
+        ),
+    ]
+    html = write_reports(tmp_path, make_run(), rows)["html"]
+    page, watch = open_report(browser, html)
+    seen = {}
+    for i in range(2):
+        page.click(f"#file-rows tr:nth-child({i + 1}) button.open")
+        name = page.text_content("#detail-title")
+        seen[name] = (
+            page.locator("#detail-body svg rect.lane-programme").count(),
+            page.locator("#detail-body svg g.part").count(),
+            page.locator("#detail-body svg g.excluded").count(),
+            page.locator("#detail-body svg g.part text").all_text_contents(),
+        )
+        if name == "a.wav":
+            titles = page.locator("#detail-body svg g.excluded title").all_text_contents()
+            assert titles[0].startswith("head, 0.00") and "not in the programme" in titles[0]
+            assert titles[1].startswith("tail, 18.00")
+        page.keyboard.press("Escape")
+    assert seen == {"a.wav": (1, 2, 2, ["1", "2"]), "b.wav": (0, 0, 0, [])}
+    assert watch.errors == []
+    page.close()
