@@ -103,6 +103,14 @@ def measure_task(
         return ("error", f"{path}: measuring failed ({type(exc).__name__}: {text})", True)
 
 
+def longest_first(tasks: list[Task]) -> list[Task]:
+    """The order files go to the workers: the largest first (size stands in for measuring
+    time), ties in batch order. A long file handed out last would be measured alone while
+    the other workers sit idle; handed out first, the short ones fill in around it
+    (longest-processing-time-first scheduling)."""
+    return sorted(tasks, key=lambda task: -task.size_bytes)
+
+
 def probe_duration_s(path: str) -> float | None:
     """Duration from the header (cheap), or None when unknown or unreadable."""
     try:
@@ -264,7 +272,7 @@ class LocalPool:
     ) -> Iterator[tuple[Task, Outcome]]:
         """``ledger`` (checker.run.progress.AudioLedger): told each file's size, declared
         length, seconds decoded as it goes and seconds at the end."""
-        pending = deque(tasks)
+        pending = deque(longest_first(tasks))
         if not pending:
             return
         self.ledger = ledger
@@ -462,7 +470,7 @@ class DaskPool:
         client, cluster = self._client()
         try:
             futures = {}
-            for task in tasks:
+            for task in longest_first(tasks):
                 fut = client.submit(measure_task, task.path, options, self.measure_fn, pure=False)
                 futures[fut] = task
             for fut in as_completed(list(futures)):
