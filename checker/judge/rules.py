@@ -35,8 +35,8 @@ from checker.profile.catalogue import (
     SET,
     TARGET,
     measured_keys,
-    with_derived,
 )
+from checker.profile.derived import with_derived
 from checker.profile.load import Limit, Profile
 
 #: Comparisons allow this much float slack, so a value exactly at a limit passes.
