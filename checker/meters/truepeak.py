@@ -84,7 +84,6 @@ block) and sends the rest to the per-chunk code.
 from __future__ import annotations
 
 import copy
-import functools
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -95,28 +94,22 @@ from checker.dsp import native
 from checker.dsp.interp import (
     CHUNK_FRAMES,
     ROW_POSITIONS,
-    ChunkInterpolator,
     ChunkStream,
     default_omega_max,
-    design_phases,
-    fractional_taps,
     oversampling_for_rate,
-    phase_abs_sums,
     refine_gain_bound,
-    step_weights,
 )
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.truepeak_refine import EDGE_S, FINE_STEPS, TruePeakRefinement, _State
+from checker.meters.truepeak_skip import TruePeakSkip, _design
 from checker.meters.truepeak_span import RESET_DBFS, TruePeakSpanRecords
 from checker.model.units import amplitude_to_db, db_to_amplitude
 
 #: A maximum within EDGE_S of either end of the file is flagged as at the edge when it exceeds
 #: every point in between by more than this (our over-read bound).
 EDGE_DOMINANCE_DB = 0.05
-#: Relative margin on the skip bound (float32 dot products of <= 48 terms err < 3e-6).
-BOUND_MARGIN = 1e-4
 
 
 @dataclass(frozen=True)
@@ -143,40 +136,7 @@ class TruePeakResult:
         }
 
 
-@dataclass(frozen=True)
-class _Design:
-    interp: ChunkInterpolator
-    phase_rows: np.ndarray  # phases 1..factor-1 as rows (float32), for the compiled grid
-    fine_taps: np.ndarray
-    tap_bound: float
-    bound: np.ndarray
-
-
-@functools.lru_cache(maxsize=4)
-def _design(factor: int) -> _Design:
-    """The filters for one oversampling factor, built once per process (a few ms per file
-    otherwise) and shared read-only by every meter of that factor."""
-    phases = design_phases(factor)
-    interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
-    phase_rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
-    fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS, phases.shape[0])
-    # Skip bound over every grid phase (as the float32 product uses them) and fine offset.
-    rows = np.concatenate([phases.T.astype(np.float32).astype(np.float64), fine_taps])
-    tap_bound = float(phase_abs_sums(rows.T).max())
-    bound = np.array(
-        [
-            tap_bound,
-            float(np.abs(rows.sum(axis=1)).max()),
-            float(step_weights(rows).max()),
-            BOUND_MARGIN,
-        ]
-    )
-    for a in (interp.matrix, phase_rows, fine_taps, bound):
-        a.flags.writeable = False
-    return _Design(interp, phase_rows, fine_taps, tap_bound, bound)
-
-
-class TruePeakMeter(TruePeakRefinement, TruePeakSpanRecords):
+class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
     """Streaming true-peak meter; see the module docstring for the method."""
 
     def __init__(
@@ -264,11 +224,6 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSpanRecords):
                 continue
             self._chunk(self.state, j, window, None)
 
-    def _evenly_spaced(self, chunks: list[tuple[int, np.ndarray]]) -> bool:
-        first = chunks[0][1]
-        hop = self.stream.step * first.strides[1]
-        return chunks[-1][1].ctypes.data == first.ctypes.data + (len(chunks) - 1) * hop
-
     def _native_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
         """Compiled twin of the numpy path below (kernels.c, dc_tp_chunks): skip test,
         grid, maxima and overs of all of a block's chunks in one call; the refinement of
@@ -311,37 +266,6 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSpanRecords):
         lo = self.interp.history - back
         w = window[lo : lo + self.interp.positions + self.interp_taps - 1]
         return native.tp_grid(w, self.interp.positions, self.phase_rows, self.factor)
-
-    def _skipped_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> np.ndarray:
-        """Per chunk: True when _chunk would skip it on every channel. Tested for all of a
-        block's chunks at once (one reduction instead of one per chunk), against the running
-        maxima as they stand before the block: they only grow, so every chunk passed here
-        is one _chunk skips too, and the result is the same bit for bit."""
-        first = chunks[0][1]
-        count, width = len(chunks), first.shape[1]
-        size = first.strides[1]
-        hop = self.stream.step * size
-        if not self._evenly_spaced(chunks):
-            return np.zeros(count, dtype=bool)  # not evenly spaced views: test per chunk
-        windows = np.lib.stride_tricks.as_strided(
-            first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
-        )
-        return self._skippable(windows, self.state.best[:, None]).all(axis=0)
-
-    def _skippable(self, windows: np.ndarray, best: np.ndarray) -> np.ndarray:
-        """Where a window (last axis: samples) cannot beat the running maxima ``best`` nor
-        reach the ceiling: the exact bound of the module docstring, from the window's
-        largest sample and largest step (kernels.c tp_reach does the same arithmetic).
-        The steps are only looked at when the samples alone leave the question open
-        (``S * P`` is a lower bound of the reach, as B >= S)."""
-        b = self.bound
-        p = np.maximum(windows.max(axis=-1), -windows.min(axis=-1)).astype(np.float64)
-        floor = b[1] * p * (1.0 + b[3])
-        if not ((floor * self.fine_gain <= best) & (floor <= self.ceiling_amp)).any():
-            return np.zeros(np.broadcast_shapes(p.shape, np.shape(best)), dtype=bool)
-        d = np.abs(np.diff(windows, axis=-1)).max(axis=-1).astype(np.float64)
-        reach = np.minimum(b[0] * p, b[1] * p + b[2] * d) * (1.0 + b[3])
-        return (reach * self.fine_gain <= best) & (reach <= self.ceiling_amp)
 
     def _chunk(self, st: _State, j: int, window: np.ndarray, last_frame: int | None) -> None:
         """Process chunk j (window: channels x frames). Centres: all its grid points, or
