@@ -16,7 +16,7 @@ Definitions (project choices):
   sample (exact comparison of the decoded values). Pairs with a silent channel are
   never reported as identical or inverted.
 
-NaN/Inf samples count as 0 (see checker.meters.levels.finite_x).
+NaN/Inf samples count as 0 (see checker.meters.samples.finite_x).
 """
 
 from __future__ import annotations
@@ -32,7 +32,7 @@ from checker.io.audio import Block, StreamInfo
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.blockstats import sample_stats, segment_frames
-from checker.meters.levels import channels_first, finite_x
+from checker.meters.samples import channels_first, finite_x
 from checker.model.units import db_to_amplitude
 
 SILENT_CHANNEL_PEAK_DBFS = -80.0

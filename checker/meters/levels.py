@@ -22,8 +22,9 @@ Definitions (project choices unless a source is named):
   over the other channels.
 - RMS: per channel over the whole file, re 1.0 (a full-scale sine reads
   -3.01 dBFS, see checker.model.units.power_to_db); ``rms_dbfs`` is the loudest channel.
-- Noise floor: the signal is cut into 100 ms segments (one record of per-channel
-  sums of squares and a count of all-channel digital-zero frames per segment);
+- Noise floor (checker/meters/levels_floor.py): the signal is cut into 100 ms
+  segments (one record of per-channel sums of squares and a count of all-channel
+  digital-zero frames per segment);
   400 ms blocks step by 100 ms. A block's level is the RMS of its loudest channel.
   Every block counts, whatever it holds (programme, room tone, dither, digital
   zero), except those touching the digital-zero padding at either end of the file
@@ -45,7 +46,7 @@ Definitions (project choices unless a source is named):
   N = effective_bits (6.02 N + 1.76 dB rule). None for float files that are not on
   an integer grid (no fixed quantization floor) and for lossy files.
 - Non-finite samples (NaN/Inf, float files only) are counted and treated as 0 by
-  every sample-domain meter (:func:`finite_x`), so no NaN reaches any result.
+  every sample-domain meter (checker.meters.samples.finite_x), so no NaN reaches any result.
 """
 
 from __future__ import annotations
@@ -60,24 +61,11 @@ from checker.io.audio import INT32_SCALE, MAX_SAMPLE_MAGNITUDE, Block, StreamInf
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
 from checker.meters.blockstats import piece_squares, sample_stats, segment_cuts, segment_frames
+from checker.meters.levels_floor import MAX_GRID_BITS, LevelsNoiseFloor
+from checker.meters.samples import _EMPTY, channels_first, find_runs, finite_x, keep_first
 from checker.meters.steprecords import StepRecorder
 from checker.model.units import amplitude_to_db, power_to_db, quantization_floor_dbfs
 
-NOISE_BLOCK_SEGMENTS = 4  # 400 ms blocks, 100 ms step
-NOISE_FLOOR_PERCENTILE = 10.0
-#: A floor within this of a TPDF dither's RMS is dither (issue 16; project choice).
-DITHER_MARGIN_DB = 1.0
-#: A floor at least this far below the median 400 ms block is room tone, not programme
-#: (project choice: speech pauses sit 30-50 dB below the speech).
-ROOM_TONE_GAP_DB = 20.0
-#: 20 log10(2): the RMS of N-bit TPDF dither with quantization is LSB/2 = 2**-N of full scale.
-DB_PER_BIT = 6.020599913279624
-#: 20 log10(sqrt(6) / 2): dither alone (LSB/sqrt 6) lies this far below LSB/2.
-DITHER_ALONE_BELOW_DB = 1.760912590556812
-#: Float files finer than this grid report their format's bits.
-MAX_GRID_BITS = 24
-
-_EMPTY = np.empty(0, dtype=np.int64)
 #: Finite float samples beyond MAX_SAMPLE_MAGNITUDE (about +602 dBFS), counted with NaN/Inf.
 OUT_OF_RANGE = "Out-of-range (beyond +-2**100, about +602 dBFS)"
 _KINDS = ("NaN", "Inf", OUT_OF_RANGE)
@@ -92,49 +80,6 @@ def _kind_order(item: tuple[str, Any]) -> int:
 COMPACT_AFTER = 64
 
 
-def finite_x(block: Block) -> np.ndarray:
-    """The block's float samples with NaN/Inf replaced by 0 (a copy only when needed)."""
-    x = block.x
-    if block.raw is not None:
-        return x
-    finite = np.isfinite(x)
-    if finite.all():
-        return x
-    return np.where(finite, x, 0.0)
-
-
-def find_runs(
-    mask: np.ndarray, start: int, open_start: int | None
-) -> tuple[np.ndarray, np.ndarray, int | None]:
-    """Runs of True in a 1-D block mask, continuing a run open since ``open_start``.
-
-    Returns the absolute (starts, ends) of runs that closed inside this block
-    (end exclusive; a run still open at block start is included with its old
-    start) and the start of the run left open at the block's end, or None.
-    """
-    n = mask.size
-    if n == 0 or (open_start is None and not mask.any()):
-        return _EMPTY, _EMPTY, open_start
-    m = mask.astype(np.int8)
-    d = np.diff(m, prepend=np.int8(open_start is not None))
-    starts = np.flatnonzero(d == 1) + start
-    ends = np.flatnonzero(d == -1) + start
-    if open_start is not None:
-        starts = np.concatenate((np.array([open_start], dtype=np.int64), starts))
-    new_open = None
-    if starts.size > ends.size:
-        new_open = int(starts[-1])
-        starts = starts[:-1]
-    return starts, ends, new_open
-
-
-def keep_first(kept: np.ndarray, new: np.ndarray, limit: int) -> np.ndarray:
-    """The ``limit`` smallest distinct values of kept and new (sorted)."""
-    if new.size == 0:
-        return kept
-    return np.unique(np.concatenate((kept, new)))[:limit]
-
-
 def integer_full_scale_codes(info: StreamInfo) -> tuple[int, int]:
     """(largest, smallest) int32 code of the format, left-justified."""
     bits = info.format_bits or 32
@@ -146,12 +91,6 @@ def trailing_zero_bits(code: int) -> int:
     """Trailing zero bits of a nonzero 32-bit two's complement code."""
     v = code & 0xFFFFFFFF
     return (v & -v).bit_length() - 1
-
-
-def channels_first(x: np.ndarray) -> np.ndarray:
-    """A contiguous (channels, frames) copy: numpy reduces along the last axis far
-    faster than across a short first axis (about 10x for stereo)."""
-    return np.ascontiguousarray(x.T)
 
 
 def _zero_frames(xt: np.ndarray) -> np.ndarray:
@@ -202,7 +141,7 @@ class LevelsResult:
         return d
 
 
-class LevelsMeter:
+class LevelsMeter(LevelsNoiseFloor):
     #: measure() feeds this meter the untouched block so it can count NaN/Inf samples;
     #: the other meters see those samples as 0.
     sees_nonfinite = True
@@ -452,76 +391,6 @@ class LevelsMeter:
         if len(used) < ch:
             note = "digital-zero channels have no bits in use and are left out"
         return min(used), per, note
-
-    def _noise_floor(self, bits: int | None) -> tuple[float | None, str | None, str | None]:
-        """(noise_floor_dbfs, noise_floor_kind, noise_floor_note); see the module doc."""
-        short = (None, None, "shorter than one 400 ms block")
-        if not self.seg_sums:
-            return short
-        sums = np.concatenate(self.seg_sums)
-        zeros = np.concatenate(self.seg_zeros)
-        k = sums.shape[0] - NOISE_BLOCK_SEGMENTS + 1
-        if k < 1:
-            return short
-        power = sum(sums[i : i + k] for i in range(NOISE_BLOCK_SEGMENTS))
-        level = power.max(axis=1) / (NOISE_BLOCK_SEGMENTS * self.seg_len)
-        signal = np.flatnonzero(zeros < self.seg_len)  # segments not wholly digital zero
-        if signal.size == 0:
-            return -np.inf, "digital silence", "digital zero throughout"
-        first, last = int(signal[0]), int(signal[-1])
-        first += int(first > 0 and zeros[first] > 0)  # the segment where the padding ends
-        last -= int(last < zeros.size - 1 and zeros[last] > 0)
-        start = np.arange(k)
-        keep = level[(start >= first) & (start + NOISE_BLOCK_SEGMENTS - 1 <= last)]
-        if keep.size == 0:  # all blocks touch the padding: judge the ones with signal
-            keep = level[level > 0.0]
-        p = float(np.percentile(keep, NOISE_FLOOR_PERCENTILE, method="lower"))
-        if p == 0.0:
-            return (
-                -np.inf,
-                "digital silence",
-                "the quietest 10 % of the file is digital zero: no noise to measure "
-                "(room tone or dither would show here)",
-            )
-        floor = power_to_db(p)
-        kind_note = self._dither(floor, bits)
-        if kind_note is None:
-            gap = power_to_db(float(np.median(keep))) - floor
-            if gap >= ROOM_TONE_GAP_DB:
-                kind_note = (
-                    "room tone",
-                    f"the quietest passages, {gap:.0f} dB below the median 400 ms block: "
-                    "room tone or other background noise",
-                )
-            else:
-                kind_note = (
-                    "programme",
-                    f"no quiet passage (the quietest 10 % is only {gap:.0f} dB below the median "
-                    "400 ms block): the quietest programme, an upper bound on the noise floor",
-                )
-        return floor, *kind_note
-
-    def _dither(self, floor: float, bits: int | None) -> tuple[str, str] | None:
-        """("dither" | "near silence", note) when the floor is at or below a TPDF dither's
-        level for the effective bits (16 and 24 for float files off an integer grid)."""
-        if self.info.is_float:
-            depths = (bits,) if bits is not None and bits <= MAX_GRID_BITS else (16, 24)
-        elif self.info.is_integer_pcm and bits is not None:
-            depths = (bits,)
-        else:
-            return None
-        for n in depths:
-            with_q = -DB_PER_BIT * n  # LSB/2, textbook
-            alone = with_q - DITHER_ALONE_BELOW_DB  # LSB/sqrt(6), textbook
-            if alone - DITHER_MARGIN_DB <= floor <= with_q + DITHER_MARGIN_DB:
-                return (
-                    "dither",
-                    f"the level of {n}-bit TPDF dither ({alone:.1f} dBFS RMS alone, "
-                    f"{with_q:.1f} dBFS with its quantization): the quietest parts are dither",
-                )
-        if floor < -DB_PER_BIT * depths[0] - DITHER_ALONE_BELOW_DB - DITHER_MARGIN_DB:
-            return "near silence", f"below {depths[0]}-bit dither: only a few non-zero codes"
-        return None
 
     def _findings(self) -> tuple[str, ...]:
         return tuple(

@@ -54,6 +54,8 @@ from checker.dsp.kweighting import k_weighting_sos
 from checker.io.audio import MAX_SAMPLE_MAGNITUDE, Block, StreamInfo, out_of_range
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
+from checker.meters.gating import integrated_from_blocks, loudness_range_from_short_term
+from checker.meters.slidingmax import COMPACT_AFTER, _boundaries, _SlidingMax
 from checker.model import units
 
 HOP_S = 0.1
@@ -61,20 +63,8 @@ MOMENTARY_STEPS = 4  # 400 ms of 100 ms steps
 SHORT_TERM_STEPS = 30  # 3 s of 100 ms steps
 MOMENTARY_SUBSTEPS = 400  # 400 ms of 1 ms sub-steps
 SHORT_TERM_SUBSTEPS = 300  # 3 s of 10 ms sub-steps
-#: 100 ms records are joined into one array once this many pieces have piled up.
-COMPACT_AFTER = 64
 NO_CUTS = np.empty(0, dtype=np.int64)
-#: Unit roundoff of float64 (bounds the running-sum estimate's error in _SlidingMax).
-EPS = float(np.finfo(np.float64).eps)
-RELATIVE_GATE_LU = -10.0  # BS.1770-4
-LRA_RELATIVE_GATE_LU = -20.0  # EBU Tech 3342
-LRA_LOW_PERCENTILE = 0.10
-LRA_HIGH_PERCENTILE = 0.95
 LRA_STABLE_MIN_S = 60.0  # EBU Tech 3342: LRA of programmes under 1 minute is not stable
-
-NOTE_BELOW_GATE = "below absolute gate"
-NOTE_TOO_SHORT = "shorter than one 400 ms block"
-NOTE_LRA_TOO_SHORT = "shorter than one 3 s short-term window"
 
 
 @dataclass(frozen=True)
@@ -92,144 +82,6 @@ class LoudnessResult:
 
     def to_dict(self) -> dict:
         return asdict(self)
-
-
-def _boundaries(index: np.ndarray, rate: int, per_second: int) -> np.ndarray:
-    """Frame index where sub-step ``index`` ends: floor(index * rate / per_second)."""
-    return (index * rate) // per_second
-
-
-def integrated_from_blocks(block_powers: np.ndarray) -> tuple[float | None, str | None]:
-    """BS.1770-4 gated integrated loudness from the mean powers of complete 400 ms blocks.
-
-    Returns (LUFS, None), or (None, reason) when undefined.
-    """
-    if block_powers.size == 0:
-        return None, NOTE_TOO_SHORT
-    loudness = units.powers_to_lufs(block_powers)
-    above_abs = loudness > units.ABSOLUTE_GATE_LUFS
-    if not above_abs.any():
-        return None, NOTE_BELOW_GATE
-    relative_gate = units.power_to_lufs(float(block_powers[above_abs].mean())) + RELATIVE_GATE_LU
-    gated = above_abs & (loudness > relative_gate)
-    return units.power_to_lufs(float(block_powers[gated].mean())), None
-
-
-def loudness_range_from_short_term(
-    short_term_powers: np.ndarray,
-) -> tuple[float | None, str | None]:
-    """EBU Tech 3342 loudness range from the mean powers of complete 3 s windows.
-
-    Returns (LU, None), or (None, reason) when undefined.
-    """
-    if short_term_powers.size == 0:
-        return None, NOTE_LRA_TOO_SHORT
-    loudness = units.powers_to_lufs(short_term_powers)
-    above_abs = loudness > units.ABSOLUTE_GATE_LUFS
-    if not above_abs.any():
-        return None, NOTE_BELOW_GATE
-    mean_power = float(short_term_powers[above_abs].mean())
-    relative_gate = units.power_to_lufs(mean_power) + LRA_RELATIVE_GATE_LU
-    values = np.sort(loudness[above_abs & (loudness > relative_gate)])
-    last = values.size - 1
-    low = values[int(math.floor(last * LRA_LOW_PERCENTILE + 0.5))]
-    high = values[int(math.floor(last * LRA_HIGH_PERCENTILE + 0.5))]
-    return float(high - low), None
-
-
-class _SlidingMax:
-    """Running maximum of a sliding-window mean over sub-step power sums.
-
-    Keeps only the last ``window - 1`` sums. Window sums use a fixed summation
-    per window (sliding_window_view), so the result is the same for any split.
-    """
-
-    def __init__(self, window: int, rate: int, per_second: int, per_step: int = 0) -> None:
-        self.window = window
-        self.rate = rate
-        self.per_second = per_second
-        #: Span records (per_step > 0: sub-steps per 100 ms step): per step, the largest
-        #: window mean ending in it (running-sum estimate, within 1e-12 of the exact sum)
-        #: and that window's end frame, as (steps, powers, end frames) pieces.
-        self.per_step = per_step
-        self.step_records: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
-        self.ring = np.zeros(0)
-        self.count = 0  # sub-steps completed so far
-        self.max_power = -1.0  # no complete window yet
-        self.max_end_frame = -1
-
-    def push(self, sums: np.ndarray) -> None:
-        if sums.size == 0:
-            return
-        buf = np.concatenate((self.ring, sums))
-        self.count += sums.size
-        if buf.size >= self.window:
-            count = buf.size - self.window + 1
-            # window i of buf ends at sub-step index `last_end - (len - 1 - i)`
-            last_end = self.count
-            ends = np.arange(last_end - count + 1, last_end + 1, dtype=np.int64)
-            lengths = _boundaries(ends, self.rate, self.per_second) - _boundaries(
-                ends - self.window, self.rate, self.per_second
-            )
-            # Cheap running-sum estimates first; exact window sums only where one could be
-            # the maximum (sums of powers are >= 0, so the estimate's error is at most
-            # `slack`): the same windows win, with the same exact values, as if every
-            # window were summed exactly.
-            run = np.cumsum(buf)
-            estimate = run[self.window - 1 :].copy()
-            estimate[1:] -= run[: -self.window]
-            estimate /= lengths
-            slack = (4 * buf.size + 64) * EPS * float(run[-1]) / float(lengths.min())
-            if self.per_step:
-                self._record(ends, estimate)
-            top = float(estimate.max())
-            if top + slack > self.max_power:
-                cand = np.flatnonzero(estimate >= top - 2.0 * slack)
-                totals = sliding_window_view(buf, self.window)[cand].sum(axis=1)
-                power = totals / lengths[cand]
-                i = int(np.argmax(power))
-                if power[i] > self.max_power:
-                    self.max_power = float(power[i])
-                    end = ends[cand[i]]
-                    self.max_end_frame = int(_boundaries(end, self.rate, self.per_second))
-        self.ring = buf[-(self.window - 1) :].copy()
-
-    def _record(self, ends: np.ndarray, estimate: np.ndarray) -> None:
-        step = (ends - 1) // self.per_step  # window ending at sub-step e: e in (k p, (k+1) p]
-        starts = np.concatenate(([0], np.flatnonzero(np.diff(step)) + 1))
-        top = np.maximum.reduceat(estimate, starts)
-        counts = np.diff(np.append(starts, estimate.size))
-        first = np.flatnonzero(estimate == np.repeat(top, counts))
-        at = first[np.unique(step[first], return_index=True)[1]]
-        frames = _boundaries(ends[at], self.rate, self.per_second)
-        self.step_records.append((step[starts], np.maximum(top, 0.0), frames))
-        if len(self.step_records) > COMPACT_AFTER:
-            self.step_records = [
-                tuple(np.concatenate(c) for c in zip(*self.step_records, strict=True))
-            ]
-
-    def step_maxima(self, steps: int) -> tuple[np.ndarray, np.ndarray]:
-        """(largest window mean power ending in each of the first ``steps`` steps, -1 where
-        none; its end frame)."""
-        power = np.full(steps, -1.0)
-        frame = np.full(steps, -1, dtype=np.int64)
-        if not self.step_records:
-            return power, frame
-        k, v, f = (np.concatenate(c) for c in zip(*self.step_records, strict=True))
-        order = np.lexsort((f, -v, k))  # by step, largest first, earliest on ties
-        k, v, f = k[order], v[order], f[order]
-        keep = np.concatenate(([True], k[1:] != k[:-1])) & (k < steps)
-        power[k[keep]], frame[k[keep]] = v[keep], f[keep]
-        return power, frame
-
-    def level(self) -> tuple[float | None, float | None]:
-        """(max loudness LUFS, window end s); None when no window completed; -inf for silence."""
-        if self.max_power < 0.0:
-            return None, None
-        lufs = units.power_to_lufs(self.max_power)
-        if lufs == -math.inf:
-            return lufs, None
-        return lufs, self.max_end_frame / self.rate
 
 
 @functools.lru_cache(maxsize=8)

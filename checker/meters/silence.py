@@ -31,7 +31,7 @@ Definitions (common practice, no normative source; the window is our choice):
   trailing silence both equal the whole duration, dropouts are not counted, and
   ``silence_note`` says so.
 
-NaN/Inf samples count as 0 (see checker.meters.levels.finite_x).
+NaN/Inf samples count as 0 (see checker.meters.samples.finite_x).
 """
 
 from __future__ import annotations
@@ -47,7 +47,7 @@ from checker.dsp import native
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
-from checker.meters.levels import channels_first, find_runs, finite_x, keep_first
+from checker.meters.samples import channels_first, find_runs, finite_x, keep_first
 from checker.model.units import db_to_amplitude
 
 STEP_S = 0.001

@@ -42,7 +42,8 @@ from checker.dsp.iir import sosfilt_rows
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
-from checker.meters.loudness import MOMENTARY_STEPS, RELATIVE_GATE_LU, integrated_from_blocks
+from checker.meters.gating import RELATIVE_GATE_LU, integrated_from_blocks
+from checker.meters.loudness import MOMENTARY_STEPS
 from checker.model import units
 
 VAD_RATE_HZ = 16_000

@@ -30,29 +30,18 @@ Method
   PCM; about 1e-6 dB for 32-bit and float data). Non-finite samples of float
   files (NaN, Inf; counted by the levels meter) are taken as 0 here.
 
-Edges (decision)
-----------------
-Outside the file the signal is zero, and an interpolated point counts only when
-the filter's whole window (32 samples back, 32 ahead) lies inside the file; in
-the first and last 32 samples (0.67 ms at 48 kHz) only the samples themselves
-count. Reason: a file that starts or stops mid-waveform (as the published EBU
-Tech 3341 test tones do) is a step, and any interpolator rings on it; with zero
-padding this filter read cases 17 and 18 0.43 and 0.73 dB high, outside the
-document's +0.2 dB. With the rule they read within 0.03 dB. The price: a real
-inter-sample peak within 0.67 ms of either end is read as its sample value.
-``true_peak_at_edge`` is set when the maximum lies within the first or last
-5 ms AND exceeds every point in between by more than 0.05 dB (our over-read
-bound): a steady tone, whose maximum recurs all through the file, is not an
-edge peak even if its first (earliest) maximum falls in the first 5 ms, which
-is where ``true_peak_time_s`` then points. Points between are only compared
-when they could come within 0.69 dB of the running maximum, which cannot
-change the decision. Points in the last 5 ms are held back until result().
+Edges
+-----
+Interpolated points whose filter window reaches outside the file do not count, and
+``true_peak_at_edge`` flags a dominant maximum in the first or last 5 ms: the rule and its
+reasons are in checker/meters/truepeak_refine.py (with the refinement). Span records
+(``span_values``) are in checker/meters/truepeak_span.py.
 
 Overs
 -----
 An over is a run of consecutive oversampled grid points (before refinement) on
 one channel whose magnitude is strictly above ``options.true_peak_ceiling_dbtp``
-(edge-zone interpolated points excluded, as above). ``true_peak_overs`` sums
+(edge-zone interpolated points excluded, as in the edge rule). ``true_peak_overs`` sums
 the runs of all channels; ``true_peak_over_times_s`` holds the start times of
 the first ``options.max_positions`` runs in time order (channels in index order
 on equal times).
@@ -95,7 +84,6 @@ block) and sends the rest to the per-chunk code.
 from __future__ import annotations
 
 import copy
-import functools
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -106,36 +94,22 @@ from checker.dsp import native
 from checker.dsp.interp import (
     CHUNK_FRAMES,
     ROW_POSITIONS,
-    ChunkInterpolator,
     ChunkStream,
     default_omega_max,
-    design_phases,
-    fractional_taps,
     oversampling_for_rate,
-    phase_abs_sums,
     refine_gain_bound,
-    refine_peaks,
-    step_weights,
 )
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import Layout
 from checker.meters.base import MeasureOptions
+from checker.meters.truepeak_refine import EDGE_S, FINE_STEPS, TruePeakRefinement, _State
+from checker.meters.truepeak_skip import TruePeakSkip, _design
+from checker.meters.truepeak_span import RESET_DBFS, TruePeakSpanRecords
 from checker.model.units import amplitude_to_db, db_to_amplitude
 
-#: Maxima closer than this to either end of the file are flagged as at the edge...
-EDGE_S = 0.005
-#: ...when they exceed every point in between by more than this (our over-read bound).
+#: A maximum within EDGE_S of either end of the file is flagged as at the edge when it exceeds
+#: every point in between by more than this (our over-read bound).
 EDGE_DOMINANCE_DB = 0.05
-#: Relative margin on the skip bound (float32 dot products of <= 48 terms err < 3e-6).
-BOUND_MARGIN = 1e-4
-#: Fine evaluation around candidate maxima: steps per input sample (a multiple of 4).
-FINE_STEPS = 32
-#: Candidate maxima per chunk and channel evaluated finely (best sinusoid-fit estimates).
-FINE_CANDIDATES = 4
-#: Span records: a chunk whose samples all stay at or below this is quiet; a change between
-#: quiet and louder chunks restarts the running maximum the records are bounded by (project
-#: choice: above the -60 dBFS silence threshold, far below any programme peak).
-RESET_DBFS = -50.0
 
 
 @dataclass(frozen=True)
@@ -162,58 +136,7 @@ class TruePeakResult:
         }
 
 
-@dataclass
-class _State:
-    best: np.ndarray  # per channel, linear
-    best_index: np.ndarray  # fine index of each channel's maximum (-1: none)
-    best_inner: np.ndarray  # per channel, linear: largest value >= EDGE_S from both ends
-    in_run: np.ndarray  # last grid point of the previous chunk was above the ceiling
-    overs: int = 0
-    over_index: list[int] = field(default_factory=list)  # grid indices of first run starts
-    #: Span records (options.keeps_step_records), else None: (chunk, channel, exact
-    #: reading, fine index) of every refined chunk-channel, and (first chunk, last chunk,
-    #: running maximum after them) per fed block, which bounds every other chunk-channel.
-    refined: list[tuple[int, int, float, int]] | None = None
-    ranges: list[tuple[int, int, float]] | None = None
-    local: np.ndarray | None = None  # per channel: the running maximum of the current run
-    local_index: np.ndarray | None = None
-    last_quiet: bool | None = None  # was the last chunk quiet (None: no chunk yet)
-
-
-@dataclass(frozen=True)
-class _Design:
-    interp: ChunkInterpolator
-    phase_rows: np.ndarray  # phases 1..factor-1 as rows (float32), for the compiled grid
-    fine_taps: np.ndarray
-    tap_bound: float
-    bound: np.ndarray
-
-
-@functools.lru_cache(maxsize=4)
-def _design(factor: int) -> _Design:
-    """The filters for one oversampling factor, built once per process (a few ms per file
-    otherwise) and shared read-only by every meter of that factor."""
-    phases = design_phases(factor)
-    interp = ChunkInterpolator(phases, CHUNK_FRAMES + 2 * ROW_POSITIONS)
-    phase_rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
-    fine_taps = fractional_taps(np.arange(FINE_STEPS) / FINE_STEPS, phases.shape[0])
-    # Skip bound over every grid phase (as the float32 product uses them) and fine offset.
-    rows = np.concatenate([phases.T.astype(np.float32).astype(np.float64), fine_taps])
-    tap_bound = float(phase_abs_sums(rows.T).max())
-    bound = np.array(
-        [
-            tap_bound,
-            float(np.abs(rows.sum(axis=1)).max()),
-            float(step_weights(rows).max()),
-            BOUND_MARGIN,
-        ]
-    )
-    for a in (interp.matrix, phase_rows, fine_taps, bound):
-        a.flags.writeable = False
-    return _Design(interp, phase_rows, fine_taps, tap_bound, bound)
-
-
-class TruePeakMeter:
+class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
     """Streaming true-peak meter; see the module docstring for the method."""
 
     def __init__(
@@ -284,38 +207,6 @@ class TruePeakMeter:
         else:
             self._by_level(self.state, chunks, self._feed_chunks)
 
-    def _by_level(self, st: _State, chunks: list, run) -> None:
-        """Span records: runs of quiet chunks (every sample at or below RESET_DBFS) and runs
-        of louder ones are processed against a running maximum of their own, started
-        afresh at each change (so a louder head or earlier part, which a quiet gap
-        separates, cannot hide a quieter part's peak). Each run's own maximum is recorded
-        as the bound of its unrefined chunk-channels, then merged into the file's maximum
-        (ties keep the earlier position, as without records)."""
-        lead = self.stream.lead
-        quiet = [
-            float(np.abs(w[:, lead : lead + CHUNK_FRAMES]).max(initial=0.0)) <= self.reset_amp
-            for _, w in chunks
-        ]
-        i = 0
-        while i < len(chunks):
-            k = i
-            while k < len(chunks) and quiet[k] == quiet[i]:
-                k += 1
-            group = chunks[i:k]
-            if st.last_quiet is not None and st.last_quiet != quiet[i]:
-                st.local = np.zeros(self.channels)
-                st.local_index = np.full(self.channels, -1, dtype=np.int64)
-            st.last_quiet = quiet[i]
-            best, index = st.best, st.best_index
-            st.best, st.best_index = st.local.copy(), st.local_index.copy()
-            run(group)
-            st.local, st.local_index = st.best.copy(), st.best_index.copy()
-            st.ranges.append((group[0][0], group[-1][0], float(st.local.max(initial=0.0))))
-            keep = best >= st.best
-            st.best = np.where(keep, best, st.best)
-            st.best_index = np.where(keep, index, st.best_index)
-            i = k
-
     def _feed_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
         if chunks and chunks[0][0] == 0:  # the file's start: edge rule, per chunk below
             self._chunk(self.state, 0, chunks[0][1], None)
@@ -332,11 +223,6 @@ class TruePeakMeter:
                 self.state.in_run[:] = False
                 continue
             self._chunk(self.state, j, window, None)
-
-    def _evenly_spaced(self, chunks: list[tuple[int, np.ndarray]]) -> bool:
-        first = chunks[0][1]
-        hop = self.stream.step * first.strides[1]
-        return chunks[-1][1].ctypes.data == first.ctypes.data + (len(chunks) - 1) * hop
 
     def _native_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
         """Compiled twin of the numpy path below (kernels.c, dc_tp_chunks): skip test,
@@ -380,72 +266,6 @@ class TruePeakMeter:
         lo = self.interp.history - back
         w = window[lo : lo + self.interp.positions + self.interp_taps - 1]
         return native.tp_grid(w, self.interp.positions, self.phase_rows, self.factor)
-
-    def _skipped_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> np.ndarray:
-        """Per chunk: True when _chunk would skip it on every channel. Tested for all of a
-        block's chunks at once (one reduction instead of one per chunk), against the running
-        maxima as they stand before the block: they only grow, so every chunk passed here
-        is one _chunk skips too, and the result is the same bit for bit."""
-        first = chunks[0][1]
-        count, width = len(chunks), first.shape[1]
-        size = first.strides[1]
-        hop = self.stream.step * size
-        if not self._evenly_spaced(chunks):
-            return np.zeros(count, dtype=bool)  # not evenly spaced views: test per chunk
-        windows = np.lib.stride_tricks.as_strided(
-            first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
-        )
-        return self._skippable(windows, self.state.best[:, None]).all(axis=0)
-
-    def _skippable(self, windows: np.ndarray, best: np.ndarray) -> np.ndarray:
-        """Where a window (last axis: samples) cannot beat the running maxima ``best`` nor
-        reach the ceiling: the exact bound of the module docstring, from the window's
-        largest sample and largest step (kernels.c tp_reach does the same arithmetic).
-        The steps are only looked at when the samples alone leave the question open
-        (``S * P`` is a lower bound of the reach, as B >= S)."""
-        b = self.bound
-        p = np.maximum(windows.max(axis=-1), -windows.min(axis=-1)).astype(np.float64)
-        floor = b[1] * p * (1.0 + b[3])
-        if not ((floor * self.fine_gain <= best) & (floor <= self.ceiling_amp)).any():
-            return np.zeros(np.broadcast_shapes(p.shape, np.shape(best)), dtype=bool)
-        d = np.abs(np.diff(windows, axis=-1)).max(axis=-1).astype(np.float64)
-        reach = np.minimum(b[0] * p, b[1] * p + b[2] * d) * (1.0 + b[3])
-        return (reach * self.fine_gain <= best) & (reach <= self.ceiling_amp)
-
-    def _edge_masks(
-        self, base: int, lo: int, hi: int, last_frame: int | None
-    ) -> tuple[np.ndarray, np.ndarray] | None:
-        """(eligible, refinable) over the centres of a chunk touching a file edge, else None.
-
-        Interpolated points count only where the filter window lies inside the file
-        (frames back .. last - fwd); samples always count; refinement needs both
-        neighbours to be such points."""
-        limits = self._edge_limits(base, lo, hi, last_frame)
-        if limits is None:
-            return None
-        first, last = limits
-        k = np.arange(base + lo, base + hi, dtype=np.int64)
-        eligible = ((k >= first) & (k <= last)) | (k % self.factor == 0)
-        refinable = (k - 1 >= first) & (k + 1 <= last)
-        return eligible, refinable
-
-    def _edge_limits(
-        self, base: int, lo: int, hi: int, last_frame: int | None
-    ) -> tuple[int, int] | None:
-        """(first, last) file grid indices between which interpolated points count, for
-        a chunk touching a file edge (its centres lo..hi-1 from file grid index base);
-        None when no centre or neighbour of one lies outside them."""
-        half = self.interp_taps // 2
-        first = (half - 1) * self.factor
-        k0, k1 = base + lo, base + hi - 1
-        if last_frame is None:
-            if k0 - 1 >= first:
-                return None
-            return first, k1 + 2
-        last = (last_frame - half) * self.factor + self.factor - 1
-        if k0 - 1 >= first and k1 + 1 <= last:
-            return None
-        return first, last
 
     def _chunk(self, st: _State, j: int, window: np.ndarray, last_frame: int | None) -> None:
         """Process chunk j (window: channels x frames). Centres: all its grid points, or
@@ -492,84 +312,6 @@ class TruePeakMeter:
             events.sort()
             st.over_index.extend(k for k, _ in events[: self.max_positions - len(st.over_index)])
 
-    def _refine_native(self, st, c, win, y, lo, hi, top, base, last_frame=None):
-        """Compiled twin of _refine (kernels.c, dc_tp_refine): the same candidates, the
-        same float64 arithmetic, the fine sums added in tap order."""
-        limits = self._edge_limits(base, lo, hi, last_frame) or (-(2**62), 2**62)
-        end_s = math.inf if last_frame is None else last_frame / self.rate_hz - EDGE_S
-        # Span records need the chunk's own reading: start from 0 instead of the running
-        # maximum, then merge (the chunk's maximum is among the candidates either way).
-        own = st.refined is not None
-        state = np.array([0.0 if own else st.best[c], st.best_inner[c]])
-        index = np.full(1, -1, dtype=np.int64) if own else st.best_index[c : c + 1].copy()
-        native.tp_refine(
-            win, y, lo, hi, self.factor, base, limits, self.fine_taps, self.interp.history,
-            FINE_CANDIDATES, self.refine_cos, self.fine_cos, top, self.refine_bound,
-            self.fine_rate_hz, (EDGE_S, end_s), state, index,
-        )  # fmt: skip
-        st.best_inner[c] = state[1]
-        if own:
-            chunk = (base // self.factor + ROW_POSITIONS) // CHUNK_FRAMES
-            st.refined.append((chunk, c, float(state[0]), int(index[0])))
-            if state[0] > st.best[c]:
-                st.best[c], st.best_index[c] = state[0], index[0]
-            return
-        st.best[c] = state[0]
-        st.best_index[c] = index[0]
-
-    def _refine(self, st, c, win, y, a, centres, lo, top, base, masks=None, last_frame=None):
-        """Update channel c's maximum from this chunk: grid values, plus a fine evaluation
-        of the filter around the FINE_CANDIDATES local maxima with the largest
-        sinusoid-fit estimates among those that could beat the running maximum."""
-        threshold = np.float64(max(st.best[c], top) / self.refine_bound * (1.0 - 1e-9))
-        idx = np.flatnonzero(centres >= threshold)  # compared in float64, as kernels.c does
-        k = idx + lo
-        local = (a[k] >= a[k - 1]) & (a[k] >= a[k + 1])
-        if masks is not None:
-            local &= masks[1][idx]
-        values = centres[idx].astype(np.float64)
-        step = FINE_STEPS // self.factor
-        fine_pos = k * step
-        if local.any():
-            cand = np.flatnonzero(local)
-            kk = k[cand]
-            estimate = refine_peaks(y[kk - 1], y[kk], y[kk + 1], self.refine_omega)
-            chosen = cand[np.argsort(-estimate, kind="stable")[:FINE_CANDIDATES]]
-            fine_values, fine_at = self._fine(win, k[chosen])
-            better = fine_values > values[chosen]
-            values[chosen] = np.where(better, fine_values, values[chosen])
-            fine_pos[chosen] = np.where(better, fine_at, fine_pos[chosen])
-        i = int(np.argmax(values))
-        if st.refined is not None:
-            chunk = (base // self.factor + ROW_POSITIONS) // CHUNK_FRAMES
-            st.refined.append((chunk, c, float(values[i]), base * step + int(fine_pos[i])))
-        if values[i] > st.best[c]:
-            st.best[c] = values[i]
-            st.best_index[c] = base * step + int(fine_pos[i])
-        time_s = (base * step + fine_pos) / (FINE_STEPS * self.rate_hz)
-        inner = time_s >= EDGE_S
-        if last_frame is not None:
-            inner &= time_s <= last_frame / self.rate_hz - EDGE_S
-        if inner.any():
-            st.best_inner[c] = max(st.best_inner[c], float(values[inner].max()))
-
-    def _fine(self, win: np.ndarray, k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Filter output at FINE_STEPS per input sample over +-1 grid step around grid
-        points k (window-local); returns each one's largest |value| (refined by a
-        three-point sinusoid fit) and its fine index (window-local)."""
-        step = FINE_STEPS // self.factor
-        offsets = np.arange(-step, step + 1)
-        fine = k[:, None] * step + offsets[None, :]
-        frame = self.interp.history + fine // FINE_STEPS
-        back = self.interp_taps // 2 - 1
-        rows = np.lib.stride_tricks.sliding_window_view(win, self.interp_taps)[frame - back]
-        v = np.einsum("nft,nft->nf", rows.astype(np.float64), self.fine_taps[fine % FINE_STEPS])
-        n = np.arange(k.size)
-        at = np.argmax(np.abs(v), axis=1)
-        j = np.clip(at, 1, 2 * step - 1)
-        peak = refine_peaks(v[n, j - 1], v[n, j], v[n, j + 1], self.fine_omega)
-        return np.maximum(peak, np.abs(v[n, at])), fine[n, at]
-
     def result(self) -> TruePeakResult:
         st = copy.deepcopy(self.state)
         computed, seen = self.computed, self.seen
@@ -611,50 +353,3 @@ class TruePeakMeter:
             true_peak_overs=st.overs,
             true_peak_over_times_s=[k / grid_rate for k in st.over_index],
         )
-
-    def span_values(self, first_frame: int, stop_frame: int) -> dict[str, Any]:
-        """True peak of frames [first_frame, stop_frame) from the records (after result()),
-        to chunk resolution: every 4096-frame chunk touching the span counts whole.
-
-        Exact when every chunk-channel of the span that was not refined (skipped, or
-        below the running maximum) is bounded by the span's refined maximum; otherwise a
-        louder head set the running maximum, and the reading can be low by at most the
-        difference, which ``true_peak_note`` states."""
-        st = self.final
-        if st is None or st.refined is None or st.ranges is None:
-            raise RuntimeError("TruePeakMeter.span_values: call result() of a recording meter")
-        j0 = first_frame // CHUNK_FRAMES
-        j1 = max(stop_frame - 1, first_frame) // CHUNK_FRAMES
-        best = np.zeros(self.channels)
-        best_index = np.full(self.channels, -1, dtype=np.int64)
-        done = set()
-        for j, c, value, index in st.refined:
-            if j0 <= j <= j1:
-                done.add((j, c))
-                if value > best[c]:
-                    best[c], best_index[c] = value, index
-        top = float(best.max(initial=0.0))
-        bound = 0.0
-        for a, b, level in st.ranges:
-            if b < j0 or a > j1 or level <= top:
-                continue
-            for j in range(max(a, j0), min(b, j1) + 1):
-                if any((j, c) not in done for c in range(self.channels)):
-                    bound = max(bound, level)
-                    break
-        time_s = None
-        if top > 0.0:
-            index = int(best_index[best == top].min())
-            time_s = index / (FINE_STEPS * self.rate_hz)
-        note = None
-        if bound > top:
-            note = (
-                f"span true peak may read up to {amplitude_to_db(bound) - amplitude_to_db(top):.2f}"
-                " dB low: a louder head or tail set the meter's running maximum"
-            )
-        return {
-            "true_peak_dbtp": amplitude_to_db(top),
-            "true_peak_time_s": time_s,
-            "true_peak_channel_dbtp": [amplitude_to_db(v) for v in best],
-            "true_peak_note": note,
-        }

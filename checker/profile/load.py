@@ -23,7 +23,7 @@ Sections group the limits (format, loudness, peaks, levels, silence, channels,
 bandwidth, downmix, metadata, stems); every limit key is listed in checker/profile/catalogue.py.
 Settings that are not limits: ``[loudness] mono_loudness``, ``[format] channel_layout``
 (the channel order of the delivery's files with as many channels, e.g. "L C R Ls Rs LFE") and
-``[silence] silence_threshold_dbfs`` (checker.profile.catalogue.SETTING_DEFS).
+``[silence] silence_threshold_dbfs`` (checker.profile.settings.SETTING_DEFS).
 A child inherits its parent's metadata and limits, then overrides them field by
 field; changing a value requires a new ``source``.
 """
@@ -45,10 +45,10 @@ from checker.profile.catalogue import (
     ONE_OF,
     PART_MAX,
     PART_TARGET,
-    SETTING_BY_KEY,
     TARGET,
     LimitDef,
 )
+from checker.profile.settings import SETTING_BY_KEY
 from checker.profile.syntax import (  # noqa: F401  (re-exported for callers)
     MONO_CONVENTIONS,
     OFF,

@@ -28,11 +28,10 @@ from checker.profile.catalogue import (
     ONE_OF,
     REQUIRED,
     SECTIONS,
-    SETTING_BY_KEY,
     TARGET,
     LimitDef,
-    SettingDef,
 )
+from checker.profile.settings import SETTING_BY_KEY, SettingDef
 
 META_KEYS = ("name", "title", "version", "description", "extends")
 SEVERITIES = ("fail", "warn")

@@ -35,12 +35,12 @@ from checker.model.measurement import ENGINE_VERSION, Measurement
 from checker.model.names import readable
 from checker.model.results import FileResult, RunInfo
 from checker.model.verdict import ERROR
+from checker.run.daskpool import DaskPool
 from checker.run.progress import Progress
 from checker.run.stemsets import stem_set_folders, with_stem_sets
 from checker.run.store import FileIdentity, Store, open_store
 from checker.run.workers import (
     DEFAULT_MEMORY_MB,
-    DaskPool,
     LocalPool,
     Task,
     usable_cores,

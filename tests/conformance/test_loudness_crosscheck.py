@@ -30,7 +30,8 @@ from signals import programme
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
-from checker.meters.loudness import SHORT_TERM_STEPS, LoudnessMeter, loudness_range_from_short_term
+from checker.meters.gating import loudness_range_from_short_term
+from checker.meters.loudness import SHORT_TERM_STEPS, LoudnessMeter
 
 # libebur128 channel roles for our default maps (checker/io/layout.py).
 EBUR128_CHANNELS = {

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
-from checker.meters.loudness import _boundaries, _SlidingMax
+from checker.meters.slidingmax import _boundaries, _SlidingMax
 
 
 def brute_force(sums: np.ndarray, window: int, rate: int, per_second: int):

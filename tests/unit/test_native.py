@@ -38,7 +38,8 @@ from checker.meters.channels import ChannelsMeter
 from checker.meters.levels import LevelsMeter
 from checker.meters.loudness import LoudnessMeter
 from checker.meters.silence import SilenceMeter
-from checker.meters.truepeak import TruePeakMeter, _State
+from checker.meters.truepeak import TruePeakMeter
+from checker.meters.truepeak_refine import _State
 
 needs_kernels = pytest.mark.skipif(
     not native.enabled(), reason=f"compiled kernels not loaded: {native.status()}"

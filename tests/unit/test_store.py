@@ -14,7 +14,8 @@ from checker.model.measurement import Measurement
 from checker.model.results import FileResult, RunInfo
 from checker.model.timeline import Timeline
 from checker.model.verdict import FAIL, Flag, GainAdvice, Verdict
-from checker.run.store import SCHEMA_VERSION, FileIdentity, Store, open_store
+from checker.run.store import FileIdentity, Store, open_store
+from checker.run.storeschema import SCHEMA_VERSION
 
 OPTS = '{"true_peak_ceiling_dbtp": -1.0}'
 
