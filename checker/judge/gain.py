@@ -146,7 +146,8 @@ def advise(values: Mapping[str, Any], profile: Profile) -> GainAdvice | None:
     nf = _after(values.get("noise_floor_dbfs"), gain)
     problems, unknown = _problems(values, profile, gain, tp, sp, nf)
     if within:
-        text = [f"{within}; {gain:+.2f} dB would reach {reaches} exactly."]
+        shown = gain if round(gain, 2) != 0 else 0.0  # never "-0.00 dB"
+        text = [f"{within}; {shown:+.2f} dB would reach {reaches} exactly."]
     else:
         text = [f"Apply {gain:+.2f} dB to reach {reaches}."]
     if problems:

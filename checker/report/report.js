@@ -101,7 +101,10 @@
       return v.map(function (x) { return Array.isArray(x) ? "(" + x.map(function (y) { return fmt("", y); }).join(", ") + ")" : fmt(key, x); }).join("; ");
     }
     if (typeof v === "number") {
-      if (LEVEL.test(key) || /_s$/.test(key)) return v.toFixed(2);
+      if (LEVEL.test(key) || /_s$/.test(key)) {
+        var fixed = v.toFixed(2);
+        return fixed === "-0.00" ? "0.00" : fixed;  // a gain that rounds to nothing has no sign
+      }
       if (Number.isInteger(v)) return String(v);
       return String(Number(v.toPrecision(4)));
     }
@@ -165,7 +168,7 @@
   // no loudness (silence or below the gate).
   function drawGraph(d) {
     var tl = d.timeline, lim = d.limits || {}, vals = d.values || {};
-    var W = 760, L = 52, R = 14, T = 14, PH = 230, LANE = 22, GAP = 8;
+    var W = 760, L = 96, R = 14, T = 14, PH = 230, LANE = 22, GAP = 8;  // L: room for the lane names
     // the speech lane only where the speech gate ran (measure --speech, or a speech profile)
     var sp = decode(tl && tl.speech_active);
     var hasSpeech = sp.some(function (v) { return typeof v === "number"; });

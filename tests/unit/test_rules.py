@@ -634,3 +634,14 @@ def test_limit_key_names_say_their_direction_and_unit():
             assert ("_min" in d.key) == (d.kind == MIN), d.key
         if d.unit in ("LUFS", "LU", "dBTP", "dBFS", "dB", "s", "Hz", "frames"):
             assert d.key.endswith("_" + d.unit.lower()), d.key
+
+
+def test_a_gain_that_rounds_to_nothing_has_no_minus_sign():
+    # podcast-stereo aims at -16 LUFS; a file at -15.999 LUFS needs -0.001 dB, which reads +0.00.
+    from checker.judge.gain import advise
+
+    values = {"integrated_lufs": -15.999, "true_peak_dbtp": -3.0, "sample_peak_dbfs": -3.5,
+              "channels": 2}  # fmt: skip
+    advice = advise(values, load_profile("podcast-stereo"))
+    assert advice is not None and "+0.00 dB would reach" in advice.advice
+    assert "-0.00" not in advice.advice
