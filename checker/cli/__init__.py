@@ -4,3 +4,9 @@ and the only place that names command-line flags.
 
 May import everything.
 """
+
+# Importing the command line claims the process (one thread per library pool, freed memory kept):
+# cli.main does it at import, so ``import checker.cli`` and the console script behave alike.
+from checker.cli.main import main_entry  # noqa: E402
+
+__all__ = ["main_entry"]
