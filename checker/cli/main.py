@@ -59,7 +59,6 @@ FLAG_FOR_PARAMETER = {
     "cluster": "--cluster",
     "mix": "--mix",
     "layout": "--layout",
-    "memory_mb": "--worker-memory-mb",
 }
 
 

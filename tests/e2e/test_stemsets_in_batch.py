@@ -33,28 +33,16 @@ def _clipping_pair(folder):
     return folder
 
 
-def _rows(results):
-    return [(r.kind, r.path.rsplit("/", 1)[-1], r.status, r.group) for r in results]
+def _check(folder, out, *extra, err=None, stdout=None):
+    """``deliverycheck check FOLDER --profile mastering-stems --out OUT EXTRA...``: the exit code."""
+    argv = ["check", str(folder), "--profile", "mastering-stems", "--out", str(out), *extra]
+    return main(argv, out=stdout or io.StringIO(), err=err if err is not None else io.StringIO())
 
 
 def test_api_and_cli_give_the_same_rows_for_a_stem_set(tmp_path):
     folder = _clipping_pair(tmp_path / "song")
     run, results = checker.check([str(folder)], "mastering-stems", tmp_path / "api", jobs=1)
-    code = main(
-        [
-            "check",
-            str(folder),
-            "--profile",
-            "mastering-stems",
-            "--out",
-            str(tmp_path / "cli"),
-            "--jobs",
-            "1",
-            "--quiet",
-        ],
-        out=io.StringIO(),
-        err=io.StringIO(),
-    )
+    code = _check(folder, tmp_path / "cli", "--jobs", "1", "--quiet")
     [set_row] = [r for r in results if r.kind == "set"]
     # shipped mastering-stems: the sum's sample peak at most 0 dBFS (common practice)
     assert set_row.status == "fail"
@@ -84,11 +72,9 @@ def test_a_sets_verdict_is_stored_like_a_files(tmp_path):
 def test_a_second_run_takes_the_set_from_the_store(tmp_path):
     folder = _clipping_pair(tmp_path / "song")
     profile = checker.load_profile("mastering-stems")
-    err = io.StringIO()
-    argv = ["check", str(folder), "--profile", "mastering-stems", "--out", str(tmp_path / "o")]
-    main([*argv, "--quiet"], out=io.StringIO(), err=err)
+    _check(folder, tmp_path / "o", "--quiet")
     out = io.StringIO()
-    main([*argv, "--quiet"], out=out, err=err)
+    _check(folder, tmp_path / "o", "--quiet", stdout=out)
     assert "stem sets measured 0, from the store 1" in out.getvalue()
     _, again = run_batch([str(folder)], profile, tmp_path / "o", jobs=1)
     assert [r.status for r in again if r.kind == "set"] == ["fail"]
@@ -103,18 +89,5 @@ def test_library_errors_name_parameters_and_the_cli_names_flags(tmp_path):
     with pytest.raises(UsageError, match=r"^mix: ") as info:
         run_batch([str(folder)], profile, tmp_path / "o", mix=str(tmp_path / "absent.wav"))
     err = io.StringIO()
-    code = main(
-        [
-            "check",
-            str(folder),
-            "--profile",
-            "mastering-stems",
-            "--out",
-            str(tmp_path / "o"),
-            "--mix",
-            str(tmp_path / "absent.wav"),
-        ],
-        out=io.StringIO(),
-        err=err,
-    )
+    code = _check(folder, tmp_path / "o", "--mix", str(tmp_path / "absent.wav"), err=err)
     assert code == 2 and "deliverycheck: --mix: " in err.getvalue()
