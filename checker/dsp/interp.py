@@ -58,7 +58,8 @@ register block (about 13 ns per channel-frame at 4x, measured here, against
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
+from typing import overload
 
 import numpy as np
 
@@ -250,6 +251,48 @@ class ChunkInterpolator:
         return np.concatenate(parts).reshape(-1)
 
 
+class ChunkRun(Sequence):
+    """The chunks one push() made ready: chunk ``first + i`` is ``(first + i, window)`` with
+    window ``buf[:, offset + i * step :][:, :window]`` (views of one buffer, valid until the
+    next push). A sequence of those pairs, so per-chunk code can iterate and slice it
+    (slices are runs too); compiled code takes the whole evenly spaced span at once
+    (:meth:`span`) without a Python object per chunk."""
+
+    __slots__ = ("first", "count", "buf", "offset", "step", "window")
+
+    def __init__(
+        self, first: int, count: int, buf: np.ndarray, offset: int, step: int, window: int
+    ) -> None:
+        self.first, self.count, self.buf = first, count, buf
+        self.offset, self.step, self.window = offset, step, window
+
+    def __len__(self) -> int:
+        return self.count
+
+    @overload
+    def __getitem__(self, i: int) -> tuple[int, np.ndarray]: ...
+    @overload
+    def __getitem__(self, i: slice) -> ChunkRun: ...
+    def __getitem__(self, i: int | slice) -> tuple[int, np.ndarray] | ChunkRun:
+        if isinstance(i, slice):
+            start, stop, stride = i.indices(self.count)
+            if stride != 1:
+                raise ValueError(f"ChunkRun: slice step = {stride} (expected 1)")
+            n = max(stop - start, 0)
+            lo = self.offset + start * self.step
+            return ChunkRun(self.first + start, n, self.buf, lo, self.step, self.window)
+        if i < 0:
+            i += self.count
+        if not 0 <= i < self.count:
+            raise IndexError(f"ChunkRun: index {i} (expected 0 to {self.count - 1})")
+        lo = self.offset + i * self.step
+        return self.first + i, self.buf[:, lo : lo + self.window]
+
+    def span(self) -> np.ndarray:
+        """(channels, frames) view holding every window of the run (count >= 1)."""
+        return self.buf[:, self.offset : self.offset + (self.count - 1) * self.step + self.window]
+
+
 class ChunkStream:
     """Re-blocks (frames, channels) input into fixed, position-aligned chunks.
 
@@ -278,8 +321,9 @@ class ChunkStream:
     def _chunk_start(self, j: int) -> int:
         return j * self.step - self.lead
 
-    def push(self, x: np.ndarray) -> Iterator[tuple[int, np.ndarray]]:
-        """Append a block; yield (chunk index, window (channels, window) float32) when ready."""
+    def push(self, x: np.ndarray) -> ChunkRun:
+        """Append a block; return the chunks now ready (windows (channels, window) float32):
+        every chunk whose window and holdback lie inside the input so far."""
         if x.shape[0]:
             kept = self.buf.shape[1]
             buf = np.empty((self.channels, kept + x.shape[0]), dtype=np.float32)
@@ -288,15 +332,18 @@ class ChunkStream:
             self.buf = buf
             self.frames_in += x.shape[0]
         end = self.buf_start + self.buf.shape[1]
-        while self._chunk_start(self.next_chunk) + self.window + self.holdback <= end:
-            j = self.next_chunk
-            lo = self._chunk_start(j) - self.buf_start
-            yield j, self.buf[:, lo : lo + self.window]
-            self.next_chunk += 1
+        first = self.next_chunk
+        # chunk j is ready when _chunk_start(j) + window + holdback <= end
+        room = end - self.window - self.holdback - self._chunk_start(first)
+        count = room // self.step + 1 if room >= 0 else 0
+        offset = self._chunk_start(first) - self.buf_start
+        run = ChunkRun(first, count, self.buf, offset, self.step, self.window)
+        self.next_chunk += count
         keep_from = self._chunk_start(self.next_chunk) - self.buf_start
         if keep_from > 0:
             self.buf = np.ascontiguousarray(self.buf[:, keep_from:])
             self.buf_start += keep_from
+        return run
 
     def remaining(self) -> Iterator[tuple[int, np.ndarray]]:
         """Zero-padded chunks still holding frames < frames_in (no state change)."""

@@ -369,8 +369,9 @@ CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, doub
 #pragma GCC diagnostic ignored "-Wpsabi"
 typedef float v8f __attribute__((vector_size(32)));
 typedef int32_t v8i __attribute__((vector_size(32)));
+typedef uint32_t v8u __attribute__((vector_size(32)));
 
-#define TP_BLOCK 32 /* output positions per register block (4 vectors of 8) */
+#define TP_BLOCK 24 /* output positions per register block (3 vectors of 8) */
 #define TP_MAX_PHASES 3 /* phases 1..factor-1 computed; factor <= 4 */
 
 static inline v8f v8f_load(const float *p)
@@ -380,45 +381,60 @@ static inline v8f v8f_load(const float *p)
     return v;
 }
 
-/* One block of TP_BLOCK positions: acc[p][i] = y at position i + (p + 1) / factor, i.e.
- * sum over q of taps[p * ntaps + q] * w[i + q] (w: the window from the first tap). nph is
- * a constant at each call (3 or 1), so the accumulators stay in registers. */
+/* One block of 8 * nv positions (nv <= TP_BLOCK / 8): lane l of acc[p][k] = y at position
+ * 8 k + l + (p + 1) / factor, i.e. the sum over q of taps[p * ntaps + q] * w[8 k + l + q],
+ * added in tap order (w: the window from the first tap). nph and nv are constants at each
+ * call, so the accumulators stay in registers. */
 static inline __attribute__((always_inline)) void
 tp_block_n(const float *w, const float *taps, int64_t ntaps, v8f acc[TP_MAX_PHASES][TP_BLOCK / 8],
-           const int nph)
+           const int nph, const int nv_asked)
 {
+    const int nv = nv_asked < TP_BLOCK / 8 ? nv_asked : TP_BLOCK / 8;
     v8f a[TP_MAX_PHASES][TP_BLOCK / 8];
     for (int p = 0; p < nph; p++)
-        for (int k = 0; k < TP_BLOCK / 8; k++)
+        for (int k = 0; k < nv; k++)
             a[p][k] = (v8f){0, 0, 0, 0, 0, 0, 0, 0};
     for (int64_t q = 0; q < ntaps; q++) {
         v8f x[TP_BLOCK / 8];
-        for (int k = 0; k < TP_BLOCK / 8; k++)
+        for (int k = 0; k < nv; k++)
             x[k] = v8f_load(w + q + 8 * k);
         for (int p = 0; p < nph; p++) {
             const float t = taps[p * ntaps + q];
             const v8f tv = {t, t, t, t, t, t, t, t};
-            for (int k = 0; k < TP_BLOCK / 8; k++)
+            for (int k = 0; k < nv; k++)
                 a[p][k] = a[p][k] + tv * x[k];
         }
     }
     for (int p = 0; p < nph; p++)
-        for (int k = 0; k < TP_BLOCK / 8; k++)
+        for (int k = 0; k < nv; k++)
             acc[p][k] = a[p][k];
 }
 
-static inline void tp_block(const float *w, const float *taps, int64_t nph, int64_t ntaps,
-                            v8f acc[TP_MAX_PHASES][TP_BLOCK / 8])
-{
-    if (nph == 3)
-        tp_block_n(w, taps, ntaps, acc, 3);
-    else if (nph == 2)
-        tp_block_n(w, taps, ntaps, acc, 2);
-    else
-        tp_block_n(w, taps, ntaps, acc, 1);
-}
+#define TP_BLOCK_NV(nph)                                \
+    switch (nv) {                                       \
+    case 4: tp_block_n(w, taps, ntaps, acc, nph, 4); break; \
+    case 3: tp_block_n(w, taps, ntaps, acc, nph, 3); break; \
+    case 2: tp_block_n(w, taps, ntaps, acc, nph, 2); break; \
+    default: tp_block_n(w, taps, ntaps, acc, nph, 1); break; \
+    }
 
-/* The same sum for one position (tails shorter than a block): the same bits per output. */
+/* tp_block_n for nph phases (1 to TP_MAX_PHASES; 0 computes nothing) and nv vectors (1 to 4:
+ * a full block of TP_BLOCK positions, or a tail of whole vectors). */
+static inline __attribute__((always_inline)) void
+tp_block(const float *w, const float *taps, int64_t nph, int64_t ntaps,
+         v8f acc[TP_MAX_PHASES][TP_BLOCK / 8], int64_t nv)
+{
+    if (nph == 3) {
+        TP_BLOCK_NV(3)
+    } else if (nph == 2) {
+        TP_BLOCK_NV(2)
+    } else if (nph == 1) {
+        TP_BLOCK_NV(1)
+    }
+}
+#undef TP_BLOCK_NV
+
+/* The same sum for one position (tails shorter than a vector): the same bits per output. */
 static inline float tp_one(const float *w, const float *taps, int64_t ntaps)
 {
     float acc = 0.0f;
@@ -437,12 +453,17 @@ CLONES EXPORT void dc_tp_grid(const float *w, int64_t npos, const float *taps, i
     int64_t i = 0;
     if (nph > 0 && nph <= TP_MAX_PHASES) {
         v8f acc[TP_MAX_PHASES][TP_BLOCK / 8];
-        for (; i + TP_BLOCK <= npos; i += TP_BLOCK) {
-            tp_block(w + i, taps, nph, ntaps, acc);
-            for (int k = 0; k < TP_BLOCK; k++) {
+        for (; i + 8 <= npos; i += TP_BLOCK) {
+            const int64_t nv = (npos - i) / 8 < TP_BLOCK / 8 ? (npos - i) / 8 : TP_BLOCK / 8;
+            tp_block(w + i, taps, nph, ntaps, acc, nv);
+            for (int k = 0; k < 8 * nv; k++) {
                 out[(i + k) * factor] = w[i + k + back];
                 for (int64_t p = 0; p < nph; p++)
                     out[(i + k) * factor + p + 1] = acc[p][k / 8][k % 8];
+            }
+            if (nv < TP_BLOCK / 8) {
+                i += 8 * nv;
+                break;
             }
         }
     }
@@ -467,11 +488,28 @@ static inline float v8f_hmax(const v8f *v)
 }
 
 /* Largest |x| and largest |x[t + 1] - x[t]| over x[0..n) (float32 differences, as numpy's
- * np.diff on float32). Maxima are exact whatever the order. */
-static void tp_peak_and_step(const float *x, int64_t n, float *peak, float *step)
+ * np.diff on float32). Maxima are exact whatever the order. Always inlined, so that it is
+ * compiled inside each target clone of its caller: as a function of its own it was built
+ * for the default target only, where GCC split the 8-lane maxima into scalar compares
+ * (17 us per 4176-sample window against about 1 us inlined in the AVX2 clone, measured
+ * here). */
+static inline __attribute__((always_inline)) void
+tp_peak_and_step(const float *x, int64_t n, float *peak, float *step)
 {
     v8f pk = {0, 0, 0, 0, 0, 0, 0, 0}, st = pk;
     int64_t t = 0;
+    /* four independent maxima per quantity: one chain waits on each compare and blend */
+    v8f pk4[4] = {pk, pk, pk, pk}, st4[4] = {pk, pk, pk, pk};
+    for (; t + 33 <= n; t += 32)
+        for (int k = 0; k < 4; k++) {
+            v8f a = v8f_load(x + t + 8 * k), b = v8f_load(x + t + 8 * k + 1);
+            pk4[k] = V8F_MAX(V8F_ABS(a), pk4[k]);
+            st4[k] = V8F_MAX(V8F_ABS(b - a), st4[k]);
+        }
+    for (int k = 0; k < 4; k++) {
+        pk = V8F_MAX(pk4[k], pk);
+        st = V8F_MAX(st4[k], st);
+    }
     for (; t + 9 <= n; t += 8) {
         v8f a = v8f_load(x + t), b = v8f_load(x + t + 1);
         pk = V8F_MAX(V8F_ABS(a), pk);
@@ -511,6 +549,9 @@ static inline double tp_reach(double peak, double step, const double *bound)
  *     a run), counted in *overs; the first `cap` run starts of each channel (grid index
  *     relative to chunk 0's first centre) go to starts[c * cap ...], their number to
  *     nstarts[c].
+ * The grid is computed 8 positions per vector (TP_BLOCK per register block); whether a
+ * grid point is above the ceiling becomes one bit, in time order, of a word per vector
+ * (bit l * factor + p: lane l, phase p), so runs and their starts are bit operations.
  * Returns the number of chunk-channels computed. */
 CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, int64_t first,
                                    int64_t hop, int64_t nchunks, int64_t window, int64_t lead,
@@ -521,6 +562,14 @@ CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, in
                                    int64_t *starts, int64_t cap, int64_t *nstarts)
 {
     const int64_t nph = factor - 1;
+    const int vec = nph <= TP_MAX_PHASES && factor * 8 <= 32; /* a vector's bits fit a word */
+    const v8f ceil_v = {ceiling_f, ceiling_f, ceiling_f, ceiling_f,
+                        ceiling_f, ceiling_f, ceiling_f, ceiling_f};
+    v8u bit[TP_MAX_PHASES + 1]; /* bit[p] lane l: 1 << (l * factor + p) */
+    for (int64_t p = 0; p <= TP_MAX_PHASES; p++)
+        for (int l = 0; l < 8; l++)
+            bit[p][l] = vec && p < factor ? 1u << (l * factor + p) : 0u;
+    const int nbits = (int)(8 * factor);
     int64_t computed = 0;
     for (int64_t j = 0; j < nchunks; j++) {
         for (int64_t c = 0; c < ch; c++) {
@@ -536,57 +585,70 @@ CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, in
             computed++;
             const float *w = win + lead - back;
             const int64_t base = j * npos * factor; /* grid index of this chunk's first centre */
+            v8f mv = {0, 0, 0, 0, 0, 0, 0, 0};
             float m = 0.0f;
-            int run = in_run[c];
+            uint32_t run = in_run[c];
             int64_t i = 0;
             v8f acc[TP_MAX_PHASES][TP_BLOCK / 8];
-            for (; i < npos; i += TP_BLOCK) {
-                const int64_t len = npos - i < TP_BLOCK ? npos - i : TP_BLOCK;
-                if (len == TP_BLOCK && nph > 0 && nph <= TP_MAX_PHASES) {
-                    tp_block(w + i, taps, nph, ntaps, acc);
-                } else {
-                    for (int64_t k = 0; k < len; k++)
-                        for (int64_t p = 0; p < nph; p++)
-                            acc[p][k / 8][k % 8] = tp_one(w + i + k, taps + p * ntaps, ntaps);
-                }
-                v8f mv = {0, 0, 0, 0, 0, 0, 0, 0};
-                float bm = 0.0f;
-                if (len == TP_BLOCK) {
-                    for (int k = 0; k < TP_BLOCK / 8; k++) {
-                        mv = V8F_MAX(V8F_ABS(v8f_load(w + i + 8 * k + back)), mv);
-                        for (int64_t p = 0; p < nph; p++)
-                            mv = V8F_MAX(V8F_ABS(acc[p][k]), mv);
-                    }
-                    bm = v8f_hmax(&mv);
-                } else {
-                    for (int64_t k = 0; k < len; k++) {
-                        float a = fabsf(w[i + k + back]);
-                        bm = a > bm ? a : bm;
-                        for (int64_t p = 0; p < nph; p++) {
-                            a = fabsf(acc[p][k / 8][k % 8]);
-                            bm = a > bm ? a : bm;
-                        }
+            while (vec && i + 8 <= npos) {
+                const int64_t nv = (npos - i) / 8 < TP_BLOCK / 8 ? (npos - i) / 8 : TP_BLOCK / 8;
+                tp_block(w + i, taps, nph, ntaps, acc, nv);
+                /* |y| of every point (abs[0]: the samples, abs[p + 1]: phase p + 1) and the
+                 * block's maximum, reduced as a tree (exact in any order) */
+                v8f abs_y[TP_MAX_PHASES + 1][TP_BLOCK / 8], kmax[TP_BLOCK / 8];
+                for (int64_t k = 0; k < nv; k++) {
+                    abs_y[0][k] = V8F_ABS(v8f_load(w + i + 8 * k + back));
+                    kmax[k] = abs_y[0][k];
+                    for (int64_t p = 0; p < nph; p++) {
+                        abs_y[p + 1][k] = V8F_ABS(acc[p][k]);
+                        kmax[k] = V8F_MAX(abs_y[p + 1][k], kmax[k]);
                     }
                 }
-                m = bm > m ? bm : m;
-                if (!(bm > ceiling_f)) {
+                v8f bmv = kmax[0];
+                for (int64_t k = 1; k < nv; k++)
+                    bmv = V8F_MAX(kmax[k], bmv);
+                mv = V8F_MAX(bmv, mv);
+                const v8i hit = (v8i)(bmv > ceil_v);
+                int any = 0;
+                for (int l = 0; l < 8; l++)
+                    any |= hit[l];
+                if (!any) {
                     run = 0;
+                    i += 8 * nv;
                     continue;
                 }
-                for (int64_t k = 0; k < len; k++) {
-                    for (int64_t p = 0; p < factor; p++) {
-                        const float a = p == 0 ? fabsf(w[i + k + back])
-                                               : fabsf(acc[p - 1][k / 8][k % 8]);
-                        const int above = a > ceiling_f;
-                        if (above && !run) {
-                            ++*overs;
-                            if (nstarts[c] < cap)
-                                starts[c * cap + nstarts[c]++] = base + (i + k) * factor + p;
-                        }
-                        run = above;
+                for (int64_t k = 0; k < nv; k++) {
+                    v8u word = {0, 0, 0, 0, 0, 0, 0, 0};
+                    for (int64_t p = 0; p < factor; p++)
+                        word |= (v8u)(abs_y[p][k] > ceil_v) & bit[p];
+                    uint32_t above = 0; /* the 8 * factor points of these 8 positions */
+                    for (int l = 0; l < 8; l++)
+                        above |= word[l];
+                    uint32_t rising = above & ~((above << 1) | run);
+                    *overs += __builtin_popcount(rising);
+                    for (; rising && nstarts[c] < cap; rising &= rising - 1)
+                        starts[c * cap + nstarts[c]++] =
+                            base + (i + 8 * k) * factor + __builtin_ctz(rising);
+                    run = (above >> (nbits - 1)) & 1u;
+                }
+                i += 8 * nv;
+            }
+            for (; i < npos; i++) { /* positions after the last whole vector */
+                for (int64_t p = 0; p < factor; p++) {
+                    const float a = p == 0 ? fabsf(w[i + back])
+                                           : fabsf(tp_one(w + i, taps + (p - 1) * ntaps, ntaps));
+                    m = a > m ? a : m;
+                    const uint32_t above = a > ceiling_f;
+                    if (above && !run) {
+                        ++*overs;
+                        if (nstarts[c] < cap)
+                            starts[c * cap + nstarts[c]++] = base + i * factor + p;
                     }
+                    run = above;
                 }
             }
+            const float vm = v8f_hmax(&mv);
+            m = vm > m ? vm : m;
             in_run[c] = (uint8_t)run;
             top[j * ch + c] = m;
             if (m > best[c])

@@ -94,6 +94,7 @@ from checker.dsp import native
 from checker.dsp.interp import (
     CHUNK_FRAMES,
     ROW_POSITIONS,
+    ChunkRun,
     ChunkStream,
     default_omega_max,
     oversampling_for_rate,
@@ -201,19 +202,19 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
         x = block.x
         if block.raw is None and not np.isfinite(x).all():
             x = np.where(np.isfinite(x), x, 0.0)  # NaN/Inf: counted by the levels meter
-        chunks = list(self.stream.push(x))  # views of one buffer, valid until the next push
+        chunks = self.stream.push(x)  # views of one buffer (a ChunkRun)
         if self.state.ranges is None or not chunks:
             self._feed_chunks(chunks)
         else:
             self._by_level(self.state, chunks, self._feed_chunks)
 
-    def _feed_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
+    def _feed_chunks(self, chunks: ChunkRun) -> None:
         if chunks and chunks[0][0] == 0:  # the file's start: edge rule, per chunk below
             self._chunk(self.state, 0, chunks[0][1], None)
             chunks = chunks[1:]
         if not chunks:
             return
-        if self.native and self.skip and self._evenly_spaced(chunks):
+        if self.native and self.skip:
             self._native_chunks(chunks)
             return
         skipped = self._skipped_chunks(chunks) if self.skip else None
@@ -224,39 +225,40 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
                 continue
             self._chunk(self.state, j, window, None)
 
-    def _native_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> None:
+    def _native_chunks(self, chunks: ChunkRun) -> None:
         """Compiled twin of the numpy path below (kernels.c, dc_tp_chunks): skip test,
         grid, maxima and overs of all of a block's chunks in one call; the refinement of
         chunks that could raise a maximum stays here, in chunk order."""
         st = self.state
-        first = chunks[0][1]  # (channels, window) view; the others follow it evenly
-        step = self.stream.step
-        span = (len(chunks) - 1) * step + first.shape[1]
-        buf = np.lib.stride_tricks.as_strided(
-            first, (self.channels, span), first.strides, writeable=False
-        )
+        count = len(chunks)
         cap = max(self.max_positions - len(st.over_index), 0)
         in_run = st.in_run.astype(np.uint8)
         computed, top, overs, starts = native.tp_chunks(
-            buf, step, len(chunks), self.interp.window_frames,
+            chunks.span(), chunks.step, count, chunks.window,
             self.interp.history + ROW_POSITIONS, CHUNK_FRAMES, self.phase_rows, self.factor,
             self.bound, self.fine_gain, self.ceiling_amp, st.best.copy(), in_run, cap,
         )  # fmt: skip
-        self.seen += len(chunks) * self.channels
+        self.seen += count * self.channels
         self.computed += computed
         st.in_run[:] = in_run.astype(bool)
         st.overs += overs
-        origin = chunks[0][0] * CHUNK_FRAMES * self.factor  # grid index of the first centre
-        events = sorted((origin + k, c) for c, ks in enumerate(starts) for k in ks)
-        st.over_index.extend(k for k, _ in events[:cap])
+        if any(starts):
+            origin = chunks.first * CHUNK_FRAMES * self.factor  # grid index of the first centre
+            events = sorted((origin + k, c) for c, ks in enumerate(starts) for k in ks)
+            st.over_index.extend(k for k, _ in events[:cap])
+        # Refinement candidates: chunk-channels whose top could beat the running maximum.
+        # The maxima only grow, so testing all rows against them as they stand now leaves
+        # out only chunk-channels the exact test below (against the maxima as the earlier
+        # refinements left them, in chunk order) would refuse too.
+        rows, cols = np.nonzero((top * self.refine_bound > st.best) & (top > 0.0))
         lo = ROW_POSITIONS * self.factor
-        for i, (j, window) in enumerate(chunks):
-            for c in np.flatnonzero(top[i] * self.refine_bound > st.best):
-                if top[i, c] > 0.0 and top[i, c] * self.refine_bound > st.best[c]:
-                    y = self._grid(window[c])
-                    hi = lo + CHUNK_FRAMES * self.factor
-                    base = (j * CHUNK_FRAMES - ROW_POSITIONS) * self.factor
-                    self._refine_native(st, c, window[c], y, lo, hi, float(top[i, c]), base)
+        hi = lo + CHUNK_FRAMES * self.factor
+        for i, c in zip(rows.tolist(), cols.tolist(), strict=True):
+            if top[i, c] * self.refine_bound > st.best[c]:
+                j, window = chunks[i]
+                y = self._grid(window[c])
+                base = (j * CHUNK_FRAMES - ROW_POSITIONS) * self.factor
+                self._refine_native(st, c, window[c], y, lo, hi, float(top[i, c]), base)
 
     def _grid(self, window: np.ndarray) -> np.ndarray:
         """Oversampled grid of one chunk-channel window (compiled or numpy)."""

@@ -19,6 +19,7 @@ from checker.dsp.interp import (
     CHUNK_FRAMES,
     ROW_POSITIONS,
     ChunkInterpolator,
+    ChunkRun,
     design_phases,
     fractional_taps,
     phase_abs_sums,
@@ -66,24 +67,18 @@ def _design(factor: int) -> _Design:
 class TruePeakSkip:
     """Skip-test methods of TruePeakMeter."""
 
-    def _evenly_spaced(self, chunks: list[tuple[int, np.ndarray]]) -> bool:
-        first = chunks[0][1]
-        hop = self.stream.step * first.strides[1]
-        return chunks[-1][1].ctypes.data == first.ctypes.data + (len(chunks) - 1) * hop
-
-    def _skipped_chunks(self, chunks: list[tuple[int, np.ndarray]]) -> np.ndarray:
+    def _skipped_chunks(self, chunks: ChunkRun) -> np.ndarray:
         """Per chunk: True when _chunk would skip it on every channel. Tested for all of a
         block's chunks at once (one reduction instead of one per chunk), against the running
         maxima as they stand before the block: they only grow, so every chunk passed here
         is one _chunk skips too, and the result is the same bit for bit."""
-        first = chunks[0][1]
-        count, width = len(chunks), first.shape[1]
-        size = first.strides[1]
-        hop = self.stream.step * size
-        if not self._evenly_spaced(chunks):
-            return np.zeros(count, dtype=bool)  # not evenly spaced views: test per chunk
+        span = chunks.span()
+        size = span.strides[1]
         windows = np.lib.stride_tricks.as_strided(
-            first, (self.channels, count, width), (first.strides[0], hop, size), writeable=False
+            span,
+            (self.channels, len(chunks), chunks.window),
+            (span.strides[0], chunks.step * size, size),
+            writeable=False,
         )
         return self._skippable(windows, self.state.best[:, None]).all(axis=0)
 
