@@ -549,17 +549,26 @@ static inline double tp_reach(double peak, double step, const double *bound)
  *     a run), counted in *overs; the first `cap` run starts of each channel (grid index
  *     relative to chunk 0's first centre) go to starts[c * cap ...], their number to
  *     nstarts[c].
+ * Inside a computed chunk, a register block of TP_BLOCK positions is left out when its own
+ * reach (tp_reach over the samples its filter windows read) times refine_bound is at most
+ * best[c] and the reach is at most the ceiling: none of its grid points is an over (a run
+ * ends there, as it would), and none can make top * refine_bound exceed best[c], which is
+ * at most the meter's running maximum. So top is the exact largest |y| over the centres
+ * whenever top * refine_bound > best[c] (the meter refines such a chunk from its whole grid,
+ * dc_tp_grid); otherwise it is a lower bound of it that the meter uses in the same way (no
+ * refinement; best[c] not raised, as the points left out lie below best[c]).
  * The grid is computed 8 positions per vector (TP_BLOCK per register block); whether a
  * grid point is above the ceiling becomes one bit, in time order, of a word per vector
  * (bit l * factor + p: lane l, phase p), so runs and their starts are bit operations.
- * Returns the number of chunk-channels computed. */
+ * Returns the number of chunk-channels computed (wholly or in part). */
 CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, int64_t first,
                                    int64_t hop, int64_t nchunks, int64_t window, int64_t lead,
                                    int64_t npos, const float *taps, int64_t factor,
                                    int64_t ntaps, int64_t back, const double *bound,
-                                   double fine_gain, double ceiling, float ceiling_f,
-                                   double *best, uint8_t *in_run, float *top, int64_t *overs,
-                                   int64_t *starts, int64_t cap, int64_t *nstarts)
+                                   double fine_gain, double refine_bound, double ceiling,
+                                   float ceiling_f, double *best, uint8_t *in_run, float *top,
+                                   int64_t *overs, int64_t *starts, int64_t cap,
+                                   int64_t *nstarts)
 {
     const int64_t nph = factor - 1;
     const int vec = nph <= TP_MAX_PHASES && factor * 8 <= 32; /* a vector's bits fit a word */
@@ -592,6 +601,14 @@ CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, in
             v8f acc[TP_MAX_PHASES][TP_BLOCK / 8];
             while (vec && i + 8 <= npos) {
                 const int64_t nv = (npos - i) / 8 < TP_BLOCK / 8 ? (npos - i) / 8 : TP_BLOCK / 8;
+                float local_peak, local_step;
+                tp_peak_and_step(w + i, 8 * nv + ntaps - 1, &local_peak, &local_step);
+                const double local = tp_reach(local_peak, local_step, bound);
+                if (local * refine_bound <= best[c] && local <= ceiling) {
+                    run = 0;
+                    i += 8 * nv;
+                    continue;
+                }
                 tp_block(w + i, taps, nph, ntaps, acc, nv);
                 /* |y| of every point (abs[0]: the samples, abs[p + 1]: phase p + 1) and the
                  * block's maximum, reduced as a tree (exact in any order) */

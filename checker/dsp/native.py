@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 ENV = "DELIVERYCHECK_KERNELS"
-ABI_VERSION = 9
+ABI_VERSION = 10
 
 _P = ctypes.c_void_p
 _I = ctypes.c_int64
@@ -47,7 +47,7 @@ _SIGNATURES = {
     "dc_tp_grid": (None, [_P, _I, _P, _I, _I, _I, _P]),
     "dc_tp_chunks": (
         _I,
-        [_P, _I, _I, _I, _I, _I, _I, _I, _I, _P, _I, _I, _I, _P, _D, _D, _F]
+        [_P, _I, _I, _I, _I, _I, _I, _I, _I, _P, _I, _I, _I, _P, _D, _D, _D, _F]
         + [_P, _P, _P, _P, _P, _I, _P],
     ),
     "dc_tp_refine": (
@@ -285,6 +285,7 @@ def tp_chunks(
     factor: int,
     bound: np.ndarray,
     fine_gain: float,
+    refine_bound: float,
     ceiling: float,
     best: np.ndarray,
     in_run: np.ndarray,
@@ -295,7 +296,10 @@ def tp_chunks(
     ``buf[:, j * hop :][:, :window]``, its centres the
     grid of ``positions`` positions from window sample ``lead``. Skip test with
     ``bound`` (sum |taps|, dc gain, steps, margin; see kernels.c) against ``best``
-    (float64 per row, raised in place to each computed chunk's top) and ``ceiling``.
+    (float64 per row, raised in place to each computed chunk's top) and ``ceiling``;
+    inside a computed chunk, blocks of positions whose own bound times ``refine_bound``
+    (>= 1) is at most ``best`` are left out too, so top is exact wherever
+    ``top * refine_bound > best`` and a lower bound elsewhere (kernels.c says why).
     ``in_run`` (uint8 per row) carries over runs. Returns (chunk-rows computed, top
     (nchunks, rows) float32 with -1 where skipped, overs counted, each row's first ``cap``
     over starts as grid indices from chunk 0's first centre)."""
@@ -316,6 +320,7 @@ def tp_chunks(
         or hop < 1
         or last > frames
         or bound.size != 4
+        or not refine_bound >= 1.0
         or best.size != ch
         or in_run.size != ch
         or lead < back
@@ -324,8 +329,9 @@ def tp_chunks(
     ):
         raise ValueError(
             f"native.tp_chunks: {nchunks} chunks by {hop}, window {window}, lead "
-            f"{lead}, {positions} positions, {ntaps} taps over {ch}x{frames} frames "
-            f"(expected windows inside the buffer and centres inside the windows)"
+            f"{lead}, {positions} positions, {ntaps} taps over {ch}x{frames} frames, "
+            f"refine_bound {refine_bound} (expected windows inside the buffer, centres "
+            "inside the windows, refine_bound >= 1)"
         )
     top = np.empty((nchunks, ch), dtype=np.float32)
     overs = np.zeros(1, dtype=np.int64)
@@ -333,7 +339,8 @@ def tp_chunks(
     nstarts = np.zeros(ch, dtype=np.int64)
     computed = _lib.dc_tp_chunks(
         _ptr(buf), ch, buf.strides[0] // 4, 0, hop, nchunks, window, lead, positions,
-        _ptr(taps), factor, ntaps, back, _ptr(bound), fine_gain, ceiling, np.float32(ceiling),
+        _ptr(taps), factor, ntaps, back, _ptr(bound), fine_gain, refine_bound, ceiling,
+        np.float32(ceiling),
         _ptr(best), _ptr(in_run), _ptr(top), _ptr(overs), _ptr(starts), cap, _ptr(nstarts),
     )  # fmt: skip
     found = [starts[c, : nstarts[c]].tolist() for c in range(ch)]

@@ -236,7 +236,8 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
         computed, top, overs, starts = native.tp_chunks(
             chunks.span(), chunks.step, count, chunks.window,
             self.interp.history + ROW_POSITIONS, CHUNK_FRAMES, self.phase_rows, self.factor,
-            self.bound, self.fine_gain, self.ceiling_amp, st.best.copy(), in_run, cap,
+            self.bound, self.fine_gain, self.refine_bound, self.ceiling_amp, st.best.copy(),
+            in_run, cap,
         )  # fmt: skip
         self.seen += count * self.channels
         self.computed += computed

@@ -413,7 +413,7 @@ def test_tp_chunks_same_bits_at_any_alignment():
 
     def run(buf: np.ndarray):
         return native.tp_chunks(
-            buf, 4096, 4, 4176, 48, 4096, rows, 4, bound, 1.007, 0.891,
+            buf, 4096, 4, 4176, 48, 4096, rows, 4, bound, 1.007, 1.08, 0.891,
             np.zeros(2), np.zeros(2, np.uint8), 10,
         )  # fmt: skip
 
@@ -484,5 +484,5 @@ def test_tp_wrappers_refuse_wrong_buffers():
     with pytest.raises(ValueError, match="inside the buffer"):
         native.tp_chunks(
             np.zeros((2, 100), np.float32), 4096, 1, 4176, 48, 4096, rows, 4,
-            np.zeros(4), 1.0, 1.0, np.zeros(2), np.zeros(2, np.uint8), 10,
+            np.zeros(4), 1.0, 1.08, 1.0, np.zeros(2), np.zeros(2, np.uint8), 10,
         )  # fmt: skip
