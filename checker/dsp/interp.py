@@ -46,7 +46,8 @@ across blocks), so the arithmetic done for every output sample is the same
 whatever block split the caller uses: results are bit-identical across splits.
 Each push returns the chunks it made ready as one :class:`ChunkRun` (a sequence
 of (index, window) views of one buffer, and the span holding all of them for
-compiled code), not a Python object per chunk. :class:`ChunkInterpolator` computes one chunk as a single matrix product: the
+compiled code), not a Python object per chunk.
+:class:`ChunkInterpolator` computes one chunk as a single matrix product: the
 chunk is viewed as overlapping rows of ``R`` outputs (row stride R input
 samples), each row multiplied by one small block-Toeplitz matrix holding all
 phases (the numpy path; measured with the previous 32-tap filter: several times
