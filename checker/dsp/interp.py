@@ -57,10 +57,11 @@ same grid directly: one float32 sum per output in tap order, 24 outputs per
 register block (3 vectors of 8: with 3 phases that is 9 sums and 3 inputs, so
 the inputs stay in registers; 32 outputs needed 17 registers and re-read every
 input from memory once per phase). Measured here (2-core AMD EPYC VM, median of
-5 paired processes, each the fastest of 60 calls): 26 us per 4096-frame
-chunk-channel at 4x, skip test included, about 6 ns per channel-frame, against
-54 us before (32 outputs, and the skip test's scan compiled for the default
-target only).
+5 paired processes, each the fastest of 60 calls; every block of the chunk
+computed): 26 us per 4096-frame chunk-channel at 4x, skip test included, about
+6 ns per channel-frame, against 54 us before (32 outputs, and the skip test's
+scan compiled for the default target only). dc_tp_chunks also leaves out blocks
+that cannot matter (checker/meters/truepeak.py, "Speed: skipping chunks").
 """
 
 from __future__ import annotations
