@@ -222,6 +222,12 @@ class _Worker:
             self.conn.close()
 
 
+#: Modules the first measure() of a process imports on first use (the bandwidth meter's FFT,
+#: numpy.ma under np.median, threadpoolctl under the one-thread rule): loaded once in the fork
+#: server, so no worker imports them again (about 25 ms of CPU per worker here).
+LATE = ("numpy.fft", "numpy.ma", "threadpoolctl")
+
+
 def _context():
     import multiprocessing as mp  # here: `deliverycheck --help` and `measure` do not need it
 
@@ -233,7 +239,7 @@ def _context():
         from checker.meters import METERS
 
         ctx.set_forkserver_preload(
-            ["checker.run.workers", "checker.analysis.onepass", *(m for m, _ in METERS)]
+            ["checker.run.workers", "checker.analysis.onepass", *(m for m, _ in METERS), *LATE]
         )
         return ctx
     return mp.get_context("spawn")  # pragma: no cover - Windows
