@@ -43,6 +43,13 @@ def json_safe(value: Any) -> Any:
         return value
     if kind is list or kind is tuple:
         return [v if type(v) is float and v - v == 0.0 else json_safe(v) for v in value]
+    if kind is dict:  # a measurement's values: mostly finite floats, text and ints
+        return {
+            str(k): v
+            if (t := type(v)) is str or t is int or (t is float and v - v == 0.0) or v is None
+            else json_safe(v)
+            for k, v in value.items()
+        }
     if isinstance(value, float):
         if value != value:
             return None
