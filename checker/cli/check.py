@@ -125,16 +125,17 @@ def run(args, out: TextIO, err: TextIO) -> int:
         raise UsageError(
             f"PATH: {', '.join(missing)} (expected an existing file or folder; nothing checked)"
         )
-    if not args.cluster and (args.fresh or not os.path.exists(args.out)):
-        # Every file will be measured here: the workers' server loads the engine on another
-        # core while this process imports the rest, loads the profile and walks the inputs.
-        # (With a store that may hold them, run_batch starts it at the first file to measure.)
-        start_worker_server()
-    from checker.io.layout import check_layout_text
-    from checker.profile.load import load_profile
-    from checker.run.batch import Interrupted, StoreFailed, run_batch
+    from checker.profile.load import load_profile  # no numpy: a few ms
 
     profile = load_profile(args.profile)  # ProfileError -> exit 2 before anything is read
+    if not args.cluster and (args.fresh or not os.path.exists(args.out)):
+        # Every file will be measured here: the workers' server loads the engine on another
+        # core while this process imports the rest and walks the inputs. (With a store that
+        # may hold them, run_batch starts it at the first file to measure.)
+        start_worker_server()
+    from checker.io.layout import check_layout_text
+    from checker.run.batch import Interrupted, StoreFailed, run_batch
+
     profile = with_span_settings(profile, args)  # --span etc. over the profile's [programme]
     if args.layout is not None:
         check_layout_text(args.layout)

@@ -67,3 +67,17 @@ def test_public_names_load_on_first_use():
     assert set(checker.__all__) <= set(dir(checker))
     with pytest.raises(AttributeError, match="no attribute 'nope'"):
         checker.nope  # noqa: B018
+
+
+def test_a_profile_error_starts_no_worker_server(tmp_path):
+    # A mistyped profile is the common usage error: it exits 2 before the workers' server
+    # (a second process loading the engine) is started, and without loading numpy.
+    code = (
+        "from checker.cli.main import main\n"
+        f"rc = main(['check', {str(tmp_path)!r}, '--profile', 'no-such-profile', "
+        f"'--out', {str(tmp_path / 'out')!r}, '--quiet'])\n"
+        "assert rc == 2, rc"
+    )
+    loaded = loaded_after(code)
+    assert "checker.profile.load" in loaded
+    assert "multiprocessing.forkserver" not in loaded and "numpy" not in loaded
