@@ -231,17 +231,6 @@ def _item_text(item: Any) -> str:
     return str(item)
 
 
-def cell(value: Any) -> Any:
-    """One table cell: scalars as they are (NaN -> None), lists as text."""
-    if isinstance(value, (list, tuple)):
-        return list_text(value)
-    if isinstance(value, dict):
-        return "; ".join(f"{k}={_item_text(v)}" for k, v in value.items())
-    if isinstance(value, float) and math.isnan(value):
-        return None
-    return value
-
-
 def flags_text(result: FileResult) -> str:
     """Every flag of one file in plain words: ``"fail: <message> | warn: <message>"``."""
     if result.verdict is None:
@@ -283,24 +272,9 @@ def file_columns(results: Sequence[FileResult]) -> list[str]:
 
 
 def csv_file_row(result: FileResult, channels: int) -> dict[str, Any]:
-    """One report.csv row: numbers rounded by unit, per-channel lists in their own columns."""
-    verdict = result.verdict
-    gain = verdict.gain if verdict is not None else None
-    m = result.measurement
-    row = file_row(result)
-    for key in GAIN_COLUMNS:
-        row[key] = value_cell(key, getattr(gain, key)) if gain is not None else None
-    if m is not None:
-        for key, value in m.values.items():
-            if key in PER_CHANNEL_KEYS:
-                del row[key]
-                row.update(channel_cells(key, value, channels))
-            elif key in row and key not in LEAD_COLUMNS:
-                row[key] = value_cell(key, value)
-    return row
-
-
-def file_row(result: FileResult) -> dict[str, Any]:
+    """One report.csv row: numbers rounded by unit, per-channel lists in their own columns.
+    Each cell is computed once (a measurement holds about 170 values; the parent builds this
+    row for every file of a batch)."""
     verdict = result.verdict
     gain = verdict.gain if verdict is not None else None
     m = result.measurement
@@ -315,12 +289,19 @@ def file_row(result: FileResult) -> dict[str, Any]:
         "findings": "; ".join(m.findings) if m is not None and m.findings else None,
     }
     for key in GAIN_COLUMNS:
-        row[key] = cell(getattr(gain, key)) if gain is not None else None
+        row[key] = value_cell(key, getattr(gain, key)) if gain is not None else None
     if m is not None:
         for key, value in m.values.items():
-            if key not in row:
-                row[key] = cell(value)
+            if key in _LEAD:  # a measurement key never replaces a lead column
+                continue
+            if key in PER_CHANNEL_KEYS:
+                row.update(channel_cells(key, value, channels))
+            else:
+                row[key] = value_cell(key, value)
     return row
+
+
+_LEAD = frozenset(LEAD_COLUMNS)
 
 
 @dataclass(frozen=True)
