@@ -135,7 +135,7 @@ class SilenceMeter:
         if block.raw is not None and block.frames:
             xt = block.xt
             block.memo["silence_steps"] = self._pieces(xt, block.start)  # numpy frees the GIL
-            if self.native:
+            if self.native and "frame_scan" not in block.memo:  # (else: the fused walk's)
                 mask = np.empty(block.frames, dtype=np.uint8)
                 block.memo["frame_scan"] = (native.frame_scan(xt, self.threshold, mask), mask)
 
