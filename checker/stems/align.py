@@ -65,11 +65,12 @@ class StemOffset:
 
 
 class _Role:
-    """One source's history for both roles (reference: L behind; shifted: 2 L kept)."""
+    """One source's history for both roles (reference: L behind; shifted: 2 L kept),
+    channel-major (channels, frames), the layout the FFTs run along."""
 
     def __init__(self, lag: int, channels: int) -> None:
-        self.ref_hist = np.zeros((lag, channels))
-        self.x_hist = np.zeros((2 * lag, channels))
+        self.ref_hist = np.zeros((channels, lag))
+        self.x_hist = np.zeros((channels, 2 * lag))
         self.energy = 0.0
 
 
@@ -99,24 +100,29 @@ class LagCorrelator:
         self._step(blocks, b)
 
     def _step(self, blocks: list[np.ndarray], b: int) -> None:
+        """One block per source. The shifted role's extended block (2 L + b frames) is
+        correlated with the reference role's b frames; an FFT of 2 L + b points or more
+        holds every lag in [0, 2 L] without wrap-around (index n + k < 2 L + b for n < b,
+        k <= 2 L), so no longer transform is needed."""
         lag = self.lag
-        nfft = sfft.next_fast_len(2 * lag + 2 * b, real=True)
+        nfft = sfft.next_fast_len(2 * lag + b, real=True)
         refs = {i for i, _ in self.pairs}
         xs = {j for _, j in self.pairs}
         f_ref: dict[int, np.ndarray] = {}
         f_x: dict[int, np.ndarray] = {}
         for i, (role, x) in enumerate(zip(self._roles, blocks, strict=True)):
-            role.energy += float(np.sum(x * x))
-            r_ext = np.concatenate([role.ref_hist, x])
-            s_ext = np.concatenate([role.x_hist, x])
+            xt = x.T  # (channels, frames): a view for the reader's blocks
+            role.energy += float(np.einsum("cn,cn->", xt, xt))
+            r_ext = np.concatenate([role.ref_hist, xt], axis=1)
+            s_ext = np.concatenate([role.x_hist, xt], axis=1)
             if i in refs:
-                f_ref[i] = np.conj(sfft.rfft(r_ext[:b], n=nfft, axis=0))
+                f_ref[i] = np.conj(sfft.rfft(r_ext[:, :b], n=nfft, axis=1))
             if i in xs:
-                f_x[i] = sfft.rfft(s_ext, n=nfft, axis=0)
-            role.ref_hist = r_ext[b:].copy()
-            role.x_hist = s_ext[b:].copy()
+                f_x[i] = sfft.rfft(s_ext, n=nfft, axis=1)
+            role.ref_hist = r_ext[:, b:]
+            role.x_hist = s_ext[:, b:]
         for i, j in self.pairs:
-            spec = np.sum(f_x[j] * f_ref[i], axis=1)
+            spec = np.einsum("ck,ck->k", f_x[j], f_ref[i])
             self._corr[(i, j)] += sfft.irfft(spec, n=nfft)[: 2 * lag + 1]
 
     def _flush(self) -> None:
@@ -125,7 +131,7 @@ class LagCorrelator:
             self._flushed = True
             return
         self._flushed = True
-        zeros = [np.zeros((self.lag, self.channels)) for _ in self._roles]
+        zeros = [np.zeros((self.lag, self.channels)) for _ in self._roles]  # (frames, ch)
         # One more step of zeros moves every reference role's remaining frames through.
         energies = [r.energy for r in self._roles]
         self._step(zeros, self.lag)

@@ -195,13 +195,15 @@ class NullAccumulator:
 def _xcorr(m: np.ndarray, s_ext: np.ndarray, count: int) -> np.ndarray:
     """``r[j] = sum_i sum_ch m[i] s_ext[i + j]`` for ``j`` in ``[0, count)``.
 
-    ``s_ext`` is at least ``len(m) + count - 1`` frames long; summed over channels.
+    ``s_ext`` is at least ``len(m) + count - 1`` frames long; summed over channels. An FFT
+    of ``len(s_ext)`` points is enough: every index used, ``i + j < len(m) + count - 1``,
+    stays inside ``s_ext``, so nothing wraps around.
     """
     b = m.shape[0]
     if b == 0:
         return np.zeros(count)
-    nfft = sfft.next_fast_len(s_ext.shape[0] + b, real=True)
+    nfft = sfft.next_fast_len(s_ext.shape[0], real=True)
     fs = sfft.rfft(s_ext, n=nfft, axis=0)
     fm = sfft.rfft(m, n=nfft, axis=0)
-    spec = np.sum(fs * np.conj(fm), axis=1)
+    spec = np.einsum("kc,kc->k", fs, np.conj(fm))
     return sfft.irfft(spec, n=nfft)[:count]
