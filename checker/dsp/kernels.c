@@ -416,6 +416,13 @@ static inline double lanes_sum(const double *l)
  * the first-level cache, where every step after the deinterleaving reads it. */
 #define WALK_TILE 512
 
+/* Four-double vectors (two per LANES group; one AVX2 register each, two SSE2 registers in
+ * the default build): the same lanes as piece_stats's two-double vectors. */
+typedef double v4d __attribute__((vector_size(32)));
+typedef int64_t v4i __attribute__((vector_size(32)));
+#define VMAX4(a, b) ((v4d)((((v4i)((a) > (b))) & (v4i)(a)) | (~((v4i)((a) > (b))) & (v4i)(b))))
+#define VMIN4(a, b) ((v4d)((((v4i)((a) < (b))) & (v4i)(a)) | (~((v4i)((a) < (b))) & (v4i)(b))))
+
 /* piece_stats on x[lo, end) with the lanes kept by the caller between tiles (sl, ql: sums
  * and squares, lane j of element lo + i is i % LANES, lo being a multiple of LANES from
  * the start of the piece; the tail after the last full group, at the piece's end only,
@@ -423,31 +430,28 @@ static inline double lanes_sum(const double *l)
 static inline void tile_stats(const double *x, int64_t lo, int64_t end, double *hi_,
                               double *lo_, double *sl, double *ql)
 {
-    v2d h[4], l[4], s[4], q[4];
-    for (int i = 0; i < 4; i++) {
-        h[i] = (v2d){*hi_, *hi_};
-        l[i] = (v2d){*lo_, *lo_};
-        s[i] = (v2d){sl[2 * i], sl[2 * i + 1]};
-        q[i] = (v2d){ql[2 * i], ql[2 * i + 1]};
-    }
+    const v4d hv = {*hi_, *hi_, *hi_, *hi_}, lv = {*lo_, *lo_, *lo_, *lo_};
+    v4d h[2] = {hv, hv}, l[2] = {lv, lv};
+    v4d s[2] = {{sl[0], sl[1], sl[2], sl[3]}, {sl[4], sl[5], sl[6], sl[7]}};
+    v4d q[2] = {{ql[0], ql[1], ql[2], ql[3]}, {ql[4], ql[5], ql[6], ql[7]}};
     int64_t t = lo;
     for (; t + LANES <= end; t += LANES) {
-        for (int i = 0; i < 4; i++) {
-            v2d v;
-            memcpy(&v, x + t + 2 * i, sizeof v);
-            h[i] = VMAX(v, h[i]);
-            l[i] = VMIN(v, l[i]);
+        for (int i = 0; i < 2; i++) {
+            v4d v;
+            memcpy(&v, x + t + 4 * i, sizeof v);
+            h[i] = VMAX4(v, h[i]);
+            l[i] = VMIN4(v, l[i]);
             s[i] += v;
             q[i] += v * v;
         }
     }
     double hh = *hi_, mm = *lo_;
     for (int j = 0; j < LANES; j++) {
-        const double hj = h[j / 2][j % 2], mj = l[j / 2][j % 2];
+        const double hj = h[j / 4][j % 4], mj = l[j / 4][j % 4];
         hh = hj > hh ? hj : hh;
         mm = mj < mm ? mj : mm;
-        sl[j] = s[j / 2][j % 2];
-        ql[j] = q[j / 2][j % 2];
+        sl[j] = s[j / 4][j % 4];
+        ql[j] = q[j / 4][j % 4];
     }
     for (int j = 0; t < end; t++, j++) {
         const double v = x[t];
