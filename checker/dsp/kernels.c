@@ -152,68 +152,73 @@ EXPORT void dc_kweight_sums(const double *x, int64_t n, const int64_t *rows, int
 /* Up to this many frames, float sums of code / 2^31 are exact (see dc_channel_stats). */
 #define EXACT_SUM_FRAMES (INT64_C(1) << 21)
 
-typedef int64_t v2i __attribute__((vector_size(16)));
-
-/* element-wise a > b ? a : b and a < b ? a : b on two-double vectors */
-#define VMAX(a, b) ((v2d)((((v2i)((a) > (b))) & (v2i)(a)) | (~((v2i)((a) > (b))) & (v2i)(b))))
-#define VMIN(a, b) ((v2d)((((v2i)((a) < (b))) & (v2i)(a)) | (~((v2i)((a) < (b))) & (v2i)(b))))
-
-/* One channel's piece [lo, end): running max/min and sum, the sum of squares (returned) and
- * the count of exact zeros (*zeros). LANES accumulators per quantity, held in four
- * two-double vectors: lane j is element j % 2 of vector j / 2. */
-static inline double piece_stats(const double *x, int64_t lo, int64_t end, double *hi_,
-                                 double *lo_, double *sum_, int64_t *zeros)
+static inline double lanes_sum(const double *l)
 {
-    const v2d zero = {0.0, 0.0};
-    v2d h[4], l[4], s[4], q[4];
-    v2i z[4];
-    for (int i = 0; i < 4; i++) {
-        h[i] = (v2d){*hi_, *hi_};
-        l[i] = (v2d){*lo_, *lo_};
-        s[i] = q[i] = zero;
-        z[i] = (v2i){0, 0};
-    }
+    return ((l[0] + l[1]) + (l[2] + l[3])) + ((l[4] + l[5]) + (l[6] + l[7]));
+}
+
+/* Four-double vectors, two per LANES group (one AVX2 register each, two SSE2 registers in
+ * the default build); element-wise a > b ? a : b and a < b ? a : b on them. */
+typedef double v4d __attribute__((vector_size(32)));
+typedef int64_t v4i __attribute__((vector_size(32)));
+#define VMAX4(a, b) ((v4d)((((v4i)((a) > (b))) & (v4i)(a)) | (~((v4i)((a) > (b))) & (v4i)(b))))
+#define VMIN4(a, b) ((v4d)((((v4i)((a) < (b))) & (v4i)(a)) | (~((v4i)((a) < (b))) & (v4i)(b))))
+
+/* Sums and squares of x[lo, end) into the lanes sl, ql, kept by the caller between calls
+ * (lane j of element lo + i is i % LANES, lo being the start of a 100 ms piece or a
+ * multiple of LANES after it; the tail after the last full group, which only the piece's
+ * last call has, starts again at lane 0); the maximum and minimum into *hi_, *lo_. */
+static inline void tile_stats(const double *x, int64_t lo, int64_t end, double *hi_,
+                              double *lo_, double *sl, double *ql)
+{
+    const v4d hv = {*hi_, *hi_, *hi_, *hi_}, lv = {*lo_, *lo_, *lo_, *lo_};
+    v4d h[2] = {hv, hv}, l[2] = {lv, lv};
+    v4d s[2], q[2]; /* lane j is element j % 4 of vector j / 4: the arrays' own order */
+    memcpy(s, sl, sizeof s);
+    memcpy(q, ql, sizeof q);
     int64_t t = lo;
     for (; t + LANES <= end; t += LANES) {
-        for (int i = 0; i < 4; i++) {
-            v2d v;
-            memcpy(&v, x + t + 2 * i, sizeof v);
-            h[i] = VMAX(v, h[i]);
-            l[i] = VMIN(v, l[i]);
+        for (int i = 0; i < 2; i++) {
+            v4d v;
+            memcpy(&v, x + t + 4 * i, sizeof v);
+            h[i] = VMAX4(v, h[i]);
+            l[i] = VMIN4(v, l[i]);
             s[i] += v;
             q[i] += v * v;
-            z[i] -= (v2i)(v == zero);
         }
     }
-    double hi[LANES], mn[LANES], sl[LANES], ql[LANES];
-    int64_t zl[LANES];
+    double hh = *hi_, mm = *lo_;
     for (int j = 0; j < LANES; j++) {
-        hi[j] = h[j / 2][j % 2];
-        mn[j] = l[j / 2][j % 2];
-        sl[j] = s[j / 2][j % 2];
-        ql[j] = q[j / 2][j % 2];
-        zl[j] = z[j / 2][j % 2];
+        const double hj = h[j / 4][j % 4], mj = l[j / 4][j % 4];
+        hh = hj > hh ? hj : hh;
+        mm = mj < mm ? mj : mm;
     }
+    memcpy(sl, s, sizeof s);
+    memcpy(ql, q, sizeof q);
     for (int j = 0; t < end; t++, j++) {
-        double v = x[t];
-        hi[j] = v > hi[j] ? v : hi[j];
-        mn[j] = v < mn[j] ? v : mn[j];
+        const double v = x[t];
+        hh = v > hh ? v : hh;
+        mm = v < mm ? v : mm;
         sl[j] += v;
         ql[j] += v * v;
-        zl[j] += v == 0.0;
-    }
-    double hh = hi[0], mm = mn[0];
-    int64_t zz = 0;
-    for (int j = 0; j < LANES; j++) {
-        hh = hi[j] > hh ? hi[j] : hh;
-        mm = mn[j] < mm ? mn[j] : mm;
-        zz += zl[j];
     }
     *hi_ = hh;
     *lo_ = mm;
-    *sum_ += ((sl[0] + sl[1]) + (sl[2] + sl[3])) + ((sl[4] + sl[5]) + (sl[6] + sl[7]));
-    *zeros = zz;
-    return ((ql[0] + ql[1]) + (ql[2] + ql[3])) + ((ql[4] + ql[5]) + (ql[6] + ql[7]));
+}
+
+/* One channel's piece [lo, end): running max/min and sum, the sum of squares (returned) and
+ * the count of exact zeros (*zeros), the sums and squares in LANES lanes (tile_stats). */
+static inline double piece_stats(const double *x, int64_t lo, int64_t end, double *hi_,
+                                 double *lo_, double *sum_, int64_t *zeros)
+{
+    double sl[LANES] = {0.0}, ql[LANES] = {0.0};
+    int64_t z = 0;
+    for (int64_t t = lo; t < end; t++)
+        z += x[t] == 0.0;
+    tile_stats(x, lo, end, hi_, lo_, sl, ql);
+    *sum_ += lanes_sum(sl);
+    *zeros = z;
+    return lanes_sum(ql);
 }
 
 /* Per channel row c of x (ch x n): maximum mx[c], minimum mn[c], sum sm[c]; per piece k
@@ -285,6 +290,21 @@ CLONES EXPORT void dc_channel_stats(const double *x, const int32_t *raw, int64_t
     }
 }
 
+/* Sums of products a[t] * b[t] over [lo, end) into the lanes s (element t of the block to
+ * lane t % LANES). */
+static inline void tile_pair(const double *a, const double *b, int64_t lo, int64_t end,
+                             double *s)
+{
+    int64_t t = lo;
+    for (; t < end && (t & (LANES - 1)); t++)
+        s[t & (LANES - 1)] += a[t] * b[t];
+    for (; t + LANES <= end; t += LANES)
+        for (int j = 0; j < LANES; j++)
+            s[j] += a[t + j] * b[t + j];
+    for (; t < end; t++)
+        s[t & (LANES - 1)] += a[t] * b[t];
+}
+
 /* Sums of products of row pairs (first[k], second[k]) of x (ch x n). */
 CLONES EXPORT void dc_pair_products(const double *x, int64_t n, const int64_t *first,
                              const int64_t *second, int64_t npairs, double *out)
@@ -292,13 +312,8 @@ CLONES EXPORT void dc_pair_products(const double *x, int64_t n, const int64_t *f
     for (int64_t k = 0; k < npairs; k++) {
         const double *a = x + first[k] * n, *b = x + second[k] * n;
         double s[LANES] = {0.0};
-        int64_t t = 0;
-        for (; t + LANES <= n; t += LANES)
-            for (int j = 0; j < LANES; j++)
-                s[j] += a[t + j] * b[t + j];
-        for (int j = 0; t < n; t++, j++)
-            s[j] += a[t] * b[t];
-        out[k] = ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
+        tile_pair(a, b, 0, n, s);
+        out[k] = lanes_sum(s);
     }
 }
 
@@ -407,76 +422,9 @@ typedef struct {
     double *kout;
 } walk_args;
 
-static inline double lanes_sum(const double *l)
-{
-    return ((l[0] + l[1]) + (l[2] + l[3])) + ((l[4] + l[5]) + (l[6] + l[7]));
-}
-
 /* Frames per tile: a multiple of LANES; a tile of 6 channels (codes, raw_t, x_t) fits in
  * the first-level cache, where every step after the deinterleaving reads it. */
 #define WALK_TILE 512
-
-/* Four-double vectors (two per LANES group; one AVX2 register each, two SSE2 registers in
- * the default build): the same lanes as piece_stats's two-double vectors. */
-typedef double v4d __attribute__((vector_size(32)));
-typedef int64_t v4i __attribute__((vector_size(32)));
-#define VMAX4(a, b) ((v4d)((((v4i)((a) > (b))) & (v4i)(a)) | (~((v4i)((a) > (b))) & (v4i)(b))))
-#define VMIN4(a, b) ((v4d)((((v4i)((a) < (b))) & (v4i)(a)) | (~((v4i)((a) < (b))) & (v4i)(b))))
-
-/* piece_stats on x[lo, end) with the lanes kept by the caller between tiles (sl, ql: sums
- * and squares, lane j of element lo + i is i % LANES, lo being a multiple of LANES from
- * the start of the piece; the tail after the last full group, at the piece's end only,
- * starts again at lane 0, as in piece_stats); the maximum and minimum into *hi_, *lo_. */
-static inline void tile_stats(const double *x, int64_t lo, int64_t end, double *hi_,
-                              double *lo_, double *sl, double *ql)
-{
-    const v4d hv = {*hi_, *hi_, *hi_, *hi_}, lv = {*lo_, *lo_, *lo_, *lo_};
-    v4d h[2] = {hv, hv}, l[2] = {lv, lv};
-    v4d s[2] = {{sl[0], sl[1], sl[2], sl[3]}, {sl[4], sl[5], sl[6], sl[7]}};
-    v4d q[2] = {{ql[0], ql[1], ql[2], ql[3]}, {ql[4], ql[5], ql[6], ql[7]}};
-    int64_t t = lo;
-    for (; t + LANES <= end; t += LANES) {
-        for (int i = 0; i < 2; i++) {
-            v4d v;
-            memcpy(&v, x + t + 4 * i, sizeof v);
-            h[i] = VMAX4(v, h[i]);
-            l[i] = VMIN4(v, l[i]);
-            s[i] += v;
-            q[i] += v * v;
-        }
-    }
-    double hh = *hi_, mm = *lo_;
-    for (int j = 0; j < LANES; j++) {
-        const double hj = h[j / 4][j % 4], mj = l[j / 4][j % 4];
-        hh = hj > hh ? hj : hh;
-        mm = mj < mm ? mj : mm;
-        sl[j] = s[j / 4][j % 4];
-        ql[j] = q[j / 4][j % 4];
-    }
-    for (int j = 0; t < end; t++, j++) {
-        const double v = x[t];
-        hh = v > hh ? v : hh;
-        mm = v < mm ? v : mm;
-        sl[j] += v;
-        ql[j] += v * v;
-    }
-    *hi_ = hh;
-    *lo_ = mm;
-}
-
-/* dc_pair_products' lanes (element t of the block to lane t % LANES) over [lo, end). */
-static inline void tile_pair(const double *a, const double *b, int64_t lo, int64_t end,
-                             double *s)
-{
-    int64_t t = lo;
-    for (; t < end && (t & (LANES - 1)); t++)
-        s[t & (LANES - 1)] += a[t] * b[t];
-    for (; t + LANES <= end; t += LANES)
-        for (int j = 0; j < LANES; j++)
-            s[j] += a[t + j] * b[t + j];
-    for (; t < end; t++)
-        s[t & (LANES - 1)] += a[t] * b[t];
-}
 
 /* CH channels, NCH K-weighting chains (0 when no rows): constants at each call site, so
  * the per-frame loops unroll and the filter states stay in registers. */
