@@ -15,14 +15,50 @@ judge, stems, run, report, cli); DEVELOPERS.md has the map.
 
 from __future__ import annotations
 
-from checker.analysis.onepass import measure
-from checker.judge.rules import evaluate
-from checker.meters.base import MeasureOptions
-from checker.model.measurement import Measurement
-from checker.model.results import FileResult, RunInfo
-from checker.model.verdict import Flag, GainAdvice, Verdict
+import importlib
+from typing import TYPE_CHECKING
+
 from checker.model.version import __version__
-from checker.profile.load import Profile, load_profile
+
+if TYPE_CHECKING:  # the names below load on first use (see __getattr__)
+    from checker.analysis.onepass import measure
+    from checker.judge.rules import evaluate
+    from checker.meters.base import MeasureOptions
+    from checker.model.measurement import Measurement
+    from checker.model.results import FileResult, RunInfo
+    from checker.model.verdict import Flag, GainAdvice, Verdict
+    from checker.profile.load import Profile, load_profile
+
+#: Public name -> the module that defines it. Loaded on first use: ``import checker.cli``
+#: (the command line) or ``import checker.model`` must not load the measuring engine (numpy,
+#: soundfile, every meter: about 0.3 s of CPU) before a command needs it; see README, Speed.
+_LAZY = {
+    "measure": "checker.analysis.onepass",
+    "evaluate": "checker.judge.rules",
+    "MeasureOptions": "checker.meters.base",
+    "Measurement": "checker.model.measurement",
+    "FileResult": "checker.model.results",
+    "RunInfo": "checker.model.results",
+    "Flag": "checker.model.verdict",
+    "GainAdvice": "checker.model.verdict",
+    "Verdict": "checker.model.verdict",
+    "Profile": "checker.profile.load",
+    "load_profile": "checker.profile.load",
+}
+
+
+def __getattr__(name: str):
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module 'checker' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value  # once: later lookups do not come here
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_LAZY))
+
 
 __all__ = [
     "FileResult",
@@ -50,6 +86,7 @@ def check(paths, profile, out_dir, jobs: int | None = None, fresh: bool = False,
     from pathlib import Path
 
     from checker.dsp.threads import one_thread_pools
+    from checker.profile.load import load_profile
     from checker.report import write_reports
     from checker.report.byprofile import keep_profile_copy
     from checker.run.batch import run_batch

@@ -7,15 +7,15 @@ import math
 import os
 from typing import TextIO
 
-from checker.analysis.onepass import measure
 from checker.cli.spanargs import add_span_arguments, span_settings
-from checker.meters.base import MeasureOptions
 from checker.model.errors import EXIT_OK, EXIT_UNCHECKED, CheckerError
 from checker.model.names import for_terminal, readable_data
-from checker.model.serial import dumps
 from checker.run import live
 from checker.run.progress import Progress
 from checker.run.workers import probe_duration_s
+
+# The engine (checker.analysis.onepass, numpy, soundfile) is imported in run(): building the
+# parser, for --help or another command, must not load it (README, Speed: start-up).
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
@@ -41,9 +41,8 @@ def add_parser(sub) -> argparse.ArgumentParser:
     )
     p.add_argument("--layout", help='channel layout, e.g. "L R C LFE Ls Rs" (default: from file)')
     add_span_arguments(p)
-    p.add_argument(
-        "--block-frames", type=int, default=MeasureOptions.block_frames, help=argparse.SUPPRESS
-    )
+    # None: MeasureOptions' automatic block size (checker.io.audio.auto_block_frames)
+    p.add_argument("--block-frames", type=int, default=None, help=argparse.SUPPRESS)
     return p
 
 
@@ -96,6 +95,8 @@ SUMMARY_KEYS = (
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
+    from checker.meters.base import MeasureOptions
+
     prog = span_settings(args)
     options = MeasureOptions(
         block_frames=args.block_frames,
@@ -122,6 +123,9 @@ def run(args, out: TextIO, err: TextIO) -> int:
 
 
 def _one(args, index: int, path: str, options, progress: Progress, out, err) -> int:
+    from checker.analysis.onepass import measure
+    from checker.model.serial import dumps
+
     decoded = [0.0]  # seconds, written by on_frames, read by the progress line's thread
 
     def on_frames(frames: int, sample_rate_hz: int) -> None:

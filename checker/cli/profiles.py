@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import argparse
-from typing import TextIO
+from typing import TYPE_CHECKING, TextIO
 
 from checker.model.errors import EXIT_OK
-from checker.profile.catalogue import SECTIONS
-from checker.profile.load import Profile, list_profiles, load_profile, validate_profile_file
+
+if TYPE_CHECKING:
+    from checker.profile.load import Profile
+# The profile modules load where a command runs (not for --help or another command).
 
 
 def add_parser(sub) -> argparse.ArgumentParser:
@@ -27,6 +29,8 @@ def add_parser(sub) -> argparse.ArgumentParser:
 
 
 def _list(out: TextIO) -> int:
+    from checker.profile.load import list_profiles
+
     profiles = list_profiles()
     width = max(len(p.name) for p in profiles)
     for p in profiles:
@@ -37,6 +41,8 @@ def _list(out: TextIO) -> int:
 
 def describe(profile: Profile) -> list[str]:
     """The resolved profile as text lines: metadata, then each section's limits with sources."""
+    from checker.profile.catalogue import SECTIONS
+
     lines = [
         f"{profile.title}  ({profile.name}, version {profile.version})",
         f"  {profile.description}" if profile.description else "",
@@ -70,6 +76,8 @@ def describe(profile: Profile) -> list[str]:
 
 
 def run(args, out: TextIO, err: TextIO) -> int:
+    from checker.profile.load import load_profile, validate_profile_file
+
     action = getattr(args, "profiles_action", None)
     if action == "show":
         for line in describe(load_profile(args.name)):

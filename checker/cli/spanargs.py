@@ -7,7 +7,6 @@ import argparse
 import dataclasses
 from typing import Any
 
-from checker.analysis.span import TIMECODE
 from checker.model.errors import UsageError
 
 
@@ -40,6 +39,8 @@ def add_span_arguments(p: argparse.ArgumentParser) -> None:
 
 def span_settings(args: argparse.Namespace) -> dict[str, Any]:
     """The [programme] settings the command line gives (checked), by profile key."""
+    from checker.analysis.span import TIMECODE  # here: building the parser loads no numpy
+
     got = {
         "span": args.span,
         "in_point": args.in_point,

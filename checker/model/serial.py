@@ -15,6 +15,11 @@ import numpy as np
 
 def plain(value: Any) -> Any:
     """numpy scalars/arrays and tuples -> Python floats, ints, lists (pickle/JSON friendly)."""
+    kind = type(value)  # the common cases first: a measurement has ~170 values per file
+    if kind is str or kind is int or kind is bool or value is None:
+        return value
+    if kind is float:
+        return None if value != value else value
     if isinstance(value, dict):
         return {str(k): plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
@@ -33,6 +38,18 @@ def plain(value: Any) -> Any:
 
 def json_safe(value: Any) -> Any:
     """plain() plus -inf/inf as strings, in one pass (results.jsonl writes thousands of points)."""
+    kind = type(value)  # the common cases first, without a call per finite float in a list
+    if kind is str or kind is int or kind is bool or value is None:
+        return value
+    if kind is list or kind is tuple:
+        return [v if type(v) is float and v - v == 0.0 else json_safe(v) for v in value]
+    if kind is dict:  # a measurement's values: mostly finite floats, text and ints
+        return {
+            str(k): v
+            if (t := type(v)) is str or t is int or (t is float and v - v == 0.0) or v is None
+            else json_safe(v)
+            for k, v in value.items()
+        }
     if isinstance(value, float):
         if value != value:
             return None

@@ -10,8 +10,10 @@ undefined (for example integrated loudness when every block is gated out) is
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
-import numpy as np
+if TYPE_CHECKING:  # numpy is imported where a vectorised helper runs: profiles, the judge
+    import numpy as np  # and the command line's start use these constants without it
 
 #: BS.1770-4 eq. (1)/(2): L = -0.691 + 10 log10(sum G_i z_i).
 LOUDNESS_OFFSET_DB = -0.691
@@ -40,6 +42,8 @@ def lufs_to_power(lufs: float) -> float:
 
 def powers_to_lufs(power: np.ndarray) -> np.ndarray:
     """Vectorised :func:`power_to_lufs`; zeros become -inf without a warning."""
+    import numpy as np
+
     power = np.asarray(power, dtype=np.float64)
     out = np.full(power.shape, -np.inf)
     pos = power > 0.0
@@ -57,6 +61,8 @@ def amplitude_to_db(amplitude: float) -> float:
 
 def amplitudes_to_db(amplitude: np.ndarray) -> np.ndarray:
     """Vectorised :func:`amplitude_to_db`."""
+    import numpy as np
+
     a = np.abs(np.asarray(amplitude, dtype=np.float64))
     out = np.full(a.shape, -np.inf)
     pos = a > 0.0

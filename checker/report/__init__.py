@@ -15,8 +15,6 @@ from collections.abc import Sequence
 from datetime import UTC, datetime
 from pathlib import Path
 
-import pandas as pd
-
 from checker.model.results import FileResult, RunInfo
 from checker.report.atomic import write_text_atomic
 from checker.report.csv_out import write_csv
@@ -44,7 +42,7 @@ def write_reports(out_dir: Path, run: RunInfo, results: Sequence[FileResult]) ->
     paths = {name: out_dir / file for name, file in REPORT_FILES.items()}
     frame = results_frame(ordered)
     if run.not_checked:  # files that are clearly not deliverables: listed after the rest
-        frame = pd.concat([frame, not_checked_frame(run, list(frame.columns))], ignore_index=True)
+        frame = frame.extended(not_checked_frame(run, frame.columns))
     write_csv(frame, paths["csv"])
     write_csv(flags_frame(ordered), paths["flags"])
     write_csv(fixes_frame(ordered), paths["fixes"])

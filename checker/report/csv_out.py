@@ -1,22 +1,27 @@
-"""report.csv and flags.csv through pandas, safe to open in a spreadsheet.
+"""The CSV reports (report.csv, flags.csv, fixes.csv, parts.csv), safe to open in a spreadsheet.
 
 A text cell that a spreadsheet would run as a formula (first character ``=``, ``+``, ``-``,
 ``@``, tab, carriage return or line feed) gets a leading single quote. Numbers are never
 touched: a negative level is a number, not text, and a text cell that is exactly one plain
 number (``"-1.5"``, ``"-inf"``) is left as it is. ``None`` is an empty cell; digital
 silence is written ``-inf``.
+
+Written with the standard library's csv module as pandas' ``to_csv(index=False, na_rep="",
+lineterminator="\\n")`` wrote them before (pandas hands each cell to the same csv writer:
+minimal quoting, ``str`` of every value; tests/unit/test_report_csv.py compares the two), so
+the reports are byte for byte what they were, without importing pandas.
 """
 
 from __future__ import annotations
 
+import csv
 import math
 import re
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
-
 from checker.report.atomic import atomic_text
+from checker.report.frame import Table
 
 FORMULA_TRIGGERS = ("=", "+", "-", "@", "\t", "\r", "\n")
 _PLAIN_NUMBER = re.compile(r"[+-]?(?:(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?|inf)")
@@ -33,22 +38,16 @@ def neutralise(value: Any) -> Any:
     return "'" + value
 
 
-def safe_frame(frame: pd.DataFrame) -> pd.DataFrame:
-    """Every cell through :func:`neutralise`; column order kept, ints stay ints.
-
-    Column by column into object Series: ``DataFrame.map`` would infer dtypes and turn a
-    column of ints with empty cells into floats (48000.0).
-    """
-    data = {
-        c: pd.Series([neutralise(v) for v in frame[c]], dtype=object, index=frame.index)
-        for c in frame.columns
-    }
-    return pd.DataFrame(data, columns=list(frame.columns), index=frame.index)
+def safe_rows(table: Table) -> list[list[Any]]:
+    """Every cell through :func:`neutralise`, None as an empty cell; column order kept, ints
+    stay ints (never 48000.0)."""
+    return [["" if (v := neutralise(c)) is None else v for c in row] for row in table.rows]
 
 
-def write_csv(frame: pd.DataFrame, path: Path) -> Path:
-    """Write one neutralised frame atomically (UTF-8, LF line ends, header row)."""
-    safe = safe_frame(frame)
+def write_csv(table: Table, path: Path) -> Path:
+    """Write one neutralised table atomically (UTF-8, LF line ends, header row)."""
     with atomic_text(Path(path)) as handle:
-        safe.to_csv(handle, index=False, na_rep="", lineterminator="\n")
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(table.columns)
+        writer.writerows(safe_rows(table))
     return Path(path)

@@ -14,13 +14,11 @@ from dataclasses import dataclass
 from html import escape
 from typing import Any
 
-import pandas as pd
-
 from checker.model.results import FileResult
 from checker.model.verdict import ERROR, Flag
 from checker.profile.catalogue import BY_KEY
 from checker.report.cells import limit_cells, number, value_cell
-from checker.report.frame import ERROR_RULE, object_frame, sorted_results
+from checker.report.frame import ERROR_RULE, Table, object_frame, sorted_results
 
 
 @dataclass(frozen=True)
@@ -152,7 +150,7 @@ def measured_key(flag: Flag) -> str:
     return key if isinstance(key, str) else f"x_{flag.unit.lower()}"
 
 
-def fixes_frame(results: Sequence[FileResult]) -> pd.DataFrame:
+def fixes_frame(results: Sequence[FileResult]) -> Table:
     """fixes.csv: one row per (group, file, flag); numbers rounded like report.csv."""
     rows: list[dict[str, Any]] = []
     for it in fix_items(results):

@@ -1,4 +1,4 @@
-"""Results -> pandas DataFrames with a stable column order (the shape of report.csv and flags.csv).
+"""Results -> tables with a stable column order (the shape of report.csv and flags.csv).
 
 Column order of the per-file table (``file_columns``):
 
@@ -10,18 +10,19 @@ Column order of the per-file table (``file_columns``):
    channels, bandwidth, stream format, WAV metadata, other loudness carriers, lossy stream;
 3. any other measurement key (for example stem-set ``set_`` / ``sum_`` keys), sorted by name.
 
-Cells keep plain Python values: numbers stay numbers, ``None`` stays ``None`` (an empty
-cell), digital silence stays ``-inf``. Lists (per-channel values, times, channel pairs)
+A table is a :class:`Table` (column names and rows of cells), not a pandas DataFrame: the
+reports are the only users and pandas cost about 0.45 s of CPU to import on every ``check``
+(README, Speed). Cells keep plain Python values: numbers stay numbers, ``None`` stays ``None``
+(an empty cell), digital silence stays ``-inf``. Lists (per-channel values, times, channel pairs)
 become text such as ``"-1.20; -3.40"``; a pair inside a list reads ``"(0, 1)"``.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
 from typing import Any
-
-import pandas as pd
 
 from checker.io.carriers import CARRIER_KEYS
 from checker.io.lossy import LOSSY_KEYS
@@ -230,17 +231,6 @@ def _item_text(item: Any) -> str:
     return str(item)
 
 
-def cell(value: Any) -> Any:
-    """One table cell: scalars as they are (NaN -> None), lists as text."""
-    if isinstance(value, (list, tuple)):
-        return list_text(value)
-    if isinstance(value, dict):
-        return "; ".join(f"{k}={_item_text(v)}" for k, v in value.items())
-    if isinstance(value, float) and math.isnan(value):
-        return None
-    return value
-
-
 def flags_text(result: FileResult) -> str:
     """Every flag of one file in plain words: ``"fail: <message> | warn: <message>"``."""
     if result.verdict is None:
@@ -282,24 +272,9 @@ def file_columns(results: Sequence[FileResult]) -> list[str]:
 
 
 def csv_file_row(result: FileResult, channels: int) -> dict[str, Any]:
-    """One report.csv row: numbers rounded by unit, per-channel lists in their own columns."""
-    verdict = result.verdict
-    gain = verdict.gain if verdict is not None else None
-    m = result.measurement
-    row = file_row(result)
-    for key in GAIN_COLUMNS:
-        row[key] = value_cell(key, getattr(gain, key)) if gain is not None else None
-    if m is not None:
-        for key, value in m.values.items():
-            if key in PER_CHANNEL_KEYS:
-                del row[key]
-                row.update(channel_cells(key, value, channels))
-            elif key in row and key not in LEAD_COLUMNS:
-                row[key] = value_cell(key, value)
-    return row
-
-
-def file_row(result: FileResult) -> dict[str, Any]:
+    """One report.csv row: numbers rounded by unit, per-channel lists in their own columns.
+    Each cell is computed once (a measurement holds about 170 values; the parent builds this
+    row for every file of a batch)."""
     verdict = result.verdict
     gain = verdict.gain if verdict is not None else None
     m = result.measurement
@@ -314,21 +289,58 @@ def file_row(result: FileResult) -> dict[str, Any]:
         "findings": "; ".join(m.findings) if m is not None and m.findings else None,
     }
     for key in GAIN_COLUMNS:
-        row[key] = cell(getattr(gain, key)) if gain is not None else None
+        row[key] = value_cell(key, getattr(gain, key)) if gain is not None else None
     if m is not None:
         for key, value in m.values.items():
-            if key not in row:
-                row[key] = cell(value)
+            if key in _LEAD:  # a measurement key never replaces a lead column
+                continue
+            if key in PER_CHANNEL_KEYS:
+                row.update(channel_cells(key, value, channels))
+            else:
+                row[key] = value_cell(key, value)
     return row
 
 
-def object_frame(rows: list[dict[str, Any]], columns: Sequence[str]) -> pd.DataFrame:
-    # object dtype everywhere: None stays None (never NaN), ints stay ints.
-    data = {c: pd.Series([row.get(c) for row in rows], dtype=object) for c in columns}
-    return pd.DataFrame(data, columns=list(columns))
+_LEAD = frozenset(LEAD_COLUMNS)
 
 
-def results_frame(results: Sequence[FileResult]) -> pd.DataFrame:
+@dataclass(frozen=True)
+class Table:
+    """Rows of cells under named columns: what one CSV file holds (header, then the rows)."""
+
+    columns: tuple[str, ...]
+    rows: tuple[tuple[Any, ...], ...] = ()
+
+    def __len__(self) -> int:
+        return len(self.rows)
+
+    def column(self, name: str) -> list[Any]:
+        """The cells of one column, top to bottom."""
+        i = self.columns.index(name)
+        return [row[i] for row in self.rows]
+
+    def records(self) -> Iterator[dict[str, Any]]:
+        """Each row as {column: cell}."""
+        for row in self.rows:
+            yield dict(zip(self.columns, row, strict=True))
+
+    def extended(self, other: Table) -> Table:
+        """This table's rows, then ``other``'s (which has the same columns)."""
+        if other.columns != self.columns:
+            raise ValueError(
+                f"Table.extended: columns = {other.columns[:3]}... (expected {self.columns[:3]}...)"
+            )
+        return Table(self.columns, self.rows + other.rows)
+
+
+def object_frame(rows: list[dict[str, Any]], columns: Sequence[str]) -> Table:
+    """A table of ``rows`` (dicts; a missing key is an empty cell) in the order of ``columns``.
+    Cells are kept as they are: None stays None, ints stay ints."""
+    columns = tuple(columns)
+    return Table(columns, tuple(tuple(row.get(c) for c in columns) for row in rows))
+
+
+def results_frame(results: Sequence[FileResult]) -> Table:
     """One row per file (worst first), columns in the documented order (report.csv cells)."""
     ordered = sorted_results(results)
     channels = channel_count(ordered)
@@ -339,7 +351,7 @@ def results_frame(results: Sequence[FileResult]) -> pd.DataFrame:
 ERROR_RULE = "not_checked"
 
 
-def not_checked_frame(run: RunInfo, columns: Sequence[str]) -> pd.DataFrame:
+def not_checked_frame(run: RunInfo, columns: Sequence[str]) -> Table:
     """One row per file that was not checked (``RunInfo.not_checked``), status "not checked",
     the reason in ``findings``; the other columns empty. Appended after the checked files."""
     rows = [
@@ -355,7 +367,7 @@ def not_checked_frame(run: RunInfo, columns: Sequence[str]) -> pd.DataFrame:
     return object_frame(rows, columns)
 
 
-def flags_frame(results: Sequence[FileResult]) -> pd.DataFrame:
+def flags_frame(results: Sequence[FileResult]) -> Table:
     """One row per flag, files in report order, flags in verdict order.
 
     A file that could not be checked (status error) has one row too, with rule

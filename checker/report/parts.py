@@ -5,11 +5,9 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-import pandas as pd
-
 from checker.model.results import FileResult
 from checker.report.cells import value_cell
-from checker.report.frame import object_frame, sorted_results
+from checker.report.frame import Table, object_frame, sorted_results
 
 PART_COLUMNS: tuple[str, ...] = (
     "path",
@@ -26,7 +24,7 @@ PART_COLUMNS: tuple[str, ...] = (
 )
 
 
-def parts_frame(results: Sequence[FileResult]) -> pd.DataFrame:
+def parts_frame(results: Sequence[FileResult]) -> Table:
     """Every part of every file that was split into parts (a header only when none was)."""
     rows = []
     for r in sorted_results(results):

@@ -43,6 +43,7 @@ from checker.run.workers import (
     DEFAULT_MEMORY_MB,
     LocalPool,
     Task,
+    start_worker_server,
     usable_cores,
     worker_measure_fn,
 )
@@ -309,6 +310,8 @@ def run_batch(
                     _keep(store, run, results, FileResult.failed(shown, error))
                     progress.advance(stored=True)
                     continue
+            if not tasks and not cluster:  # the first file to measure: the workers' server
+                start_worker_server()  # loads the engine meanwhile (checker/run/workers.py)
             idents[index] = ident
             tasks.append(Task(index=index, path=path, size_bytes=ident.size_bytes))
 

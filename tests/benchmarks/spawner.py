@@ -11,7 +11,13 @@ its children's peak RSS is their own (plus at most this process's ~10 MB).
 CPU: this process is a child subreaper (Linux prctl), so descendants that outlive
 their parent (the forkserver that started a batch's workers, which reaps the
 workers itself) come back here and are reaped too; their user + system time,
-with that of everything they reaped, is part of the command's CPU.
+with that of everything they reaped, is part of the command's CPU. Each process
+counts once: wait4's rusage is the reaped process's own time plus that of the
+descendants *it* reaped (not of orphans, which come here), so nothing is added
+twice (tests/e2e/test_bench_spawner.py checks it with a tree of known CPU: the
+command, a child it reaps, and a server outliving it that reaps its worker). The
+batch figure is the whole tree: the workers and the parent's own per-file work
+(store, judging, reports), which is why it exceeds a worker's own CPU.
 
 Children run without OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE (set on the shared
 benchmark machines, not by users): the libraries pick their kernel themselves.

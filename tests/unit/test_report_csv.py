@@ -346,11 +346,61 @@ def test_rewriting_reports_replaces_them(tmp_path):
 
 def test_table_keeps_none_and_numbers():
     frame = results_frame(make_results())
-    assert frame.dtypes.unique().tolist() == [object]
-    silent = frame[frame["path"] == "silence/room_tone.wav"].iloc[0]
+    silent = next(r for r in frame.records() if r["path"] == "silence/room_tone.wav")
     assert silent["integrated_lufs"] is None
     assert silent["true_peak_dbtp"] == -math.inf
-    assert isinstance(frame.iloc[0]["status"], str)
+    assert isinstance(frame.column("status")[0], str)
+    assert all(type(v) is int for v in frame.column("sample_rate_hz") if v is not None)
+
+
+#: Cells of every kind a report holds, and the awkward ones: quotes, separators, line ends,
+#: formula triggers, unicode, ints beside None, -inf, -0.0, tiny and huge floats, booleans.
+AWKWARD_CELLS = (
+    "plain", 'a "quoted" word', "a, b; c", "two\nlines", "cr\rhere", "=SUM(A1)", "-1.5",
+    "-inf", "+x", "@me", "\tlead", "", " ", "naïve ✓ 日本", None, 0, 48000, -3, 1.0, -0.0,
+    -math.inf, math.inf, 0.1 + 0.2, 1e-12, 2.5e17, -23.456789, True, False, float("nan"),
+)  # fmt: skip
+
+
+def test_csv_writer_gives_the_bytes_pandas_gave(tmp_path):
+    # Reference: pandas' DataFrame.to_csv with the arguments the reports used before they
+    # were written without pandas (object columns, index=False, na_rep="", "\n" line ends),
+    # on the same neutralised cells. The new writer must give the same bytes.
+    from checker.report.csv_out import write_csv
+    from checker.report.frame import object_frame
+
+    n = len(AWKWARD_CELLS)
+    rows = [{f"c{j}": AWKWARD_CELLS[(i + j) % n] for j in range(5)} for i in range(n)]
+    rows.append({"c0": "only one cell"})  # missing keys: empty cells
+    rows.append({"c2": ""})  # a row of empty cells
+    columns = ["c0", "c1", "c2", "c3", "c4"]
+    table = object_frame(rows, columns)
+    data = {c: pd.Series([neutralise(r.get(c)) for r in rows], dtype=object) for c in columns}
+    expected = pd.DataFrame(data, columns=columns).to_csv(
+        index=False, na_rep="", lineterminator="\n"
+    )
+    got = write_csv(table, tmp_path / "t.csv").read_bytes()
+    assert got == expected.encode("utf-8")
+    # and one column only, where the csv module quotes an empty row
+    single = object_frame([{"x": None}, {"x": ""}, {"x": 1}], ["x"])
+    expected = pd.DataFrame({"x": pd.Series([None, "", 1], dtype=object)}).to_csv(
+        index=False, na_rep="", lineterminator="\n"
+    )
+    assert write_csv(single, tmp_path / "one.csv").read_bytes() == expected.encode("utf-8")
+
+
+def test_reports_do_not_import_pandas(tmp_path):
+    # Start-up cost: pandas took about 0.45 s of CPU to import on every check (README, Speed).
+    import subprocess
+    import sys
+
+    code = (
+        "import sys; from checker.report import write_reports; "
+        "import checker.report.byprofile; "
+        "print('pandas' in sys.modules)"
+    )
+    got = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert got.stdout.strip() == "False"
 
 
 def test_embedded_json_cannot_close_its_script_element():
