@@ -33,6 +33,7 @@ from checker.io.streamlength import FlacUnknownLength
 from checker.io.wavchunks import WavHeader, empty_values, read_wav_header, with_header_findings
 from checker.meters import meter_classes
 from checker.meters.base import MeasureOptions
+from checker.meters.blockwalk import BlockWalk
 from checker.meters.roundtrip import add_shifts, round_trip_meters
 from checker.model.errors import AudioReadError, UnsupportedAudioError
 from checker.model.measurement import Measurement
@@ -315,9 +316,15 @@ def _measure(
     on_frames: FramesCallback | None = None,
 ) -> Measurement:
     hooks: list = []  # the meters' prepare steps, filled once the meters exist
+    walks: list = []  # the fused walk over integer PCM blocks, likewise
     try:
         info, blocks = read_blocks(
-            path, options.block_frames, read_ahead=read_ahead, prepare=hooks, source=source
+            path,
+            options.block_frames,
+            read_ahead=read_ahead,
+            prepare=hooks,
+            source=source,
+            walk=walks,
         )
     except AudioReadError as exc:  # say what the header readers saw, if anything
         raise open_error(path, exc) from None
@@ -332,6 +339,10 @@ def _measure(
     # Meters with a prepare step (GIL-free compiled work on the block's own samples) have it
     # run as each block is decoded: in the read-ahead thread, overlapping the other meters.
     hooks.extend(m.prepare for m in meters if hasattr(m, "prepare"))
+    # Integer PCM: deinterleaving, sample statistics, pair products, frame scan and
+    # K-weighting in one compiled walk per block (checker/meters/blockwalk.py).
+    if BlockWalk.fits(info):
+        walks.append(BlockWalk(info, meters))
     try:
         frames = _feed_all(blocks, meters, on_frames, info.sample_rate_hz)
     except AudioReadError as exc:  # a cut FLAC loses sync at its end: say so

@@ -152,68 +152,76 @@ EXPORT void dc_kweight_sums(const double *x, int64_t n, const int64_t *rows, int
 /* Up to this many frames, float sums of code / 2^31 are exact (see dc_channel_stats). */
 #define EXACT_SUM_FRAMES (INT64_C(1) << 21)
 
-typedef int64_t v2i __attribute__((vector_size(16)));
-
-/* element-wise a > b ? a : b and a < b ? a : b on two-double vectors */
-#define VMAX(a, b) ((v2d)((((v2i)((a) > (b))) & (v2i)(a)) | (~((v2i)((a) > (b))) & (v2i)(b))))
-#define VMIN(a, b) ((v2d)((((v2i)((a) < (b))) & (v2i)(a)) | (~((v2i)((a) < (b))) & (v2i)(b))))
-
-/* One channel's piece [lo, end): running max/min and sum, the sum of squares (returned) and
- * the count of exact zeros (*zeros). LANES accumulators per quantity, held in four
- * two-double vectors: lane j is element j % 2 of vector j / 2. */
-static inline double piece_stats(const double *x, int64_t lo, int64_t end, double *hi_,
-                                 double *lo_, double *sum_, int64_t *zeros)
+static inline __attribute__((always_inline)) double
+lanes_sum(const double *l)
 {
-    const v2d zero = {0.0, 0.0};
-    v2d h[4], l[4], s[4], q[4];
-    v2i z[4];
-    for (int i = 0; i < 4; i++) {
-        h[i] = (v2d){*hi_, *hi_};
-        l[i] = (v2d){*lo_, *lo_};
-        s[i] = q[i] = zero;
-        z[i] = (v2i){0, 0};
-    }
+    return ((l[0] + l[1]) + (l[2] + l[3])) + ((l[4] + l[5]) + (l[6] + l[7]));
+}
+
+/* Four-double vectors, two per LANES group (one AVX2 register each, two SSE2 registers in
+ * the default build); element-wise a > b ? a : b and a < b ? a : b on them. */
+typedef double v4d __attribute__((vector_size(32)));
+typedef int64_t v4i __attribute__((vector_size(32)));
+#define VMAX4(a, b) ((v4d)((((v4i)((a) > (b))) & (v4i)(a)) | (~((v4i)((a) > (b))) & (v4i)(b))))
+#define VMIN4(a, b) ((v4d)((((v4i)((a) < (b))) & (v4i)(a)) | (~((v4i)((a) < (b))) & (v4i)(b))))
+
+/* Sums and squares of x[lo, end) into the lanes sl, ql, kept by the caller between calls
+ * (lane j of element lo + i is i % LANES, lo being the start of a 100 ms piece or a
+ * multiple of LANES after it; the tail after the last full group, which only the piece's
+ * last call has, starts again at lane 0); the maximum and minimum into *hi_, *lo_. */
+static inline __attribute__((always_inline)) void
+tile_stats(const double *x, int64_t lo, int64_t end, double *hi_,
+                              double *lo_, double *sl, double *ql)
+{
+    const v4d hv = {*hi_, *hi_, *hi_, *hi_}, lv = {*lo_, *lo_, *lo_, *lo_};
+    v4d h[2] = {hv, hv}, l[2] = {lv, lv};
+    v4d s[2], q[2]; /* lane j is element j % 4 of vector j / 4: the arrays' own order */
+    memcpy(s, sl, sizeof s);
+    memcpy(q, ql, sizeof q);
     int64_t t = lo;
     for (; t + LANES <= end; t += LANES) {
-        for (int i = 0; i < 4; i++) {
-            v2d v;
-            memcpy(&v, x + t + 2 * i, sizeof v);
-            h[i] = VMAX(v, h[i]);
-            l[i] = VMIN(v, l[i]);
+        for (int i = 0; i < 2; i++) {
+            v4d v;
+            memcpy(&v, x + t + 4 * i, sizeof v);
+            h[i] = VMAX4(v, h[i]);
+            l[i] = VMIN4(v, l[i]);
             s[i] += v;
             q[i] += v * v;
-            z[i] -= (v2i)(v == zero);
         }
     }
-    double hi[LANES], mn[LANES], sl[LANES], ql[LANES];
-    int64_t zl[LANES];
+    double hh = *hi_, mm = *lo_;
     for (int j = 0; j < LANES; j++) {
-        hi[j] = h[j / 2][j % 2];
-        mn[j] = l[j / 2][j % 2];
-        sl[j] = s[j / 2][j % 2];
-        ql[j] = q[j / 2][j % 2];
-        zl[j] = z[j / 2][j % 2];
+        const double hj = h[j / 4][j % 4], mj = l[j / 4][j % 4];
+        hh = hj > hh ? hj : hh;
+        mm = mj < mm ? mj : mm;
     }
+    memcpy(sl, s, sizeof s);
+    memcpy(ql, q, sizeof q);
     for (int j = 0; t < end; t++, j++) {
-        double v = x[t];
-        hi[j] = v > hi[j] ? v : hi[j];
-        mn[j] = v < mn[j] ? v : mn[j];
+        const double v = x[t];
+        hh = v > hh ? v : hh;
+        mm = v < mm ? v : mm;
         sl[j] += v;
         ql[j] += v * v;
-        zl[j] += v == 0.0;
-    }
-    double hh = hi[0], mm = mn[0];
-    int64_t zz = 0;
-    for (int j = 0; j < LANES; j++) {
-        hh = hi[j] > hh ? hi[j] : hh;
-        mm = mn[j] < mm ? mn[j] : mm;
-        zz += zl[j];
     }
     *hi_ = hh;
     *lo_ = mm;
-    *sum_ += ((sl[0] + sl[1]) + (sl[2] + sl[3])) + ((sl[4] + sl[5]) + (sl[6] + sl[7]));
-    *zeros = zz;
-    return ((ql[0] + ql[1]) + (ql[2] + ql[3])) + ((ql[4] + ql[5]) + (ql[6] + ql[7]));
+}
+
+/* One channel's piece [lo, end): running max/min and sum, the sum of squares (returned) and
+ * the count of exact zeros (*zeros), the sums and squares in LANES lanes (tile_stats). */
+static inline __attribute__((always_inline)) double
+piece_stats(const double *x, int64_t lo, int64_t end, double *hi_,
+                                 double *lo_, double *sum_, int64_t *zeros)
+{
+    double sl[LANES] = {0.0}, ql[LANES] = {0.0};
+    int64_t z = 0;
+    for (int64_t t = lo; t < end; t++)
+        z += x[t] == 0.0;
+    tile_stats(x, lo, end, hi_, lo_, sl, ql);
+    *sum_ += lanes_sum(sl);
+    *zeros = z;
+    return lanes_sum(ql);
 }
 
 /* Per channel row c of x (ch x n): maximum mx[c], minimum mn[c], sum sm[c]; per piece k
@@ -285,6 +293,22 @@ CLONES EXPORT void dc_channel_stats(const double *x, const int32_t *raw, int64_t
     }
 }
 
+/* Sums of products a[t] * b[t] over [lo, end) into the lanes s (element t of the block to
+ * lane t % LANES). */
+static inline __attribute__((always_inline)) void
+tile_pair(const double *a, const double *b, int64_t lo, int64_t end,
+                             double *s)
+{
+    int64_t t = lo;
+    for (; t < end && (t & (LANES - 1)); t++)
+        s[t & (LANES - 1)] += a[t] * b[t];
+    for (; t + LANES <= end; t += LANES)
+        for (int j = 0; j < LANES; j++)
+            s[j] += a[t + j] * b[t + j];
+    for (; t < end; t++)
+        s[t & (LANES - 1)] += a[t] * b[t];
+}
+
 /* Sums of products of row pairs (first[k], second[k]) of x (ch x n). */
 CLONES EXPORT void dc_pair_products(const double *x, int64_t n, const int64_t *first,
                              const int64_t *second, int64_t npairs, double *out)
@@ -292,13 +316,8 @@ CLONES EXPORT void dc_pair_products(const double *x, int64_t n, const int64_t *f
     for (int64_t k = 0; k < npairs; k++) {
         const double *a = x + first[k] * n, *b = x + second[k] * n;
         double s[LANES] = {0.0};
-        int64_t t = 0;
-        for (; t + LANES <= n; t += LANES)
-            for (int j = 0; j < LANES; j++)
-                s[j] += a[t + j] * b[t + j];
-        for (int j = 0; t < n; t++, j++)
-            s[j] += a[t] * b[t];
-        out[k] = ((s[0] + s[1]) + (s[2] + s[3])) + ((s[4] + s[5]) + (s[6] + s[7]));
+        tile_pair(a, b, 0, n, s);
+        out[k] = lanes_sum(s);
     }
 }
 
@@ -307,7 +326,8 @@ CLONES EXPORT void dc_pair_products(const double *x, int64_t n, const int64_t *f
  * last loud, first non-zero, last non-zero frame (-1 when none); found by scanning in from
  * both ends (they usually stop at once). When some frame is zero, zero_mask[t] = 1 for zero
  * frames and 0 otherwise (else untouched). Returns the number of zero frames. */
-static inline double frame_level(const double *x, int64_t ch, int64_t n, int64_t t)
+static inline __attribute__((always_inline)) double
+frame_level(const double *x, int64_t ch, int64_t n, int64_t t)
 {
     double level = fabs(x[t]);
     for (int64_t c = 1; c < ch; c++) {
@@ -355,6 +375,262 @@ CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, doub
         out[3] = t;
     }
     return zeros;
+}
+
+/* ------------------------------------------------------------------ the fused walk */
+
+/* One walk over a block of interleaved integer codes does what dc_deinterleave_i32,
+ * dc_channel_stats, dc_pair_products, dc_frame_scan and dc_kweight_sums do one after the
+ * other, with the same arithmetic in the same order, so every output has the same bits
+ * (tests/unit/test_walk.py compares them). Why: the K-weighting recursion is bound by the
+ * latency of its feedback chain (a multiply and three adds per frame), which leaves the
+ * core idle most of each frame; the other work fills that idle time while the frame's
+ * codes are in registers, instead of walking the block four more times. The K-weighting
+ * rows are filtered two per vector as in dc_kweight_sums, every pair in the same frame
+ * loop (independent chains overlap: 5.1 pays for one chain instead of three).
+ *
+ * Inputs: in (n x ch interleaved codes), scale (code -> float). Outputs as the separate
+ * kernels: raw_t, x_t (ch x n); per channel mx, mn, sm, isum, ors and per piece of
+ * `cuts` the squares sq (pieces x ch) and all-zero frames zero; the pair sums prod;
+ * scan[4] (first / last loud, first / last non-zero frame, -1 when none) with the zero
+ * frames marked in zero_mask (every frame written); with nrows > 0 the K-weighted sums
+ * kout per piece of kcuts, state zi updated. Returns the zero frames. n >= 1,
+ * ch <= WALK_MAX_CHANNELS, nrows <= 2 * WALK_MAX_CHAINS, npairs <= WALK_MAX_PAIRS. */
+#define WALK_MAX_CHANNELS 8
+#define WALK_MAX_CHAINS 3
+#define WALK_MAX_PAIRS 28
+
+typedef struct {
+    const int32_t *in;
+    int64_t n, ch;
+    double scale;
+    int32_t *raw_t;
+    double *x_t;
+    const int64_t *cuts;
+    int64_t ncuts;
+    double *mx, *mn, *sm, *sq;
+    int64_t *zero, *isum;
+    int32_t *ors;
+    const int64_t *first, *second;
+    int64_t npairs;
+    double *prod;
+    double threshold;
+    int64_t *scan;
+    uint8_t *zero_mask;
+    const int64_t *rows;
+    int64_t nrows;
+    const double *sos;
+    double *zi;
+    const double *w;
+    const int64_t *kcuts;
+    int64_t nkcuts;
+    double *kout;
+} walk_args;
+
+/* Frames per tile: a multiple of LANES; a tile of 6 channels (codes, raw_t, x_t) fits in
+ * the first-level cache, where every step after the deinterleaving reads it. */
+#define WALK_TILE 512
+
+/* CH channels, NCH K-weighting chains (0 when no rows): constants at each call site, so
+ * the per-frame loops unroll and the filter states stay in registers. */
+static inline __attribute__((always_inline)) int64_t walk_impl(const walk_args *a,
+                                                              const int64_t CH, const int NCH)
+{
+    const int64_t n = a->n, npairs = a->npairs;
+    const double scale = a->scale;
+    const int32_t *restrict in = a->in;
+    int32_t *restrict raw_t = a->raw_t;
+    double *restrict x_t = a->x_t;
+    uint8_t *restrict zmask = a->zero_mask;
+    double hi[WALK_MAX_CHANNELS], lo[WALK_MAX_CHANNELS], sum[WALK_MAX_CHANNELS];
+    double s[WALK_MAX_CHANNELS][LANES], q[WALK_MAX_CHANNELS][LANES];
+    double pp[WALK_MAX_PAIRS][LANES];
+    int32_t orr[WALK_MAX_CHANNELS];
+    for (int64_t c = 0; c < CH; c++) {
+        hi[c] = lo[c] = (double)in[c] * scale;
+        sum[c] = 0.0;
+        orr[c] = 0;
+        for (int j = 0; j < LANES; j++)
+            s[c][j] = q[c][j] = 0.0;
+    }
+    for (int64_t k = 0; k < npairs; k++)
+        for (int j = 0; j < LANES; j++)
+            pp[k][j] = 0.0;
+    /* K-weighting: chain i filters rows 2i and 2i + 1 (lane 1 repeats lane 0 for an odd
+     * last row), as in dc_kweight_sums */
+    const double *s1 = a->sos, *s2 = a->sos + 6;
+    const v2d b10 = {s1[0], s1[0]}, b11 = {s1[1], s1[1]}, b12 = {s1[2], s1[2]};
+    const v2d a11 = {s1[4], s1[4]}, a12 = {s1[5], s1[5]};
+    const v2d b20 = {s2[0], s2[0]}, b21 = {s2[1], s2[1]}, b22 = {s2[2], s2[2]};
+    const v2d a21 = {s2[4], s2[4]}, a22 = {s2[5], s2[5]};
+    v2d z10[WALK_MAX_CHAINS], z11[WALK_MAX_CHAINS], z20[WALK_MAX_CHAINS], z21[WALK_MAX_CHAINS];
+    const double *xa[WALK_MAX_CHAINS], *xb[WALK_MAX_CHAINS];
+    int pair[WALK_MAX_CHAINS];
+    double wa[WALK_MAX_CHAINS], wb[WALK_MAX_CHAINS], acc[WALK_MAX_CHAINS];
+    for (int i = 0; i < NCH; i++) {
+        const int64_t r = 2 * i;
+        pair[i] = r + 1 < a->nrows;
+        xa[i] = x_t + a->rows[r] * n;
+        xb[i] = pair[i] ? x_t + a->rows[r + 1] * n : xa[i];
+        const double *za = a->zi + 4 * r, *zb = pair[i] ? a->zi + 4 * (r + 1) : za;
+        z10[i] = (v2d){za[0], zb[0]};
+        z11[i] = (v2d){za[1], zb[1]};
+        z20[i] = (v2d){za[2], zb[2]};
+        z21[i] = (v2d){za[3], zb[3]};
+        wa[i] = a->w[r];
+        wb[i] = pair[i] ? a->w[r + 1] : 0.0;
+        acc[i] = 0.0;
+    }
+    if (a->kout != NULL) /* rows given, possibly none: every piece 0 */
+        for (int64_t k = 0; k <= a->nkcuts; k++)
+            a->kout[k] = 0.0;
+    int64_t kk = 0; /* K-weighting piece in progress, ending (exclusive) at kend */
+    int64_t kend = a->nkcuts > 0 ? a->kcuts[0] : n;
+    int64_t zeros = 0, start = 0;
+    for (int64_t k = 0; k <= a->ncuts; k++) {
+        const int64_t end = k < a->ncuts ? a->cuts[k] : n;
+        int64_t zpiece = 0;
+        for (int64_t t0 = start; t0 < end; t0 += WALK_TILE) {
+            const int64_t t1 = t0 + WALK_TILE < end ? t0 + WALK_TILE : end;
+            /* deinterleave the tile (codes and floats), then from the codes' rows the OR
+             * per channel and the all-zero frames */
+            for (int64_t t = t0; t < t1; t++) {
+                const int32_t *f = in + t * CH;
+                for (int64_t c = 0; c < CH; c++) {
+                    raw_t[c * n + t] = f[c];
+                    x_t[c * n + t] = (double)f[c] * scale;
+                }
+            }
+            for (int64_t c = 0; c < CH; c++) {
+                const int32_t *rc = raw_t + c * n;
+                int32_t o = 0;
+                for (int64_t t = t0; t < t1; t++)
+                    o |= rc[t];
+                orr[c] |= o;
+            }
+            for (int64_t t = t0; t < t1; t++) {
+                int32_t any = 0;
+                for (int64_t c = 0; c < CH; c++)
+                    any |= raw_t[c * n + t];
+                zmask[t] = any == 0;
+                zpiece += any == 0;
+            }
+            /* the K-weighting of the tile, every chain in one frame loop */
+            if (NCH) {
+                for (int64_t t = t0; t < t1; t++) {
+                    while (kend == t && kk < a->nkcuts) { /* pieces ending here, empty too */
+                        for (int i = 0; i < NCH; i++) {
+                            a->kout[kk] += acc[i];
+                            acc[i] = 0.0;
+                        }
+                        kk++;
+                        kend = kk < a->nkcuts ? a->kcuts[kk] : n;
+                    }
+                    for (int i = 0; i < NCH; i++) {
+                        const v2d u = {finite_or_zero(xa[i][t]), finite_or_zero(xb[i][t])};
+                        v2d y = b10 * u + z10[i];
+                        z10[i] = b11 * u - a11 * y + z11[i];
+                        z11[i] = b12 * u - a12 * y;
+                        v2d v = b20 * y + z20[i];
+                        z20[i] = b21 * y - a21 * v + z21[i];
+                        z21[i] = b22 * y - a22 * v;
+                        double qq = wa[i] * (v[0] * v[0]);
+                        if (pair[i])
+                            qq = qq + wb[i] * (v[1] * v[1]);
+                        acc[i] += qq;
+                    }
+                }
+            }
+            for (int64_t c = 0; c < CH; c++)
+                tile_stats(x_t + c * n, t0, t1, &hi[c], &lo[c], s[c], q[c]);
+            for (int64_t p = 0; p < npairs; p++)
+                tile_pair(x_t + a->first[p] * n, x_t + a->second[p] * n, t0, t1, pp[p]);
+        }
+        for (int64_t c = 0; c < CH; c++) {
+            sum[c] += lanes_sum(s[c]);
+            a->sq[k * CH + c] = lanes_sum(q[c]);
+            for (int j = 0; j < LANES; j++)
+                s[c][j] = q[c][j] = 0.0;
+        }
+        a->zero[k] = zpiece;
+        zeros += zpiece;
+        start = end;
+    }
+    if (NCH) {
+        while (kk <= a->nkcuts) { /* the pieces ending at n (the last, and empty ones) */
+            for (int i = 0; i < NCH; i++) {
+                a->kout[kk] += acc[i];
+                acc[i] = 0.0;
+            }
+            kk++;
+        }
+        for (int i = 0; i < NCH; i++) {
+            double *za = a->zi + 8 * i, *zb = za + 4;
+            za[0] = z10[i][0]; za[1] = z11[i][0]; za[2] = z20[i][0]; za[3] = z21[i][0];
+            if (pair[i]) {
+                zb[0] = z10[i][1]; zb[1] = z11[i][1]; zb[2] = z20[i][1]; zb[3] = z21[i][1];
+            }
+        }
+    }
+    for (int64_t c = 0; c < CH; c++) {
+        a->mx[c] = hi[c];
+        a->mn[c] = lo[c];
+        a->sm[c] = sum[c];
+        a->ors[c] = orr[c];
+        if (n <= EXACT_SUM_FRAMES) {
+            a->isum[c] = (int64_t)(sum[c] * 2147483648.0); /* exact: see dc_channel_stats */
+        } else {
+            int64_t is = 0;
+            for (int64_t t = 0; t < n; t++)
+                is += raw_t[c * n + t];
+            a->isum[c] = is;
+        }
+    }
+    for (int64_t p = 0; p < npairs; p++)
+        a->prod[p] = lanes_sum(pp[p]);
+    /* first / last loud and non-zero frames, scanning in from both ends (dc_frame_scan) */
+    int64_t *out = a->scan, t;
+    out[0] = out[1] = out[2] = out[3] = -1;
+    for (t = 0; t < n && !(frame_level(x_t, CH, n, t) >= a->threshold); t++) {}
+    if (t < n) {
+        out[0] = t;
+        for (t = n - 1; !(frame_level(x_t, CH, n, t) >= a->threshold); t--) {}
+        out[1] = t;
+    }
+    if (zeros < n) {
+        for (t = 0; zmask[t]; t++) {}
+        out[2] = t;
+        for (t = n - 1; zmask[t]; t--) {}
+        out[3] = t;
+    }
+    return zeros;
+}
+
+CLONES EXPORT int64_t dc_walk_i32(const int32_t *in, int64_t n, int64_t ch, double scale,
+                           int32_t *raw_t, double *x_t, const int64_t *cuts, int64_t ncuts,
+                           double *mx, double *mn, double *sm, double *sq, int64_t *zero,
+                           int64_t *isum, int32_t *ors, const int64_t *first,
+                           const int64_t *second, int64_t npairs, double *prod,
+                           double threshold, int64_t *scan, uint8_t *zero_mask,
+                           const int64_t *rows, int64_t nrows, const double *sos, double *zi,
+                           const double *w, const int64_t *kcuts, int64_t nkcuts, double *kout)
+{
+    const walk_args a = {in, n, ch, scale, raw_t, x_t, cuts, ncuts, mx, mn, sm, sq, zero,
+                         isum, ors, first, second, npairs, prod, threshold, scan, zero_mask,
+                         rows, nrows, sos, zi, w, kcuts, nkcuts, kout};
+    const int chains = (int)((nrows + 1) / 2);
+    if (ch == 2 && chains == 1)
+        return walk_impl(&a, 2, 1);
+    if (ch == 1 && chains == 1)
+        return walk_impl(&a, 1, 1);
+    if (ch == 6 && chains == 3)
+        return walk_impl(&a, 6, 3);
+    switch (chains) {
+    case 0: return walk_impl(&a, ch, 0);
+    case 1: return walk_impl(&a, ch, 1);
+    case 2: return walk_impl(&a, ch, 2);
+    default: return walk_impl(&a, ch, 3);
+    }
 }
 
 /* ------------------------------------------------------------------------ true peak */

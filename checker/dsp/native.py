@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 ENV = "DELIVERYCHECK_KERNELS"
-ABI_VERSION = 10
+ABI_VERSION = 11
 
 _P = ctypes.c_void_p
 _I = ctypes.c_int64
@@ -43,6 +43,11 @@ _SIGNATURES = {
     "dc_channel_stats": (None, [_P, _P, _I, _I, _P, _I, _P, _P, _P, _P, _P, _P, _P, _I]),
     "dc_pair_products": (None, [_P, _I, _P, _P, _I, _P]),
     "dc_frame_scan": (_I, [_P, _I, _I, _D, _P, _P]),
+    "dc_walk_i32": (
+        _I,
+        [_P, _I, _I, _D, _P, _P, _P, _I, _P, _P, _P, _P, _P, _P, _P, _P, _P, _I, _P, _D, _P, _P]
+        + [_P, _I, _P, _P, _P, _P, _I, _P],
+    ),
     # true peak (section at the end of kernels.c)
     "dc_tp_grid": (None, [_P, _I, _P, _I, _I, _I, _P]),
     "dc_tp_chunks": (
@@ -243,6 +248,100 @@ def pair_products(xt: np.ndarray, first: np.ndarray, second: np.ndarray) -> np.n
     out = np.empty(first.size)
     _lib.dc_pair_products(_ptr(xt), n, _ptr(first), _ptr(second), first.size, _ptr(out))
     return out
+
+
+#: Most channels, K-weighting rows and pairs one walk_i32 takes (WALK_MAX_* in kernels.c).
+WALK_MAX_CHANNELS = 8
+WALK_MAX_ROWS = 6
+WALK_MAX_PAIRS = 28
+
+
+def walk_i32(
+    buf: np.ndarray,
+    raw_t: np.ndarray,
+    x_t: np.ndarray,
+    scale: float,
+    cuts: np.ndarray,
+    first: np.ndarray,
+    second: np.ndarray,
+    threshold: float,
+    zero_mask: np.ndarray,
+    kweight: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None,
+) -> tuple:
+    """One walk over ``buf`` (n, ch) int32, n >= 1, with the results of
+    ``deinterleave_i32(buf, raw_t, x_t, scale)``, then ``channel_stats(x_t, raw_t, cuts)``,
+    ``pair_products(x_t, first, second)``, ``frame_scan(x_t, threshold, zero_mask)`` (the
+    mask written on every frame) and, when ``kweight`` = (rows, sos, zi, weights, kcuts) is
+    given, ``kweight_sums(x_t, rows, sos, zi, weights, kcuts)`` (zi updated), bit for bit.
+    Returns (mx, mn, sm, sq, zero, isum, ors), products, (zeros, first loud, last loud,
+    first non-zero, last non-zero) and the K-weighted pieces (None without ``kweight``)."""
+    _need(buf, np.int32, 2, "walk_i32")
+    n, ch = buf.shape
+    _need(raw_t, np.int32, 2, "walk_i32")
+    _need(x_t, np.float64, 2, "walk_i32")
+    _need(zero_mask, np.uint8, 1, "walk_i32")
+    _need(first, np.int64, 1, "walk_i32")
+    _need(second, np.int64, 1, "walk_i32")
+    if n < 1 or ch > WALK_MAX_CHANNELS or raw_t.shape != (ch, n) or x_t.shape != (ch, n):
+        raise ValueError(
+            f"native.walk_i32: {n}x{ch} codes, outputs {raw_t.shape}, {x_t.shape} "
+            f"(expected n >= 1, at most {WALK_MAX_CHANNELS} channels, outputs ({ch}, {n}))"
+        )
+    if zero_mask.size < n:
+        raise ValueError(f"native.walk_i32: zero_mask holds {zero_mask.size} < {n} frames")
+    if (
+        first.size != second.size
+        or first.size > WALK_MAX_PAIRS
+        or (
+            first.size
+            and (min(first.min(), second.min()) < 0 or max(first.max(), second.max()) >= ch)
+        )
+    ):
+        raise ValueError(
+            f"native.walk_i32: pairs outside 0..{ch - 1} or more than {WALK_MAX_PAIRS}"
+        )
+    _check_cuts(cuts, n, "walk_i32")
+    pieces = cuts.size + 1
+    mx, mn, sm = np.empty(ch), np.empty(ch), np.empty(ch)
+    sq = np.empty((pieces, ch))
+    zero = np.empty(pieces, dtype=np.int64)
+    isum = np.empty(ch, dtype=np.int64)
+    ors = np.empty(ch, dtype=np.int32)
+    prod = np.empty(first.size)
+    scan = np.empty(4, dtype=np.int64)
+    rows = kcuts = sos = zi = weights = kout = None
+    nrows = nk = 0
+    if kweight is not None:
+        rows, sos, zi, weights, kcuts = kweight
+        _need(rows, np.int64, 1, "walk_i32")
+        _need(sos, np.float64, 2, "walk_i32")
+        _need(zi, np.float64, 3, "walk_i32")
+        _need(weights, np.float64, 1, "walk_i32")
+        nrows = rows.size
+        if (
+            nrows > WALK_MAX_ROWS
+            or sos.shape != (2, 6)
+            or zi.shape != (nrows, 2, 2)
+            or weights.size != nrows
+            or (nrows and (rows.min() < 0 or rows.max() >= ch))
+        ):
+            raise ValueError(
+                f"native.walk_i32: rows {rows.tolist()}, sos {sos.shape}, zi {zi.shape}, "
+                f"weights {weights.shape} (expected at most {WALK_MAX_ROWS} rows in 0..{ch - 1}, "
+                f"(2, 6), ({nrows}, 2, 2), ({nrows},))"
+            )
+        _check_cuts(kcuts, n, "walk_i32")
+        nk = kcuts.size
+        kout = np.empty(nk + 1)
+    zeros = _lib.dc_walk_i32(
+        _ptr(buf), n, ch, scale, _ptr(raw_t), _ptr(x_t), _ptr(cuts), cuts.size,
+        _ptr(mx), _ptr(mn), _ptr(sm), _ptr(sq), _ptr(zero), _ptr(isum), _ptr(ors),
+        _ptr(first), _ptr(second), first.size, _ptr(prod), threshold, _ptr(scan),
+        _ptr(zero_mask), _ptr(rows), nrows, _ptr(sos), _ptr(zi), _ptr(weights), _ptr(kcuts),
+        nk, _ptr(kout),
+    )  # fmt: skip
+    found = (int(zeros), int(scan[0]), int(scan[1]), int(scan[2]), int(scan[3]))
+    return (mx, mn, sm, sq, zero, isum, ors), prod, found, kout
 
 
 # ------------------------------------------------------------------------------ true peak

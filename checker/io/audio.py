@@ -215,6 +215,7 @@ def read_blocks(
     read_ahead: bool = False,
     prepare: list[Callable[[Block], None]] | None = None,
     source: BinaryIO | None = None,
+    walk: list[Callable[..., None]] | None = None,
 ) -> tuple[StreamInfo, Iterator[Block]]:
     """Open ``path`` and return its StreamInfo and an iterator of Blocks.
 
@@ -234,6 +235,12 @@ def read_blocks(
     ``source``: a file-like view of ``path`` to decode instead of the file itself (a FLAC
     whose STREAMINFO understates its length, read with the total marked unknown:
     checker.io.streamlength.FlacUnknownLength); it is closed with the iterator.
+
+    ``walk``: at most one function ``walk(codes, raw_t, x_t, block)`` that replaces the
+    compiled deinterleaving of integer PCM: it must fill ``raw_t`` and ``x_t`` (channels,
+    frames) from ``codes`` (frames, channels) exactly as ``native.deinterleave_i32`` does,
+    and may leave what it computed on the way in ``block.memo`` (the meters' fused walk,
+    checker/meters/blockwalk.py). Like ``prepare``, the list may be filled after this call.
     """
     if block_frames is not None and block_frames < 1:
         raise ValueError(f"block_frames = {block_frames} (expected >= 1)")
@@ -253,9 +260,10 @@ def read_blocks(
     if block_frames is None:
         block_frames = auto_block_frames(info)
     hooks = prepare if prepare is not None else []
+    walks = walk if walk is not None else []
     if read_ahead:
-        return info, _iterate_ahead(handle, info, block_frames, hooks)
-    return info, _iterate(handle, info, block_frames, hooks)
+        return info, _iterate_ahead(handle, info, block_frames, hooks, walks)
+    return info, _iterate(handle, info, block_frames, hooks, walks)
 
 
 class _Decoder:
@@ -266,7 +274,9 @@ class _Decoder:
     per-channel reduction in the meters runs over contiguous memory without a copy.
     """
 
-    def __init__(self, handle: sf.SoundFile, info: StreamInfo, block_frames: int, slots: int):
+    def __init__(
+        self, handle: sf.SoundFile, info: StreamInfo, block_frames: int, slots: int, walks: list
+    ):
         self.handle = handle
         self.info = info
         self.block_frames = block_frames
@@ -283,6 +293,7 @@ class _Decoder:
         self.start = 0
         self.done = False
         self.native = native.enabled()
+        self.walks = walks  # filled by the caller before the first block (see read_blocks)
 
     def next(self, slot: int) -> Block | None:
         """The next block, in buffer set ``slot``; None at the end."""
@@ -303,12 +314,14 @@ class _Decoder:
         xt = self.x_t[slot] if full else np.empty((channels, n))
         if self.integer:
             rt = self.raw_t[slot] if full else np.empty((channels, n), dtype=np.int32)
-            if self.native:
+            block = Block(x=xt.T, raw=rt.T, start=self.start)
+            if self.native and self.walks:
+                self.walks[0](self.buf[:n], rt, xt, block)
+            elif self.native:
                 native.deinterleave_i32(self.buf[:n], rt, xt, INT32_SCALE)
             else:
                 np.copyto(rt, self.buf[:n].T)
                 np.multiply(rt, INT32_SCALE, out=xt)
-            block = Block(x=xt.T, raw=rt.T, start=self.start)
         else:
             if self.native:
                 native.deinterleave_f64(self.buf[:n], xt)
@@ -321,9 +334,9 @@ class _Decoder:
 
 
 def _iterate(
-    handle: sf.SoundFile, info: StreamInfo, block_frames: int, hooks: list
+    handle: sf.SoundFile, info: StreamInfo, block_frames: int, hooks: list, walks: list
 ) -> Iterator[Block]:
-    decoder = _Decoder(handle, info, block_frames, slots=1)
+    decoder = _Decoder(handle, info, block_frames, 1, walks)
     try:
         with handle:
             while (block := decoder.next(0)) is not None:
@@ -335,12 +348,12 @@ def _iterate(
 
 
 def _iterate_ahead(
-    handle: sf.SoundFile, info: StreamInfo, block_frames: int, hooks: list
+    handle: sf.SoundFile, info: StreamInfo, block_frames: int, hooks: list, walks: list
 ) -> Iterator[Block]:
     """Two buffer sets: a thread decodes block k + 1 into one (and runs the prepare
     hooks on it) while the caller holds block k in the other; it refills a set only
     once the caller has asked for the block after the one held there."""
-    decoder = _Decoder(handle, info, block_frames, slots=2)
+    decoder = _Decoder(handle, info, block_frames, 2, walks)
     ready: queue.Queue = queue.Queue()
     free = threading.Semaphore(0)  # released each time the caller moves past a block
     stop = threading.Event()

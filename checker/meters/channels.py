@@ -106,7 +106,10 @@ class ChannelsMeter:
         if self.channels < 2:
             return
         if self.native:
-            self.products += native.pair_products(xt, self.first, self.second)
+            products = block.memo.get("pair_products") if x is block.x else None
+            if products is None:  # (else: from the reader's fused walk, blockwalk.py)
+                products = native.pair_products(xt, self.first, self.second)
+            self.products += products
         elif self.channels <= MAX_ALL_PAIRS_CHANNELS:
             gram = xt @ xt.T  # squares on the diagonal, products off it
             self.squares += np.diagonal(gram)

@@ -89,6 +89,7 @@ class DownmixMeter:
         self.matrix, self.note = fold_matrix(layout)
         self.peak = 0.0
         self.peak_index: int | None = None
+        self.folded: np.ndarray | None = None
         if self.matrix is None:
             return
         stereo = replace(info, channels=2)
@@ -103,15 +104,22 @@ class DownmixMeter:
     def feed(self, block: Block) -> None:
         if self.matrix is None or block.frames == 0:
             return
-        folded = self.matrix @ block.xt  # (2, frames), C-contiguous
+        n = block.frames
+        if self.folded is None or self.folded.shape[1] != n:
+            self.folded = np.empty((2, n))  # reused: a fresh 2 x n array faults its pages in
+        folded = self.folded  # (2, frames), C-contiguous; the sub-meters copy what they keep
+        np.matmul(self.matrix, block.xt, out=folded)
         sub = Block(folded.T, None, block.start)
         self.loudness.feed(sub)
         self.truepeak.feed(sub)
         if self.steps is not None:
             self.steps.feed(folded)
-        mags = np.abs(folded).max(axis=0)
-        i = int(mags.argmax())
-        if mags[i] > self.peak:
+        # The block's largest |sample| from each row's extremes (contiguous reductions); the
+        # frame holding it is looked for only when it beats the peak so far.
+        top = max(float(folded.max(axis=1).max()), -float(folded.min(axis=1).min()))
+        if top > self.peak:
+            mags = np.abs(folded).max(axis=0)
+            i = int(mags.argmax())
             self.peak = float(mags[i])
             self.peak_index = block.start + i
 

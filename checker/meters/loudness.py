@@ -132,15 +132,20 @@ class LoudnessMeter:
         js = np.arange(done + 1, last + 1, dtype=np.int64)
         return last, _boundaries(js, self.rate, 1000) - start  # rising, 1 <= cuts <= n
 
+    def substeps_from(self, start: int, n: int) -> tuple[int, np.ndarray]:
+        """_substeps for a block taken on its own (prepare and the fused walk run before
+        feed): the sub-steps completed before frame ``start`` follow from it."""
+        return self._substeps(start, n, ((start + 1) * 1000 - 1) // self.rate)
+
     def prepare(self, block: Block) -> None:
         """K-weighting and the 1 ms sums of this block, for feed() (compiled path only; run
         by measure() as each block is decoded, possibly in the read-ahead thread: only this
         step touches the filter state then)."""
         n = block.frames
-        if not self.native or n == 0 or self.active.size == 0:
-            return
+        if not self.native or n == 0 or self.active.size == 0 or "loudness" in block.memo:
+            return  # (done already by the reader's fused walk: checker/meters/blockwalk.py)
         start = block.start
-        last, cuts = self._substeps(start, n, ((start + 1) * 1000 - 1) // self.rate)
+        last, cuts = self.substeps_from(start, n)
         xt = block.xt
         if out_of_range(block):  # NaN/Inf/huge (counted by the levels meter) filtered as 0;
             # here, not in feed(): with read-ahead the next block's prepare may already run

@@ -135,7 +135,7 @@ class SilenceMeter:
         if block.raw is not None and block.frames:
             xt = block.xt
             block.memo["silence_steps"] = self._pieces(xt, block.start)  # numpy frees the GIL
-            if self.native:
+            if self.native and "frame_scan" not in block.memo:  # (else: the fused walk's)
                 mask = np.empty(block.frames, dtype=np.uint8)
                 block.memo["frame_scan"] = (native.frame_scan(xt, self.threshold, mask), mask)
 
@@ -214,11 +214,12 @@ class SilenceMeter:
         w = WINDOW_STEPS
         pad = np.zeros((ch, w - 1 - self.hist.shape[1]))
         steps = np.concatenate((pad, self.hist, new), axis=1)
-        sums = None
-        for row in steps:  # loudest channel of each window; per row: numpy is slow across rows
-            cum = np.concatenate(([0.0], np.cumsum(row)))
-            window = cum[w:] - cum[:-w]  # the window ending at each new step
-            sums = window if sums is None else np.maximum(sums, window, out=sums)
+        # running sums along each row (the same sequential sums as row by row), then the
+        # loudest channel of each window ending at a new step
+        cum = np.zeros((ch, steps.shape[1] + 1))
+        np.cumsum(steps, axis=1, out=cum[:, 1:])
+        window = cum[:, w:] - cum[:, :-w]
+        sums = window[0] if ch == 1 else window.max(axis=0)
         first = self.steps  # global index of the first new step
         level = sums / (w * s)
         if first < w - 1:  # windows cut short by the file start
