@@ -32,6 +32,12 @@ def segment_cuts(start: int, n: int, seg_len: int) -> np.ndarray:
     return first + seg_len * np.arange(full + 1, dtype=np.int64)
 
 
+def stats_key(seg_len: int, with_codes: bool) -> tuple:
+    """The ``block.memo`` key of a block's shared sample statistics (sample_stats below, or
+    the fused walk of checker/meters/blockwalk.py, which fills the same entry)."""
+    return ("sample_stats", seg_len, with_codes)
+
+
 def sample_stats(
     block: Block, xt: np.ndarray, rt: np.ndarray | None, seg_len: int, *, shared: bool
 ) -> tuple[np.ndarray, ...]:
@@ -39,7 +45,7 @@ def sample_stats(
     code OR) of xt (channels, frames) and rt (int32 codes or None). ``shared``: xt and rt
     are the block's own samples (not a cleaned copy), so the result may be kept in and
     taken from ``block.memo``."""
-    key = ("sample_stats", seg_len, rt is not None)
+    key = stats_key(seg_len, rt is not None)
     if shared and key in block.memo:
         return block.memo[key]
     cuts = segment_cuts(block.start, xt.shape[1], seg_len)

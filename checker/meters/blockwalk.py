@@ -22,7 +22,7 @@ import numpy as np
 
 from checker.dsp import native
 from checker.io.audio import INT32_SCALE, Block, StreamInfo
-from checker.meters.blockstats import segment_cuts, segment_frames
+from checker.meters.blockstats import segment_cuts, segment_frames, stats_key
 
 #: False: the reader keeps the separate kernels (tests compare the two paths).
 ENABLED = True
@@ -84,7 +84,7 @@ class BlockWalk:
         )  # fmt: skip
         memo = block.memo
         if self.stats:  # blockstats.sample_stats's entry for the reader's own samples
-            memo[("sample_stats", self.seg_len, True)] = (cuts, *stats)
+            memo[stats_key(self.seg_len, True)] = (cuts, *stats)
         if self.first.size:
             memo["pair_products"] = products
         if self.scan:
