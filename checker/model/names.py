@@ -40,6 +40,11 @@ def readable(text: str) -> str:
     return _SURROGATE.sub(_escape_surrogate, text) if _SURROGATE.search(text) else text
 
 
+def has_surrogates(text: str) -> bool:
+    """Whether ``text`` holds a surrogate (an undecodable byte of a name): what readable changes."""
+    return _SURROGATE.search(text) is not None
+
+
 def for_terminal(text: str) -> str:
     """``readable(text)`` with control and bidi characters made visible; see module doc."""
     return _CONTROL.sub(_escape_control, readable(str(text)))

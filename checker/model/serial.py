@@ -12,6 +12,8 @@ from typing import Any
 
 import numpy as np
 
+from checker.model.names import has_surrogates, readable_data
+
 
 def plain(value: Any) -> Any:
     """numpy scalars/arrays and tuples -> Python floats, ints, lists (pickle/JSON friendly)."""
@@ -82,3 +84,12 @@ def from_json_safe(value: Any) -> Any:
 
 def dumps(value: Any) -> str:
     return json.dumps(json_safe(value), allow_nan=False, ensure_ascii=False, sort_keys=False)
+
+
+def dumps_readable(value: Any) -> str:
+    """``dumps(readable_data(value))``, walking ``value`` once in the usual case: when no string
+    in it holds a surrogate escape, its JSON text (written with ``ensure_ascii=False``, so such a
+    character would appear in it as itself) holds none either, and readable_data would change
+    nothing; only then is the text the answer. The store writes every measurement this way."""
+    text = dumps(value)
+    return dumps(readable_data(value)) if has_surrogates(text) else text

@@ -36,9 +36,9 @@ from pathlib import Path
 
 from checker.model.errors import StoreError, os_cause
 from checker.model.measurement import Measurement
-from checker.model.names import readable, readable_data
+from checker.model.names import readable
 from checker.model.results import FileResult, RunInfo
-from checker.model.serial import dumps, from_json_safe
+from checker.model.serial import dumps, dumps_readable, from_json_safe
 from checker.model.timeline import Timeline
 from checker.model.verdict import Verdict
 from checker.run.storeschema import StoreSchema
@@ -159,7 +159,7 @@ class Store(StoreSchema, StoreTransactions):
                     ident.ctime_ns,
                     measurement.engine_version,
                     options_key,
-                    dumps(readable_data(measurement.to_dict(timeline=False))),
+                    dumps_readable(measurement.to_dict(timeline=False)),
                     dumps(timeline) if timeline is not None else None,
                     _now(),
                 ),
@@ -184,7 +184,7 @@ class Store(StoreSchema, StoreTransactions):
                 "INSERT INTO stem_sets(set_key, folder, set_json, measured_at) "
                 "VALUES (?, ?, ?, ?) ON CONFLICT(set_key) DO UPDATE SET "
                 "set_json=excluded.set_json, measured_at=excluded.measured_at",
-                (readable(set_key), readable(folder), dumps(readable_data(data)), _now()),
+                (readable(set_key), readable(folder), dumps_readable(data), _now()),
             )
 
     def get_error(self, ident: FileIdentity, engine_version: str, options_key: str) -> str | None:
@@ -259,7 +259,7 @@ class Store(StoreSchema, StoreTransactions):
                     run_id,
                     readable(result.path),
                     result.status,
-                    dumps(readable_data(result.verdict.to_dict())) if result.verdict else None,
+                    dumps_readable(result.verdict.to_dict()) if result.verdict else None,
                     readable(result.error) if result.error is not None else None,
                 ),
             )
@@ -300,7 +300,7 @@ class Store(StoreSchema, StoreTransactions):
 
 
 def _run_json(run: RunInfo) -> str:
-    return dumps(readable_data(run.to_dict()))
+    return dumps_readable(run.to_dict())
 
 
 def open_store(out_dir: str | Path) -> Store:
