@@ -54,8 +54,20 @@ def decimals_for(key: str | None) -> int:
     return PRECISION.get(key.rpartition("_")[2], OTHER_DECIMALS)
 
 
+def _rounded(value: float, places: int) -> Any:
+    """A finite float's cell (number's last steps): rounded, whole values as ints."""
+    x = round(value, places)
+    if x == 0:
+        return 0
+    if places == 0 or x.is_integer():
+        return int(x)
+    return x
+
+
 def number(value: Any, key: str | None = None, decimals: int | None = None) -> Any:
     """One numeric cell: ints stay ints, whole floats become ints, others are rounded."""
+    if type(value) is float and value - value == 0.0:  # finite: most cells of a report
+        return _rounded(value, decimals_for(key) if decimals is None else decimals)
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         return value
     if isinstance(value, int):
@@ -94,8 +106,11 @@ def _item(value: Any, key: str | None) -> str:
 def list_cell(key: str, value: list | tuple) -> str:
     """A list as one text cell; channel pairs ``[i, j, r]`` read ``"1-2: 0.62"``."""
     parts = []
+    places = decimals_for(key)
     for item in value:
-        if isinstance(item, (list, tuple)):
+        if type(item) is float and item - item == 0.0:  # most items: what _item would write
+            parts.append(str(_rounded(item, places)))
+        elif isinstance(item, (list, tuple)):
             if len(item) >= 2 and all(isinstance(i, int) for i in item[:2]):
                 head = f"{item[0] + 1}-{item[1] + 1}"
                 rest = [_item(v, None) for v in item[2:]]
@@ -109,6 +124,11 @@ def list_cell(key: str, value: list | tuple) -> str:
 
 def value_cell(key: str, value: Any) -> Any:
     """One measurement cell: numbers rounded by the key's unit, lists as text."""
+    kind = type(value)  # the common cases first: a report.csv row has about 130 cells
+    if kind is float and value - value == 0.0:
+        return _rounded(value, decimals_for(key))
+    if kind is str or kind is int or kind is bool or value is None:
+        return value
     if isinstance(value, (list, tuple)):
         return list_cell(key, value)
     if isinstance(value, dict):

@@ -41,7 +41,18 @@ def neutralise(value: Any) -> Any:
 def safe_rows(table: Table) -> list[list[Any]]:
     """Every cell through :func:`neutralise`, None as an empty cell; column order kept, ints
     stay ints (never 48000.0)."""
-    return [["" if (v := neutralise(c)) is None else v for c in row] for row in table.rows]
+    return [[_safe_cell(c) for c in row] for row in table.rows]
+
+
+def _safe_cell(value: Any) -> Any:
+    """One cell as written: :func:`neutralise`, None as an empty cell (ints, finite floats and
+    text that triggers nothing first: they are most cells)."""
+    kind = type(value)
+    if kind is int or (kind is float and value == value):
+        return value
+    if kind is str and not value.startswith(FORMULA_TRIGGERS):
+        return value
+    return "" if (v := neutralise(value)) is None else v
 
 
 def write_csv(table: Table, path: Path) -> Path:
