@@ -143,6 +143,7 @@ def run(args, out: TextIO, err: TextIO) -> int:
     notes: list[str] = []
     progress = Progress(err, quiet=args.quiet)
     _import_reports_meanwhile()
+    early = _EarlyRows()
     try:
         run_info, results = run_batch(
             args.paths,
@@ -157,9 +158,10 @@ def run(args, out: TextIO, err: TextIO) -> int:
             on_note=notes.append,
             layout=args.layout,
             mix=args.mix,
+            on_result=early,
         )
     except StoreFailed as exc:  # the store failed part-way: report what was measured
-        return _after_store_failure(exc, args, out_dir, notes, out, err)
+        return _after_store_failure(exc, args, out_dir, notes, out, err, early.rows)
     except Interrupted as exc:
         # --fresh would measure everything again: the resume command leaves it out.
         resume = [a for a in sys.argv[1:] if a != "--fresh"]
@@ -174,7 +176,39 @@ def run(args, out: TextIO, err: TextIO) -> int:
         print(for_terminal(f"to resume, run again: {again}"), file=err)
         return EXIT_INTERRUPTED
     counts = progress.counts()
-    return _report(out_dir, run_info, results, notes, out, err, counts=counts, strict=args.strict)
+    return _report(
+        out_dir,
+        run_info,
+        results,
+        notes,
+        out,
+        err,
+        counts=counts,
+        strict=args.strict,
+        prepared=early.rows,
+    )
+
+
+class _EarlyRows:
+    """run_batch's ``on_result``: each file's report pieces made as its result arrives, while
+    the workers measure the next files (checker.report.prepared), instead of all of them after
+    the last file. ``rows`` is None until the first result (or if the module will not load:
+    the reports then make every piece themselves, and say what failed)."""
+
+    def __init__(self) -> None:
+        self.rows = None
+        self.broken = False
+
+    def __call__(self, run_info, result) -> None:
+        if self.rows is None and not self.broken:
+            try:
+                from checker.report.prepared import PreparedRows
+            except Exception:
+                self.broken = True
+                return
+            self.rows = PreparedRows()
+        if self.rows is not None:
+            self.rows.add(run_info, result)
 
 
 def _import_reports() -> None:
@@ -200,6 +234,7 @@ def _report(
     stored: bool = True,
     counts: dict[str, int] | None = None,
     strict: bool = False,
+    prepared=None,
 ) -> int:
     """Write the reports (and this profile's copy beside the others') and print the summary;
     the run's exit code, or EXIT_OUTPUT (with a one-line message) when the reports cannot be
@@ -208,7 +243,7 @@ def _report(
     from checker.report.byprofile import keep_profile_copy
 
     try:
-        written = write_reports(out_dir, run_info, results)
+        written = write_reports(out_dir, run_info, results, prepared)
         index = keep_profile_copy(out_dir, run_info, results, written)
     except OSError as exc:
         what, todo = os_cause(exc)
@@ -228,12 +263,22 @@ def _report(
     return exit_code(results, strict=strict)
 
 
-def _after_store_failure(exc, args, out_dir, notes, out, err) -> int:
+def _after_store_failure(exc, args, out_dir, notes, out, err, prepared=None) -> int:
     """The batch finished without its store: write the reports if possible, then say what
     failed. Exit EXIT_OUTPUT either way."""
     results = exc.results
     try:
-        _report(out_dir, exc.run, results, notes, out, err, stored=False, strict=args.strict)
+        _report(
+            out_dir,
+            exc.run,
+            results,
+            notes,
+            out,
+            err,
+            stored=False,
+            strict=args.strict,
+            prepared=prepared,
+        )
         where = f"the reports in {out_dir} hold all {len(exc.results)} files of this run"
     except OutputError as report_failure:
         print(for_terminal(f"deliverycheck: {report_failure}"), file=err)

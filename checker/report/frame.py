@@ -20,7 +20,7 @@ become text such as ``"-1.20; -3.40"``; a pair inside a list reads ``"(0, 1)"``.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -294,7 +294,7 @@ def csv_file_row(result: FileResult, channels: int) -> dict[str, Any]:
         for key, value in m.values.items():
             if key in _LEAD:  # a measurement key never replaces a lead column
                 continue
-            if key in PER_CHANNEL_KEYS:
+            if key in _PER_CHANNEL:
                 row.update(channel_cells(key, value, channels))
             else:
                 row[key] = value_cell(key, value)
@@ -302,6 +302,7 @@ def csv_file_row(result: FileResult, channels: int) -> dict[str, Any]:
 
 
 _LEAD = frozenset(LEAD_COLUMNS)
+_PER_CHANNEL = frozenset(PER_CHANNEL_KEYS)
 
 
 @dataclass(frozen=True)
@@ -337,14 +338,17 @@ def object_frame(rows: list[dict[str, Any]], columns: Sequence[str]) -> Table:
     """A table of ``rows`` (dicts; a missing key is an empty cell) in the order of ``columns``.
     Cells are kept as they are: None stays None, ints stay ints."""
     columns = tuple(columns)
-    return Table(columns, tuple(tuple(row.get(c) for c in columns) for row in rows))
+    return Table(columns, tuple(tuple(map(row.get, columns)) for row in rows))
 
 
-def results_frame(results: Sequence[FileResult]) -> Table:
-    """One row per file (worst first), columns in the documented order (report.csv cells)."""
+def results_frame(
+    results: Sequence[FileResult], row: Callable[[FileResult, int], dict] = csv_file_row
+) -> Table:
+    """One row per file (worst first), columns in the documented order (report.csv cells).
+    ``row``: csv_file_row, or one that returns a row made earlier (checker.report.prepared)."""
     ordered = sorted_results(results)
     channels = channel_count(ordered)
-    return object_frame([csv_file_row(r, channels) for r in ordered], file_columns(ordered))
+    return object_frame([row(r, channels) for r in ordered], file_columns(ordered))
 
 
 #: The rule name of a flags.csv row for a file that could not be checked.

@@ -319,8 +319,25 @@ def _not_checked(run: RunInfo) -> str:
     )
 
 
-def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) -> str:
-    """The complete page as one string."""
+def detail_json(r: FileResult, profile: dict[str, float | None], mono_loudness: str) -> str:
+    """One file's detail data (``file_detail``, and how a mono file was judged) as embedded."""
+    detail = file_detail(r, profile)
+    plain = r.measurement.values if r.measurement else {}
+    if r.kind != "set" and judged_as_dual_mono(plain, mono_loudness):
+        judged, one = plain["integrated_dual_mono_lufs"], _num(plain.get("integrated_lufs"))
+        detail["judged"] = {
+            "judged_lufs": judged,
+            "plain_lufs": one,
+            "offset_lu": (judged - one) if one is not None and math.isfinite(one) else 0.0,
+        }
+    return embed_json(detail)
+
+
+def render_html(
+    run: RunInfo, results: Sequence[FileResult], generated_at: str, prepared: Any = None
+) -> str:
+    """The complete page as one string. ``prepared``: a checker.report.prepared.PreparedRows
+    holding details made while the batch ran (the same text)."""
     ordered = sorted_results(results)
     profile = profile_limits_for_graph(run)
     rows_html, rows_data, details = [], [], []
@@ -329,16 +346,10 @@ def render_html(run: RunInfo, results: Sequence[FileResult], generated_at: str) 
         row_html, data = _row(i, r, prefix, run.mono_loudness)
         rows_html.append(row_html)
         rows_data.append(data)
-        detail = file_detail(r, profile)
-        plain = r.measurement.values if r.measurement else {}
-        if r.kind != "set" and judged_as_dual_mono(plain, run.mono_loudness):
-            judged, one = plain["integrated_dual_mono_lufs"], _num(plain.get("integrated_lufs"))
-            detail["judged"] = {
-                "judged_lufs": judged,
-                "plain_lufs": one,
-                "offset_lu": (judged - one) if one is not None and math.isfinite(one) else 0.0,
-            }
-        details.append(f'<script type="application/json" id="d-{i}">{embed_json(detail)}</script>')
+        text = prepared.detail_json(r, run) if prepared is not None else None
+        if text is None:
+            text = detail_json(r, profile, run.mono_loudness)
+        details.append(f'<script type="application/json" id="d-{i}">{text}</script>')
     counts = Counter(r.status for r in ordered)
     tiles, filters = _totals(counts, len(ordered))
     css, js = _asset("report.css"), _asset("report.js")

@@ -7,7 +7,7 @@ the project's one JSON encoder (valid JSON, no NaN or Infinity tokens: ``-inf`` 
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -30,16 +30,29 @@ def not_checked_line(item: dict[str, str]) -> dict[str, Any]:
     }
 
 
+def jsonl_line(obj: dict[str, Any]) -> str:
+    """One object as one line (without its line end)."""
+    # JSON strings may carry U+2028/2029 raw; keep one object per physical line.
+    return dumps(obj).replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
+
+
+def result_line(result: FileResult) -> str:
+    """One result's line: ``FileResult.to_dict(timeline=True)``."""
+    return jsonl_line(result.to_dict(timeline=True))
+
+
 def write_jsonl(
-    results: Sequence[FileResult], path: Path, not_checked: Sequence[dict[str, str]] = ()
+    results: Sequence[FileResult],
+    path: Path,
+    not_checked: Sequence[dict[str, str]] = (),
+    line: Callable[[FileResult], str] = result_line,
 ) -> Path:
-    """One line per result, then one per file that was not checked (``not_checked_line``)."""
-    objects = [r.to_dict(timeline=True) for r in results]
-    objects += [not_checked_line(item) for item in not_checked]
+    """One line per result, then one per file that was not checked (``not_checked_line``).
+    ``line``: result_line, or one that returns a line made earlier (checker.report.prepared)."""
+    lines = [line(r) for r in results]
+    lines += [jsonl_line(not_checked_line(item)) for item in not_checked]
     with atomic_text(Path(path)) as handle:
-        for obj in objects:
-            line = dumps(obj)
-            # JSON strings may carry U+2028/2029 raw; keep one object per physical line.
-            handle.write(line.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029"))
+        for text in lines:
+            handle.write(text)
             handle.write("\n")
     return Path(path)

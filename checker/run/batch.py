@@ -236,11 +236,14 @@ def run_batch(
     store: Store | None = None,
     layout: str | None = None,
     mix: str | None = None,
+    on_result: Callable[[RunInfo, FileResult], Any] | None = None,
 ) -> tuple[RunInfo, list[FileResult]]:
     """Check every audio file under ``paths`` against ``profile``; see the module doc.
     ``layout``: the channel order of files with as many channels (else the profile's).
     ``mix``: a reference mix; the one folder in ``paths`` is then a stem set (folders are
-    stem sets anyway when the profile has set limits: checker.run.stemsets)."""
+    stem sets anyway when the profile has set limits: checker.run.stemsets).
+    ``on_result(run, result)``: called with each file's result as it is kept (while the
+    workers measure the next files); ``check`` makes its report rows there."""
     if timeout_s is not None and not timeout_s > 0:
         raise UsageError(f"timeout_s: {timeout_s} (expected > 0)", parameter="timeout_s")
     if jobs is not None and int(jobs) < 1:
@@ -278,7 +281,7 @@ def run_batch(
         for problem in found.problems:
             if problem.missed:
                 failed = FileResult.failed(readable(problem.path), readable(problem.message))
-                _keep(store, run, results, failed)
+                _keep(store, run, results, on_result, failed)
                 progress.advance()
             elif on_note:
                 on_note(readable(problem.message))
@@ -292,7 +295,7 @@ def run_batch(
                 ident = FileIdentity.of(path)
             except OSError as exc:
                 msg = f"{shown}: file vanished or cannot be read ({exc.strerror or exc})"
-                _keep(store, run, results, FileResult.failed(shown, msg))
+                _keep(store, run, results, on_result, FileResult.failed(shown, msg))
                 progress.advance()
                 continue
             if not fresh:
@@ -302,12 +305,12 @@ def run_batch(
                 )
                 if cached is not None:
                     result = _judge(shown, cached, profile, evaluate, remark)
-                    _keep(store, run, results, result)
+                    _keep(store, run, results, on_result, result)
                     progress.advance(stored=True)
                     continue
                 error = store.get_error(ident, ENGINE_VERSION, okey)
                 if error is not None:
-                    _keep(store, run, results, FileResult.failed(shown, error))
+                    _keep(store, run, results, on_result, FileResult.failed(shown, error))
                     progress.advance(stored=True)
                     continue
             if not tasks and not cluster:  # the first file to measure: the workers' server
@@ -339,7 +342,7 @@ def run_batch(
                     message = readable(message)
                     store.put_error(ident, ENGINE_VERSION, okey, message, retry)
                     result = FileResult.failed(shown, message)
-                _keep(store, run, results, result)
+                _keep(store, run, results, on_result, result)
                 progress.advance(measured=True)
         finally:
             outcomes.close()  # stops and reaps the workers
@@ -371,7 +374,13 @@ def run_batch(
 
 
 def _keep(
-    store: Store | _GuardedStore, run: RunInfo, results: dict[str, FileResult], result: FileResult
+    store: Store | _GuardedStore,
+    run: RunInfo,
+    results: dict[str, FileResult],
+    on_result: Callable[[RunInfo, FileResult], Any] | None,
+    result: FileResult,
 ) -> None:
     store.put_result(run.run_id, result)
     results[result.path] = result
+    if on_result is not None:
+        on_result(run, result)
