@@ -41,18 +41,19 @@ def neutralise(value: Any) -> Any:
 def safe_rows(table: Table) -> list[list[Any]]:
     """Every cell through :func:`neutralise`, None as an empty cell; column order kept, ints
     stay ints (never 48000.0)."""
-    return [[_safe_cell(c) for c in row] for row in table.rows]
-
-
-def _safe_cell(value: Any) -> Any:
-    """One cell as written: :func:`neutralise`, None as an empty cell (ints, finite floats and
-    text that triggers nothing first: they are most cells)."""
-    kind = type(value)
-    if kind is int or (kind is float and value == value):
-        return value
-    if kind is str and not value.startswith(FORMULA_TRIGGERS):
-        return value
-    return "" if (v := neutralise(value)) is None else v
+    # Ints, finite floats and text that triggers nothing (most cells) are kept as they are
+    # without a call; the rest go through neutralise.
+    return [
+        [
+            c
+            if (t := type(c)) is int
+            or (t is float and c == c)
+            or (t is str and not c.startswith(FORMULA_TRIGGERS))
+            else ("" if (v := neutralise(c)) is None else v)
+            for c in row
+        ]
+        for row in table.rows
+    ]
 
 
 def write_csv(table: Table, path: Path) -> Path:

@@ -26,7 +26,7 @@ from checker.model.verdict import STATUS_ORDER
 from checker.report.chart import batch_chart
 from checker.report.fixes import fixes_html
 from checker.report.frame import list_text, sorted_results
-from checker.report.htmldata import embed_json, file_detail, profile_limits_for_graph
+from checker.report.htmldata import detail_json, embed_json, profile_limits_for_graph
 from checker.report.judged import SET_SUM_CELLS, cell_values, judged_as_dual_mono
 
 #: Status word, symbol and the sentence a screen reader hears. Colour is never the only cue.
@@ -317,20 +317,6 @@ def _not_checked(run: RunInfo) -> str:
         '<table class="limits"><thead><tr><th>File</th><th>Why not checked</th></tr></thead>'
         f"<tbody>{rows}</tbody></table></section>"
     )
-
-
-def detail_json(r: FileResult, profile: dict[str, float | None], mono_loudness: str) -> str:
-    """One file's detail data (``file_detail``, and how a mono file was judged) as embedded."""
-    detail = file_detail(r, profile)
-    plain = r.measurement.values if r.measurement else {}
-    if r.kind != "set" and judged_as_dual_mono(plain, mono_loudness):
-        judged, one = plain["integrated_dual_mono_lufs"], _num(plain.get("integrated_lufs"))
-        detail["judged"] = {
-            "judged_lufs": judged,
-            "plain_lufs": one,
-            "offset_lu": (judged - one) if one is not None and math.isfinite(one) else 0.0,
-        }
-    return embed_json(detail)
 
 
 def render_html(

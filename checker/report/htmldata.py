@@ -17,6 +17,7 @@ from checker.model.results import FileResult, RunInfo
 from checker.model.serial import json_safe
 from checker.model.timeline import Timeline, bucket_max, bucket_step
 from checker.profile.catalogue import BY_KEY, FILE, MAX, TARGET
+from checker.report.judged import judged_as_dual_mono
 
 #: Points per series in the embedded graph data (the SVG is about 700 px wide).
 GRAPH_POINTS = 480
@@ -24,7 +25,13 @@ GRAPH_POINTS = 480
 
 def embed_json(value: Any) -> str:
     """JSON text that is inert inside an HTML ``<script type="application/json">`` element."""
-    text = json.dumps(json_safe(value), allow_nan=False, ensure_ascii=False, separators=(",", ":"))
+    return embed_safe_json(json_safe(value))
+
+
+def embed_safe_json(value: Any) -> str:
+    """:func:`embed_json` of a value that is json_safe() output already (json_safe gives
+    such a value back unchanged, so walking it again is skipped)."""
+    text = json.dumps(value, allow_nan=False, ensure_ascii=False, separators=(",", ":"))
     return (
         text.replace("&", "\\u0026")
         .replace("<", "\\u003c")
@@ -175,3 +182,27 @@ def file_detail(result: FileResult, profile: dict[str, float | None]) -> dict[st
     # Already JSON-ready (finite rounded floats and None): kept out of json_safe() for speed.
     detail["timeline"] = reduce_timeline(m.timeline if m else None)
     return detail
+
+
+def _number(value: Any) -> float | None:
+    """A number as a float (infinities kept), else None (html.py's _num)."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return None
+    return None if math.isnan(value) else float(value)
+
+
+def detail_json(r: FileResult, profile: dict[str, float | None], mono_loudness: str) -> str:
+    """One file's detail data (``file_detail``, and how a mono file was judged) as embedded."""
+    detail = file_detail(r, profile)
+    plain = r.measurement.values if r.measurement else {}
+    if r.kind != "set" and judged_as_dual_mono(plain, mono_loudness):
+        judged, one = plain["integrated_dual_mono_lufs"], _number(plain.get("integrated_lufs"))
+        detail["judged"] = {
+            "judged_lufs": judged,
+            "plain_lufs": one,
+            "offset_lu": (judged - one) if one is not None and math.isfinite(one) else 0.0,
+        }
+    for key in ("timeline", "judged"):  # the parts file_detail did not pass through json_safe
+        if key in detail:
+            detail[key] = json_safe(detail[key])
+    return embed_safe_json(detail)

@@ -29,11 +29,10 @@ from typing import Any
 from checker.model.results import FileResult, RunInfo
 from checker.report.cells import PER_CHANNEL_KEYS
 from checker.report.frame import csv_file_row
-from checker.report.html import detail_json
-from checker.report.htmldata import profile_limits_for_graph
+from checker.report.htmldata import detail_json, profile_limits_for_graph
 from checker.report.jsonl import result_line
 
-_CHANNEL_LIKE = re.compile(r"_ch\d+(_|$)")
+_CHANNEL_LIKE = re.compile(r"_ch\d+(_|$)", re.MULTILINE)  # searched in the keys, one a line
 
 
 def own_channels(result: FileResult) -> int:
@@ -75,7 +74,7 @@ class PreparedRows:
                 detail = detail_json(result, self._profile, run.mono_loudness)
             row = None
             values = result.measurement.values if result.measurement is not None else {}
-            if not any(_CHANNEL_LIKE.search(key) for key in values):
+            if _CHANNEL_LIKE.search("\n".join(values)) is None:
                 own = own_channels(result)
                 row = (csv_file_row(result, own), own)
             self._made[id(result)] = (result, row, result_line(result), detail)
