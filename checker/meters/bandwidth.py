@@ -132,6 +132,12 @@ def kaiser_periodic(n: int, beta: float) -> np.ndarray:
     return window
 
 
+@functools.lru_cache(maxsize=8)
+def _window_power(n: int, beta: float) -> float:
+    """sum(window**2) of kaiser_periodic(n, beta), once per size."""
+    return float(np.sum(kaiser_periodic(n, beta) ** 2))
+
+
 def median_filter_nearest(x: np.ndarray, size: int) -> np.ndarray:
     """Running median over ``size`` (odd) points, edges padded with the end values
     (scipy.ndimage.median_filter(x, size, mode="nearest") for 1-D x). Compiled where the
@@ -180,7 +186,7 @@ class BandwidthMeter:
         self.n = fft_frames_for(self.rate)
         self.hop = self.n // 2
         self.window = kaiser_periodic(self.n, KAISER_BETA)
-        self.window_power = float(np.sum(self.window**2))
+        self.window_power = _window_power(self.n, KAISER_BETA)
         self.bits = info.format_bits if info.is_integer_pcm else None
         self.sum_parts = np.zeros(2 * (self.n // 2 + 1))  # sums of re^2 and im^2 per bin
         self.frames = 0  # spectrum frames passed (analysed or represented)
