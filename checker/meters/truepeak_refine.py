@@ -102,6 +102,7 @@ class TruePeakRefinement:
     def _refine_native(self, st, c, win, y, lo, hi, top, base, last_frame=None):
         """Compiled twin of _refine (kernels.c, dc_tp_refine): the same candidates, the
         same float64 arithmetic, the fine sums added in tap order."""
+        self.refined += 1
         limits = self._edge_limits(base, lo, hi, last_frame) or (-(2**62), 2**62)
         end_s = math.inf if last_frame is None else last_frame / self.rate_hz - EDGE_S
         # Span records need the chunk's own reading: start from 0 instead of the running
@@ -128,6 +129,7 @@ class TruePeakRefinement:
         """Update channel c's maximum from this chunk: grid values, plus a fine evaluation
         of the filter around the FINE_CANDIDATES local maxima with the largest
         sinusoid-fit estimates among those that could beat the running maximum."""
+        self.refined += 1
         threshold = np.float64(max(st.best[c], top) / self.refine_bound * (1.0 - 1e-9))
         idx = np.flatnonzero(centres >= threshold)  # compared in float64, as kernels.c does
         k = idx + lo
