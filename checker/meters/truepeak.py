@@ -108,7 +108,6 @@ not keep the values exact).
 
 from __future__ import annotations
 
-import copy
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -390,7 +389,7 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
             st.over_index.extend(k for k, _ in events[: self.max_positions - len(st.over_index)])
 
     def result(self) -> TruePeakResult:
-        st = copy.deepcopy(self.state)
+        st = self.state.copy()
         computed, seen, refined = self.computed, self.seen, self.refined
         frames = self.stream.frames_in
 

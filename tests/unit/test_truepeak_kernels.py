@@ -220,3 +220,25 @@ def test_tp_chunks_refuses_refinement_arguments_outside_the_window():
             CHUNK_FRAMES, d.phase_rows, 4, d.bound, 1.007, 1.08, CEILING, np.zeros(1),
             np.zeros(1, np.uint8), 10, refine=refine,
         )  # fmt: skip
+
+
+def test_state_copy_is_a_deep_copy_of_every_field():
+    # result() copies the meter's state (_State.copy, in place of copy.deepcopy): every
+    # field equal to deepcopy's, and no array or list shared with the original.
+    import copy
+    import dataclasses
+
+    from checker.meters.truepeak_refine import _State
+
+    st = _State(np.array([0.5, 0.25]), np.array([3, 9]), np.array([0.4, 0.2]), np.ones(2, bool))
+    st.overs, st.over_index, st.refined, st.ranges = 2, [5, 8], [(0, 1, 0.5, 3)], [(0, 1, 0.5)]
+    st.local, st.local_index, st.last_quiet = np.array([0.1, 0.2]), np.array([1, 2]), False
+    mine, reference = st.copy(), copy.deepcopy(st)
+    for f in dataclasses.fields(_State):
+        a, b, original = getattr(mine, f.name), getattr(reference, f.name), getattr(st, f.name)
+        if isinstance(a, np.ndarray):
+            assert_array_equal(a, b)
+            assert a.dtype == b.dtype and not np.shares_memory(a, original)
+        else:
+            assert a == b
+            assert not isinstance(a, list) or a is not original
