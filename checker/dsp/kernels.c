@@ -377,6 +377,45 @@ CLONES EXPORT int64_t dc_frame_scan(const double *x, int64_t ch, int64_t n, doub
     return zeros;
 }
 
+/* ---------------------------------------------------------------- running median */
+
+/* The median of every `size` (odd) consecutive points of x (n points), the ends padded with
+ * the end values: out[i] = median(x[i - size / 2 .. i + size / 2]), indices clamped to
+ * 0 .. n - 1 (numpy twin: checker/meters/bandwidth.py, median_filter_nearest). The window is
+ * kept sorted in `work` (size doubles): each step overwrites the point that leaves with the
+ * one that enters and moves it to its place. A median of an odd count is one of the points,
+ * so this gives exactly the value a sort or a partition gives. Finite x only. */
+EXPORT void dc_running_median(const double *x, int64_t n, int64_t size, double *work,
+                              double *out)
+{
+    const int64_t half = size / 2;
+    if (n <= 0)
+        return;
+    for (int64_t k = 0; k < size; k++) { /* the first window, by insertion */
+        int64_t j = k - half;
+        const double v = x[j < 0 ? 0 : (j > n - 1 ? n - 1 : j)];
+        int64_t p = k;
+        for (; p > 0 && work[p - 1] > v; p--)
+            work[p] = work[p - 1];
+        work[p] = v;
+    }
+    out[0] = work[half];
+    for (int64_t i = 1; i < n; i++) {
+        int64_t jo = i - 1 - half, ji = i + half;
+        const double leave = x[jo < 0 ? 0 : jo];
+        const double enter = x[ji > n - 1 ? n - 1 : ji];
+        int64_t p = 0;
+        while (work[p] != leave) /* present: it entered size steps ago */
+            p++;
+        for (; p > 0 && work[p - 1] > enter; p--)
+            work[p] = work[p - 1];
+        for (; p < size - 1 && work[p + 1] < enter; p++)
+            work[p] = work[p + 1];
+        work[p] = enter;
+        out[i] = work[half];
+    }
+}
+
 /* ------------------------------------------------------------------ the fused walk */
 
 /* One walk over a block of interleaved integer codes does what dc_deinterleave_i32,

@@ -43,6 +43,7 @@ _SIGNATURES = {
     "dc_channel_stats": (None, [_P, _P, _I, _I, _P, _I, _P, _P, _P, _P, _P, _P, _P, _I]),
     "dc_pair_products": (None, [_P, _I, _P, _P, _I, _P]),
     "dc_frame_scan": (_I, [_P, _I, _I, _D, _P, _P]),
+    "dc_running_median": (None, [_P, _I, _I, _P, _P]),
     "dc_walk_i32": (
         _I,
         [_P, _I, _I, _D, _P, _P, _P, _I, _P, _P, _P, _P, _P, _P, _P, _P, _P, _I, _P, _D, _P, _P]
@@ -233,6 +234,18 @@ def frame_scan(
     out = np.empty(4, dtype=np.int64)
     zeros = _lib.dc_frame_scan(_ptr(xt), ch, n, threshold, _ptr(out), _ptr(zero_mask))
     return int(zeros), int(out[0]), int(out[1]), int(out[2]), int(out[3])
+
+
+def running_median(x: np.ndarray, size: int) -> np.ndarray:
+    """Median of every ``size`` (odd) consecutive points of finite 1-D float64 ``x``, the ends
+    padded with the end values (bandwidth.median_filter_nearest's compiled twin)."""
+    _need(x, np.float64, 1, "running_median")
+    if size < 1 or size % 2 == 0:
+        raise ValueError(f"native.running_median: size = {size} (expected an odd number)")
+    out = np.empty_like(x)
+    work = np.empty(size)
+    _lib.dc_running_median(x.ctypes.data, x.size, size, work.ctypes.data, out.ctypes.data)
+    return out
 
 
 def pair_products(xt: np.ndarray, first: np.ndarray, second: np.ndarray) -> np.ndarray:

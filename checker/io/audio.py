@@ -261,7 +261,11 @@ def read_blocks(
         block_frames = auto_block_frames(info)
     hooks = prepare if prepare is not None else []
     walks = walk if walk is not None else []
-    if read_ahead:
+    # A file that declares at most one block has nothing to read ahead: a thread per file
+    # would only add its start and hand-overs (about 1 ms per short file measured here).
+    # Should the declaration understate, the blocks are the same, only read in turn.
+    one_block = info.frames_declared is not None and info.frames_declared <= block_frames
+    if read_ahead and not one_block:
         return info, _iterate_ahead(handle, info, block_frames, hooks, walks)
     return info, _iterate(handle, info, block_frames, hooks, walks)
 

@@ -43,7 +43,7 @@ from __future__ import annotations
 
 import functools
 import math
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
@@ -81,7 +81,7 @@ class LoudnessResult:
     max_short_term_time_s: float | None
 
     def to_dict(self) -> dict:
-        return asdict(self)
+        return dict(self.__dict__)  # flat fields: asdict's deep copy is not needed
 
 
 @functools.lru_cache(maxsize=8)

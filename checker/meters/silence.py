@@ -37,6 +37,7 @@ NaN/Inf samples count as 0 (see checker.meters.samples.finite_x).
 from __future__ import annotations
 
 import bisect
+import functools
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -99,6 +100,20 @@ def _first_last(mask: np.ndarray) -> tuple[int | None, int | None]:
     return first, mask.size - 1 - int(mask[::-1].argmax())
 
 
+@functools.lru_cache(maxsize=8)
+def _curve_grid(threshold_dbfs: float) -> tuple[np.ndarray, int, np.ndarray]:
+    """(thresholds in dBFS, index of ``threshold_dbfs`` among them, the same as powers) of the
+    silence curve: every whole dB from CURVE_FROM_DBFS to CURVE_TO_DBFS and the threshold.
+    Once per threshold; read-only, as every meter shares them."""
+    grid = set(range(CURVE_FROM_DBFS, CURVE_TO_DBFS + 1)) | {threshold_dbfs}
+    grid_dbfs = np.array(sorted(grid), dtype=np.float64)
+    ref = int(np.searchsorted(grid_dbfs, threshold_dbfs))
+    grid_power = 10.0 ** (grid_dbfs / 10.0)
+    grid_dbfs.flags.writeable = False
+    grid_power.flags.writeable = False
+    return grid_dbfs, ref, grid_power
+
+
 class SilenceMeter:
     def __init__(self, info: StreamInfo, layout: Layout, options: MeasureOptions) -> None:
         self.rate = info.sample_rate_hz
@@ -117,10 +132,7 @@ class SilenceMeter:
         # Short-time RMS: 1 ms steps of sums of squares per channel.
         ch = info.channels
         self.step = max(1, round(self.rate * STEP_S))
-        grid = set(range(CURVE_FROM_DBFS, CURVE_TO_DBFS + 1)) | {options.silence_threshold_dbfs}
-        self.grid_dbfs = np.array(sorted(grid), dtype=np.float64)
-        self.ref = int(np.searchsorted(self.grid_dbfs, options.silence_threshold_dbfs))
-        self.grid_power = 10.0 ** (self.grid_dbfs / 10.0)
+        self.grid_dbfs, self.ref, self.grid_power = _curve_grid(options.silence_threshold_dbfs)
         self.part = np.zeros(ch)  # squares of the step in progress
         self.part_frames = 0
         self.hist = np.zeros((ch, 0))  # the last WINDOW_STEPS - 1 complete steps

@@ -37,4 +37,5 @@ def test_bench_runs_on_tiny_files(tmp_path):
     assert "6 ch" in out and "96000 Hz" in out and "FLAC" in out
     assert "throughput ratio jobs2/jobs1" in out and "under load / unloaded" in out
     assert "per-file overhead" in out and "measure() in one process" in out
+    assert "measure(), 10 ms files" in out
     assert "progress within a file" in out and "% per block" in out

@@ -6,6 +6,7 @@ the designed response, computed with sosfreqz / freqz), not from the meter.
 
 from __future__ import annotations
 
+import contextlib
 import math
 
 import numpy as np
@@ -17,6 +18,7 @@ from scipy import signal as sps
 from signals import noise, programme, sine, write
 
 from checker.analysis.onepass import measure
+from checker.dsp import native
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import default_layout
 from checker.meters.bandwidth import (
@@ -293,15 +295,26 @@ def test_sampled_frames_keep_the_white_noise_level_and_split_invariance():
     assert other.result() == sampled.result()
 
 
-@pytest.mark.parametrize("size", [5, 17, 33])
-def test_running_median_matches_scipy(size):
+@pytest.mark.parametrize("compiled", [True, False], ids=["compiled", "numpy"])
+@pytest.mark.parametrize("size", [1, 3, 5, 17, 33, 65])
+@pytest.mark.parametrize("n", [1, 2, 16, 2049])
+def test_running_median_matches_scipy(size, n, compiled):
     # Reference: scipy.ndimage.median_filter(x, size, mode="nearest") (1-D), which the
-    # meter's own running median stands in for; exact, as both pick one of the values.
+    # meter's own running median stands in for; exact, as every path picks one of the
+    # values. Both paths: the compiled one (kernels.c, dc_running_median) and numpy's.
     from scipy import ndimage
 
-    x = np.random.default_rng(size).random(2049) ** 4
-    x[100:140] = x[100]  # ties
-    expected = ndimage.median_filter(x, size=size, mode="nearest")
-    assert_allclose(median_filter_nearest(x, size), expected, rtol=0, atol=0)
+    if compiled and not native.enabled():
+        pytest.skip(f"compiled kernels not loaded: {native.status()}")
+    rng = np.random.default_rng(size * 10_000 + n)
+    for x in (
+        rng.random(n) ** 4,
+        np.where(rng.random(n) < 0.4, 0.5, rng.random(n)),  # many ties
+        np.sort(rng.random(n))[::-1].copy(),  # falling: every step moves the new point
+    ):
+        expected = ndimage.median_filter(x, size=size, mode="nearest")
+        with contextlib.nullcontext() if compiled else native.disabled():
+            got = median_filter_nearest(x, size)
+        assert_allclose(got, expected, rtol=0, atol=0)
     with pytest.raises(ValueError, match="odd"):
         median_filter_nearest(x, 4)

@@ -93,3 +93,26 @@ def test_same_measurement_with_nan_in_a_float_file(tmp_path):
     plain = measure(str(path), options)
     assert plain.values["nonfinite_samples"] == 15
     assert measure(str(path), options, read_ahead=True) == plain
+
+
+@pytest.mark.parametrize("seconds", [0.01, 1.0])
+def test_a_file_of_one_block_is_read_without_a_thread(tmp_path, monkeypatch, seconds):
+    # A file that declares at most one block has nothing to read ahead: no thread starts
+    # (it would only cost its start per short file), and the blocks are the plain reader's.
+    path = write(tmp_path / "p.wav", programme(seconds, seed=7), subtype="PCM_24")
+    plain = _blocks(path, False, 48_000)
+    started = []
+    original = threading.Thread.start
+
+    def spy(self):
+        started.append(self.name)
+        original(self)
+
+    monkeypatch.setattr(threading.Thread, "start", spy)
+    ahead = _blocks(path, True, 48_000)
+    longer = _blocks(path, True, 100)  # several blocks: read ahead as before
+    assert started == ["deliverycheck-read-ahead"]  # the several-block read only
+    assert len(ahead) == len(plain) == 1
+    assert ahead[0][0] == plain[0][0]
+    assert_array_equal(ahead[0][1], plain[0][1])
+    assert len(longer) == -(-round(48_000 * seconds) // 100)
