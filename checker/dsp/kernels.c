@@ -1147,7 +1147,8 @@ CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, in
                     for (int64_t p = 0; p < nph; p++)
                         for (int64_t k = 0; k < nv; k++)
                             memcpy(keep + p * npos + i + 8 * k, &acc[p][k], sizeof(v8f));
-                    memset(have + i / 8, 1, (size_t)nv);
+                    for (int64_t k = 0; k < nv; k++)
+                        have[i / 8 + k] = 1;
                 }
                 /* |y| of every point (abs[0]: the samples, abs[p + 1]: phase p + 1) and the
                  * block's maximum, reduced as a tree (exact in any order) */
