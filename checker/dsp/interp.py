@@ -354,6 +354,19 @@ class ChunkStream:
             self.buf_start += keep_from
         return run
 
+    def remaining_run(self) -> ChunkRun:
+        """The chunks of :meth:`remaining` as one ChunkRun over a zero-padded copy (no
+        state change)."""
+        first = self.next_chunk
+        count = max(-(-self.frames_in // self.step) - first, 0)
+        if not count:
+            return ChunkRun(first, 0, self.buf, 0, self.step, self.window)
+        lo = self._chunk_start(first) - self.buf_start
+        buf = np.zeros((self.channels, (count - 1) * self.step + self.window), dtype=np.float32)
+        have = self.buf[:, lo : lo + buf.shape[1]]
+        buf[:, : have.shape[1]] = have
+        return ChunkRun(first, count, buf, 0, self.step, self.window)
+
     def remaining(self) -> Iterator[tuple[int, np.ndarray]]:
         """Zero-padded chunks still holding frames < frames_in (no state change)."""
         j = self.next_chunk

@@ -687,9 +687,10 @@ typedef int32_t v8i __attribute__((vector_size(32)));
 typedef uint32_t v8u __attribute__((vector_size(32)));
 
 #define TP_BLOCK 24 /* output positions per register block (3 vectors of 8) */
+#define TP_MAX_VECS 1024 /* dc_tp_chunks keeps the grid of chunks up to 8 * this positions */
 #define TP_MAX_PHASES 3 /* phases 1..factor-1 computed; factor <= 4 */
 
-static inline v8f v8f_load(const float *p)
+static inline __attribute__((always_inline)) v8f v8f_load(const float *p)
 {
     v8f v;
     memcpy(&v, p, sizeof v);
@@ -750,7 +751,7 @@ tp_block(const float *w, const float *taps, int64_t nph, int64_t ntaps,
 #undef TP_BLOCK_NV
 
 /* The same sum for one position (tails shorter than a vector): the same bits per output. */
-static inline float tp_one(const float *w, const float *taps, int64_t ntaps)
+static inline __attribute__((always_inline)) float tp_one(const float *w, const float *taps, int64_t ntaps)
 {
     float acc = 0.0f;
     for (int64_t q = 0; q < ntaps; q++)
@@ -761,8 +762,9 @@ static inline float tp_one(const float *w, const float *taps, int64_t ntaps)
 /* Oversampled grid of npos positions: out[i * factor + p] = y(i + p / factor), where the
  * input sample of position i is w[i + back] and w holds npos + ntaps - 1 samples; phase 0 is
  * that sample itself. taps: (factor - 1) x ntaps, phase p's taps at (p - 1) * ntaps. */
-CLONES EXPORT void dc_tp_grid(const float *w, int64_t npos, const float *taps, int64_t factor,
-                              int64_t ntaps, int64_t back, float *out)
+static inline __attribute__((always_inline)) void
+tp_grid_impl(const float *w, int64_t npos, const float *taps, int64_t factor, int64_t ntaps,
+             int64_t back, float *out)
 {
     const int64_t nph = factor - 1;
     int64_t i = 0;
@@ -789,12 +791,18 @@ CLONES EXPORT void dc_tp_grid(const float *w, int64_t npos, const float *taps, i
     }
 }
 
+CLONES EXPORT void dc_tp_grid(const float *w, int64_t npos, const float *taps, int64_t factor,
+                              int64_t ntaps, int64_t back, float *out)
+{
+    tp_grid_impl(w, npos, taps, factor, ntaps, back, out);
+}
+
 #define V8F_ABS(v) ((v8f)((v8i)(v) & (v8i){0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff, \
                                            0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff}))
 /* element-wise a > b ? a : b */
 #define V8F_MAX(a, b) ((v8f)((((v8i)((a) > (b))) & (v8i)(a)) | (~((v8i)((a) > (b))) & (v8i)(b))))
 
-static inline float v8f_hmax(const v8f *v)
+static inline __attribute__((always_inline)) float v8f_hmax(const v8f *v)
 {
     float m = (*v)[0];
     for (int k = 1; k < 8; k++)
@@ -846,148 +854,10 @@ tp_peak_and_step(const float *x, int64_t n, float *peak, float *step)
 /* Bound on |y| anywhere inside a window whose samples peak at `peak` and step by at most
  * `step` (see truepeak.py, "Speed: skipping chunks"): min(sum |taps| * peak, dc * peak +
  * steps * step), times (1 + margin). bound[0..3] = sum |taps|, dc gain, steps, margin. */
-static inline double tp_reach(double peak, double step, const double *bound)
+static inline __attribute__((always_inline)) double tp_reach(double peak, double step, const double *bound)
 {
     double a = bound[0] * peak, b = bound[1] * peak + bound[2] * step;
     return (a < b ? a : b) * (1.0 + bound[3]);
-}
-
-/* Several chunks of several channels in one call. Channel c's input is the row
- * buf + c * row; chunk j's window starts at first + j * hop and holds `window` samples;
- * its centres are the grid points of npos positions from window sample lead (position i:
- * sample lead + i, window from lead + i - back). For each chunk, channel by channel:
- *   - skip test: reach * fine_gain <= best and reach <= ceiling (tp_reach over the whole
- *     window), with best[c] raised to each computed chunk's top as it goes (a lower bound
- *     of the meter's maximum, which only grows);
- *   - else the grid: top[j * ch + c] = largest |y| over the centres (-1 when skipped),
- *     overs: runs of |y| > ceiling_f carried over chunks by in_run[c] (a skipped chunk ends
- *     a run), counted in *overs; the first `cap` run starts of each channel (grid index
- *     relative to chunk 0's first centre) go to starts[c * cap ...], their number to
- *     nstarts[c].
- * Inside a computed chunk, a register block of TP_BLOCK positions is left out when its own
- * reach (tp_reach over the samples its filter windows read) times refine_bound is at most
- * best[c] and the reach is at most the ceiling: none of its grid points is an over (a run
- * ends there, as it would), and none can make top * refine_bound exceed best[c], which is
- * at most the meter's running maximum. So top is the exact largest |y| over the centres
- * whenever top * refine_bound > best[c] (the meter refines such a chunk from its whole grid,
- * dc_tp_grid); otherwise it is a lower bound of it that the meter uses in the same way (no
- * refinement; best[c] not raised, as the points left out lie below best[c]).
- * The grid is computed 8 positions per vector (TP_BLOCK per register block); whether a
- * grid point is above the ceiling becomes one bit, in time order, of a word per vector
- * (bit l * factor + p: lane l, phase p), so runs and their starts are bit operations.
- * Returns the number of chunk-channels computed (wholly or in part). */
-CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, int64_t first,
-                                   int64_t hop, int64_t nchunks, int64_t window, int64_t lead,
-                                   int64_t npos, const float *taps, int64_t factor,
-                                   int64_t ntaps, int64_t back, const double *bound,
-                                   double fine_gain, double refine_bound, double ceiling,
-                                   float ceiling_f, double *best, uint8_t *in_run, float *top,
-                                   int64_t *overs, int64_t *starts, int64_t cap,
-                                   int64_t *nstarts)
-{
-    const int64_t nph = factor - 1;
-    const int vec = nph <= TP_MAX_PHASES && factor * 8 <= 32; /* a vector's bits fit a word */
-    const v8f ceil_v = {ceiling_f, ceiling_f, ceiling_f, ceiling_f,
-                        ceiling_f, ceiling_f, ceiling_f, ceiling_f};
-    v8u bit[TP_MAX_PHASES + 1]; /* bit[p] lane l: 1 << (l * factor + p) */
-    for (int64_t p = 0; p <= TP_MAX_PHASES; p++)
-        for (int l = 0; l < 8; l++)
-            bit[p][l] = vec && p < factor ? 1u << (l * factor + p) : 0u;
-    const int nbits = (int)(8 * factor);
-    int64_t computed = 0;
-    for (int64_t j = 0; j < nchunks; j++) {
-        for (int64_t c = 0; c < ch; c++) {
-            const float *win = buf + c * row + first + j * hop;
-            float peak, step;
-            tp_peak_and_step(win, window, &peak, &step);
-            const double reach = tp_reach(peak, step, bound);
-            if (reach * fine_gain <= best[c] && reach <= ceiling) {
-                top[j * ch + c] = -1.0f;
-                in_run[c] = 0;
-                continue;
-            }
-            computed++;
-            const float *w = win + lead - back;
-            const int64_t base = j * npos * factor; /* grid index of this chunk's first centre */
-            v8f mv = {0, 0, 0, 0, 0, 0, 0, 0};
-            float m = 0.0f;
-            uint32_t run = in_run[c];
-            int64_t i = 0;
-            v8f acc[TP_MAX_PHASES][TP_BLOCK / 8];
-            while (vec && i + 8 <= npos) {
-                const int64_t nv = (npos - i) / 8 < TP_BLOCK / 8 ? (npos - i) / 8 : TP_BLOCK / 8;
-                float local_peak, local_step;
-                tp_peak_and_step(w + i, 8 * nv + ntaps - 1, &local_peak, &local_step);
-                const double local = tp_reach(local_peak, local_step, bound);
-                if (local * refine_bound <= best[c] && local <= ceiling) {
-                    run = 0;
-                    i += 8 * nv;
-                    continue;
-                }
-                tp_block(w + i, taps, nph, ntaps, acc, nv);
-                /* |y| of every point (abs[0]: the samples, abs[p + 1]: phase p + 1) and the
-                 * block's maximum, reduced as a tree (exact in any order) */
-                v8f abs_y[TP_MAX_PHASES + 1][TP_BLOCK / 8], kmax[TP_BLOCK / 8];
-                for (int64_t k = 0; k < nv; k++) {
-                    abs_y[0][k] = V8F_ABS(v8f_load(w + i + 8 * k + back));
-                    kmax[k] = abs_y[0][k];
-                    for (int64_t p = 0; p < nph; p++) {
-                        abs_y[p + 1][k] = V8F_ABS(acc[p][k]);
-                        kmax[k] = V8F_MAX(abs_y[p + 1][k], kmax[k]);
-                    }
-                }
-                v8f bmv = kmax[0];
-                for (int64_t k = 1; k < nv; k++)
-                    bmv = V8F_MAX(kmax[k], bmv);
-                mv = V8F_MAX(bmv, mv);
-                const v8i hit = (v8i)(bmv > ceil_v);
-                int any = 0;
-                for (int l = 0; l < 8; l++)
-                    any |= hit[l];
-                if (!any) {
-                    run = 0;
-                    i += 8 * nv;
-                    continue;
-                }
-                for (int64_t k = 0; k < nv; k++) {
-                    v8u word = {0, 0, 0, 0, 0, 0, 0, 0};
-                    for (int64_t p = 0; p < factor; p++)
-                        word |= (v8u)(abs_y[p][k] > ceil_v) & bit[p];
-                    uint32_t above = 0; /* the 8 * factor points of these 8 positions */
-                    for (int l = 0; l < 8; l++)
-                        above |= word[l];
-                    uint32_t rising = above & ~((above << 1) | run);
-                    *overs += __builtin_popcount(rising);
-                    for (; rising && nstarts[c] < cap; rising &= rising - 1)
-                        starts[c * cap + nstarts[c]++] =
-                            base + (i + 8 * k) * factor + __builtin_ctz(rising);
-                    run = (above >> (nbits - 1)) & 1u;
-                }
-                i += 8 * nv;
-            }
-            for (; i < npos; i++) { /* positions after the last whole vector */
-                for (int64_t p = 0; p < factor; p++) {
-                    const float a = p == 0 ? fabsf(w[i + back])
-                                           : fabsf(tp_one(w + i, taps + (p - 1) * ntaps, ntaps));
-                    m = a > m ? a : m;
-                    const uint32_t above = a > ceiling_f;
-                    if (above && !run) {
-                        ++*overs;
-                        if (nstarts[c] < cap)
-                            starts[c * cap + nstarts[c]++] = base + i * factor + p;
-                    }
-                    run = above;
-                }
-            }
-            const float vm = v8f_hmax(&mv);
-            m = vm > m ? vm : m;
-            in_run[c] = (uint8_t)run;
-            top[j * ch + c] = m;
-            if (m > best[c])
-                best[c] = m;
-        }
-    }
-    return computed;
 }
 
 /* ------------------------------------------------------------- true-peak refinement */
@@ -995,14 +865,15 @@ CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, in
  * twin: TruePeakMeter._refine / _fine and interp.refine_peaks; float64 like them, every
  * operation in the same order except the fine sums, which add the taps in tap order). */
 
-static inline double clip_d(double v, double lo, double hi)
+static inline __attribute__((always_inline)) double clip_d(double v, double lo, double hi)
 {
     v = v > lo ? v : lo;
     return v < hi ? v : hi;
 }
 
 /* interp.refine_peaks for one point: |y0| * sqrt(1 + t^2), cos_max = cos(omega_max). */
-static double tp_sinusoid_peak(double ym, double y0, double yp, double cos_max)
+static inline __attribute__((always_inline)) double
+tp_sinusoid_peak(double ym, double y0, double yp, double cos_max)
 {
     const double u0 = fabs(y0), s = y0 < 0 ? -1.0 : 1.0;
     const double um = s * ym, up = s * yp;
@@ -1024,7 +895,8 @@ static double tp_sinusoid_peak(double ym, double y0, double yp, double cos_max)
 /* Fine evaluation around window grid point k (TruePeakMeter._fine): the filter at
  * fine_steps / factor points per grid step over +-1 grid step; returns the largest |v|
  * refined by a sinusoid fit, and its window-local fine index in *at_fine. */
-static double tp_fine(const float *win, int64_t k, int64_t factor, const double *fine_taps,
+static inline __attribute__((always_inline)) double
+tp_fine(const float *win, int64_t k, int64_t factor, const double *fine_taps,
                       int64_t ntaps, int64_t history, int64_t fine_steps, double cos_fine,
                       int64_t *at_fine)
 {
@@ -1060,12 +932,12 @@ static double tp_fine(const float *win, int64_t k, int64_t factor, const double 
  * sinusoid-fit estimates (ties: the earlier) evaluated finely. state[0] (best), state[1]
  * (best_inner, over points whose time lies in [edge_s, end_s]) and *best_index (fine index)
  * are updated in place. */
-EXPORT void dc_tp_refine(const float *win, const float *y, int64_t lo, int64_t hi,
-                         int64_t factor, int64_t base, int64_t first, int64_t last,
-                         const double *fine_taps, int64_t ntaps, int64_t history,
-                         int64_t fine_steps, int64_t ncand, double cos_refine, double cos_fine,
-                         double top, double refine_bound, double fine_rate, double edge_s,
-                         double end_s, double *state, int64_t *best_index)
+static inline __attribute__((always_inline)) void
+tp_refine_impl(const float *win, const float *y, int64_t lo, int64_t hi, int64_t factor,
+               int64_t base, int64_t first, int64_t last, const double *fine_taps, int64_t ntaps,
+               int64_t history, int64_t fine_steps, int64_t ncand, double cos_refine,
+               double cos_fine, double top, double refine_bound, double fine_rate, double edge_s,
+               double end_s, double *state, int64_t *best_index)
 {
     const double high = state[0] > top ? state[0] : top;
     const double threshold = high / refine_bound * (1.0 - 1e-9);
@@ -1160,3 +1032,247 @@ EXPORT void dc_tp_refine(const float *win, const float *y, int64_t lo, int64_t h
     }
     state[1] = inner;
 }
+
+EXPORT void dc_tp_refine(const float *win, const float *y, int64_t lo, int64_t hi,
+                         int64_t factor, int64_t base, int64_t first, int64_t last,
+                         const double *fine_taps, int64_t ntaps, int64_t history,
+                         int64_t fine_steps, int64_t ncand, double cos_refine, double cos_fine,
+                         double top, double refine_bound, double fine_rate, double edge_s,
+                         double end_s, double *state, int64_t *best_index)
+{
+    tp_refine_impl(win, y, lo, hi, factor, base, first, last, fine_taps, ntaps, history,
+                   fine_steps, ncand, cos_refine, cos_fine, top, refine_bound, fine_rate, edge_s,
+                   end_s, state, best_index);
+}
+
+/* Several chunks of several channels in one call. Channel c's input is the row
+ * buf + c * row; chunk j's window starts at first + j * hop and holds `window` samples;
+ * its centres are the grid points of npos positions from window sample lead (position i:
+ * sample lead + i, window from lead + i - back). For each chunk, channel by channel:
+ *   - skip test: reach * fine_gain <= best and reach <= ceiling (tp_reach over the whole
+ *     window), with best[c] raised to each computed chunk's top as it goes (a lower bound
+ *     of the meter's maximum, which only grows);
+ *   - else the grid: top[j * ch + c] = largest |y| over the centres (-1 when skipped),
+ *     overs: runs of |y| > ceiling_f carried over chunks by in_run[c] (a skipped chunk ends
+ *     a run), counted in *overs; the first `cap` run starts of each channel (grid index
+ *     relative to chunk 0's first centre) go to starts[c * cap ...], their number to
+ *     nstarts[c].
+ * Inside a computed chunk, a register block of TP_BLOCK positions is left out when its own
+ * reach (tp_reach over the samples its filter windows read) times refine_bound is at most
+ * best[c] and the reach is at most the ceiling: none of its grid points is an over (a run
+ * ends there, as it would), and none can make top * refine_bound exceed best[c], which is
+ * at most the meter's running maximum. So top is the exact largest |y| over the centres
+ * whenever top * refine_bound > best[c] (the meter refines such a chunk from its whole grid,
+ * dc_tp_grid); otherwise it is a lower bound of it that the meter uses in the same way (no
+ * refinement; best[c] not raised, as the points left out lie below best[c]).
+ * The grid is computed 8 positions per vector (TP_BLOCK per register block); whether a
+ * grid point is above the ceiling becomes one bit, in time order, of a word per vector
+ * (bit l * factor + p: lane l, phase p), so runs and their starts are bit operations.
+ * File edges: edge = {origin, efirst, elast}, origin the file grid index of chunk 0's first
+ * centre; an interpolated point (phase > 0) outside [efirst, elast] counts as 0 for top and
+ * overs (the edge rule of checker/meters/truepeak_refine.py; samples always count).
+ * Refinement (fine_taps not NULL): best, best_index and best_inner are the meter's own
+ * state; each chunk-channel with top > 0 and top * refine_bound > best[c] is refined right
+ * after its grid, in chunk order (tp_refine_impl, as dc_tp_refine after dc_tp_grid: the same
+ * bits), so the skip tests above run against the running maximum itself. Its grid: the
+ * vectors computed here (kept phase-major in the scratch after `grid`), the blocks left
+ * out and iref[3] positions either side computed again (every output is one sum in tap
+ * order, so the same bits whatever the grouping). iref = {history, fine steps, candidates,
+ * positions either side, chunk-channels refined (out, added to)}; dref = {cos_refine,
+ * cos_fine, fine points per second, edge_s, end_s}; grid: (npos + 2 iref[3]) * factor +
+ * (factor - 1) * npos floats. NULL fine_taps: no refinement, best[c] raised to each top.
+ * Returns the number of chunk-channels computed (wholly or in part). */
+CLONES EXPORT int64_t dc_tp_chunks(const float *buf, int64_t ch, int64_t row, int64_t first,
+                                   int64_t hop, int64_t nchunks, int64_t window, int64_t lead,
+                                   int64_t npos, const float *taps, int64_t factor,
+                                   int64_t ntaps, int64_t back, const double *bound,
+                                   double fine_gain, double refine_bound, double ceiling,
+                                   float ceiling_f, double *best, uint8_t *in_run, float *top,
+                                   int64_t *overs, int64_t *starts, int64_t cap,
+                                   int64_t *nstarts, const int64_t *edge,
+                                   const double *fine_taps, int64_t *iref,
+                                   const double *dref, int64_t *best_index,
+                                   double *best_inner, float *grid)
+{
+    const int64_t origin = edge[0], efirst = edge[1], elast = edge[2];
+    uint8_t have[TP_MAX_VECS];
+    /* scratch after the grid: phases 1.. of the computed positions, phase-major */
+    float *keep = grid == NULL ? NULL : grid + (npos + 2 * (iref ? iref[3] : 0)) * factor;
+    const int64_t nph = factor - 1;
+    const int vec = nph <= TP_MAX_PHASES && factor * 8 <= 32; /* a vector's bits fit a word */
+    const v8f ceil_v = {ceiling_f, ceiling_f, ceiling_f, ceiling_f,
+                        ceiling_f, ceiling_f, ceiling_f, ceiling_f};
+    v8u bit[TP_MAX_PHASES + 1]; /* bit[p] lane l: 1 << (l * factor + p) */
+    for (int64_t p = 0; p <= TP_MAX_PHASES; p++)
+        for (int l = 0; l < 8; l++)
+            bit[p][l] = vec && p < factor ? 1u << (l * factor + p) : 0u;
+    const int nbits = (int)(8 * factor);
+    int64_t computed = 0;
+    for (int64_t j = 0; j < nchunks; j++) {
+        for (int64_t c = 0; c < ch; c++) {
+            const float *win = buf + c * row + first + j * hop;
+            float peak, step;
+            tp_peak_and_step(win, window, &peak, &step);
+            const double reach = tp_reach(peak, step, bound);
+            if (reach * fine_gain <= best[c] && reach <= ceiling) {
+                top[j * ch + c] = -1.0f;
+                in_run[c] = 0;
+                continue;
+            }
+            computed++;
+            const float *w = win + lead - back;
+            /* for the refinement: which vectors of 8 positions were computed here (their
+             * phases kept phase-major in keep), so that only the rest is computed again */
+            const int keeping = fine_taps != NULL && npos / 8 <= TP_MAX_VECS;
+            if (keeping)
+                memset(have, 0, (size_t)(npos / 8));
+            const int64_t base = j * npos * factor; /* grid index of this chunk's first centre */
+            v8f mv = {0, 0, 0, 0, 0, 0, 0, 0};
+            float m = 0.0f;
+            uint32_t run = in_run[c];
+            int64_t i = 0;
+            v8f acc[TP_MAX_PHASES][TP_BLOCK / 8];
+            while (vec && i + 8 <= npos) {
+                const int64_t nv = (npos - i) / 8 < TP_BLOCK / 8 ? (npos - i) / 8 : TP_BLOCK / 8;
+                float local_peak, local_step;
+                tp_peak_and_step(w + i, 8 * nv + ntaps - 1, &local_peak, &local_step);
+                const double local = tp_reach(local_peak, local_step, bound);
+                if (local * refine_bound <= best[c] && local <= ceiling) {
+                    run = 0;
+                    i += 8 * nv;
+                    continue;
+                }
+                tp_block(w + i, taps, nph, ntaps, acc, nv);
+                if (keeping) {
+                    for (int64_t p = 0; p < nph; p++)
+                        for (int64_t k = 0; k < nv; k++)
+                            memcpy(keep + p * npos + i + 8 * k, &acc[p][k], sizeof(v8f));
+                    for (int64_t k = 0; k < nv; k++)
+                        have[i / 8 + k] = 1;
+                }
+                /* |y| of every point (abs[0]: the samples, abs[p + 1]: phase p + 1) and the
+                 * block's maximum, reduced as a tree (exact in any order) */
+                v8f abs_y[TP_MAX_PHASES + 1][TP_BLOCK / 8], kmax[TP_BLOCK / 8];
+                for (int64_t k = 0; k < nv; k++) {
+                    abs_y[0][k] = V8F_ABS(v8f_load(w + i + 8 * k + back));
+                    for (int64_t p = 0; p < nph; p++)
+                        abs_y[p + 1][k] = V8F_ABS(acc[p][k]);
+                }
+                /* near a file edge, interpolated points outside [efirst, elast] count as 0 */
+                const int64_t g0 = origin + base + i * factor;
+                if (g0 < efirst || g0 + 8 * nv * factor - 1 > elast)
+                    for (int64_t k = 0; k < nv; k++)
+                        for (int l = 0; l < 8; l++)
+                            for (int64_t p = 1; p < factor; p++) {
+                                const int64_t g = g0 + (8 * k + l) * factor + p;
+                                if (g < efirst || g > elast)
+                                    abs_y[p][k][l] = 0.0f;
+                            }
+                for (int64_t k = 0; k < nv; k++) {
+                    kmax[k] = abs_y[0][k];
+                    for (int64_t p = 0; p < nph; p++)
+                        kmax[k] = V8F_MAX(abs_y[p + 1][k], kmax[k]);
+                }
+                v8f bmv = kmax[0];
+                for (int64_t k = 1; k < nv; k++)
+                    bmv = V8F_MAX(kmax[k], bmv);
+                mv = V8F_MAX(bmv, mv);
+                const v8i hit = (v8i)(bmv > ceil_v);
+                int any = 0;
+                for (int l = 0; l < 8; l++)
+                    any |= hit[l];
+                if (!any) {
+                    run = 0;
+                    i += 8 * nv;
+                    continue;
+                }
+                for (int64_t k = 0; k < nv; k++) {
+                    v8u word = {0, 0, 0, 0, 0, 0, 0, 0};
+                    for (int64_t p = 0; p < factor; p++)
+                        word |= (v8u)(abs_y[p][k] > ceil_v) & bit[p];
+                    uint32_t above = 0; /* the 8 * factor points of these 8 positions */
+                    for (int l = 0; l < 8; l++)
+                        above |= word[l];
+                    uint32_t rising = above & ~((above << 1) | run);
+                    *overs += __builtin_popcount(rising);
+                    for (; rising && nstarts[c] < cap; rising &= rising - 1)
+                        starts[c * cap + nstarts[c]++] =
+                            base + (i + 8 * k) * factor + __builtin_ctz(rising);
+                    run = (above >> (nbits - 1)) & 1u;
+                }
+                i += 8 * nv;
+            }
+            for (; i < npos; i++) { /* positions after the last whole vector */
+                for (int64_t p = 0; p < factor; p++) {
+                    const int64_t g = origin + base + i * factor + p;
+                    const float a = p == 0 ? fabsf(w[i + back])
+                                    : (g < efirst || g > elast)
+                                        ? 0.0f
+                                        : fabsf(tp_one(w + i, taps + (p - 1) * ntaps, ntaps));
+                    m = a > m ? a : m;
+                    const uint32_t above = a > ceiling_f;
+                    if (above && !run) {
+                        ++*overs;
+                        if (nstarts[c] < cap)
+                            starts[c * cap + nstarts[c]++] = base + i * factor + p;
+                    }
+                    run = above;
+                }
+            }
+            const float vm = v8f_hmax(&mv);
+            m = vm > m ? vm : m;
+            in_run[c] = (uint8_t)run;
+            top[j * ch + c] = m;
+            if (fine_taps == NULL) {
+                if (m > best[c])
+                    best[c] = m;
+            } else if (m > 0.0f && (double)m * refine_bound > best[c]) {
+                /* the refinement, here in chunk order: the chunk's whole grid (the bits of
+                 * dc_tp_grid, rows_before positions either side of the centres) */
+                const int64_t history = iref[0], fine_steps = iref[1], ncand = iref[2];
+                const int64_t before = iref[3], lo = before * factor;
+                if (!keeping) {
+                    tp_grid_impl(win + lead - before - back, npos + 2 * before, taps, factor,
+                                 ntaps, back, grid);
+                } else {
+                    float *g = grid + lo; /* the centres */
+                    tp_grid_impl(win + lead - before - back, before, taps, factor, ntaps, back,
+                                 grid);
+                    tp_grid_impl(w + npos, before, taps, factor, ntaps, back,
+                                 g + npos * factor);
+                    const int64_t nvec = npos / 8;
+                    for (int64_t v = 0; v < nvec;) {
+                        int64_t e = v;
+                        if (have[v]) {
+                            for (; e < nvec && have[e]; e++)
+                                for (int64_t t = 8 * e; t < 8 * e + 8; t++) {
+                                    g[t * factor] = w[t + back];
+                                    for (int64_t p = 0; p < nph; p++)
+                                        g[t * factor + p + 1] = keep[p * npos + t];
+                                }
+                        } else {
+                            for (; e < nvec && !have[e]; e++)
+                                ;
+                            tp_grid_impl(w + 8 * v, 8 * (e - v), taps, factor, ntaps, back,
+                                         g + 8 * v * factor);
+                        }
+                        v = e;
+                    }
+                    if (8 * nvec < npos)
+                        tp_grid_impl(w + 8 * nvec, npos - 8 * nvec, taps, factor, ntaps, back,
+                                     g + 8 * nvec * factor);
+                }
+                double state[2] = {best[c], best_inner[c]};
+                tp_refine_impl(win, grid, lo, lo + npos * factor, factor, origin + base - lo,
+                               efirst, elast, fine_taps, ntaps, history, fine_steps, ncand,
+                               dref[0], dref[1], (double)m, refine_bound, dref[2], dref[3],
+                               dref[4], state, &best_index[c]);
+                best[c] = state[0];
+                best_inner[c] = state[1];
+                iref[4]++; /* chunk-channels refined */
+            }
+        }
+    }
+    return computed;
+}
+

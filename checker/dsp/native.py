@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 
 ENV = "DELIVERYCHECK_KERNELS"
-ABI_VERSION = 12
+ABI_VERSION = 13
 
 _P = ctypes.c_void_p
 _I = ctypes.c_int64
@@ -54,7 +54,7 @@ _SIGNATURES = {
     "dc_tp_chunks": (
         _I,
         [_P, _I, _I, _I, _I, _I, _I, _I, _I, _P, _I, _I, _I, _P, _D, _D, _D, _F]
-        + [_P, _P, _P, _P, _P, _I, _P],
+        + [_P, _P, _P, _P, _P, _I, _P, _P, _P, _P, _P, _P, _P, _P],
     ),
     "dc_tp_refine": (
         None,
@@ -402,6 +402,8 @@ def tp_chunks(
     best: np.ndarray,
     in_run: np.ndarray,
     cap: int,
+    edge: tuple[int, int, int] = (0, -(2**62), 2**62),
+    refine: TpRefine | None = None,
 ) -> tuple[int, np.ndarray, int, list[list[int]]]:
     """True-peak work on ``nchunks`` chunks of every row of ``buf`` (channels, frames)
     float32, rows contiguous (any row stride): chunk j's window is
@@ -414,7 +416,14 @@ def tp_chunks(
     ``top * refine_bound > best`` and a lower bound elsewhere (kernels.c says why).
     ``in_run`` (uint8 per row) carries over runs. Returns (chunk-rows computed, top
     (nchunks, rows) float32 with -1 where skipped, overs counted, each row's first ``cap``
-    over starts as grid indices from chunk 0's first centre)."""
+    over starts as grid indices from chunk 0's first centre).
+
+    ``edge`` (origin, first, last): the file grid index of chunk 0's first centre, and the
+    file grid indices between which interpolated points count (the edge rule of
+    truepeak_refine.py; samples always count). ``refine``: refine in place, in chunk order,
+    every chunk-channel whose top times ``refine_bound`` exceeds ``best`` (then the
+    running maximum itself, with ``refine.best_index`` and ``refine.best_inner``), as
+    dc_tp_refine does after dc_tp_grid; None: ``best`` is only raised to the tops."""
     ntaps = _need_taps(taps, factor, "tp_chunks")
     if buf.dtype != np.float32 or buf.ndim != 2 or buf.strides[1] != 4 or buf.strides[0] % 4:
         raise ValueError(
@@ -449,11 +458,17 @@ def tp_chunks(
     overs = np.zeros(1, dtype=np.int64)
     starts = np.empty((ch, max(cap, 1)), dtype=np.int64)
     nstarts = np.zeros(ch, dtype=np.int64)
+    edges = np.array(edge, dtype=np.int64)
+    if refine is None:
+        extra = (None,) * 6
+    else:
+        extra = refine.pointers(ch, hop, window, lead, positions, ntaps, factor)
     computed = _lib.dc_tp_chunks(
         _ptr(buf), ch, buf.strides[0] // 4, 0, hop, nchunks, window, lead, positions,
         _ptr(taps), factor, ntaps, back, _ptr(bound), fine_gain, refine_bound, ceiling,
         np.float32(ceiling),
         _ptr(best), _ptr(in_run), _ptr(top), _ptr(overs), _ptr(starts), cap, _ptr(nstarts),
+        _ptr(edges), *extra,
     )  # fmt: skip
     found = [starts[c, : nstarts[c]].tolist() for c in range(ch)]
     return int(computed), top, int(overs[0]), found
@@ -461,6 +476,72 @@ def tp_chunks(
 
 #: Most candidates dc_tp_refine evaluates finely per call (TP_MAX_CANDIDATES in kernels.c).
 TP_MAX_CANDIDATES = 16
+
+
+class TpRefine:
+    """The refinement arguments of :func:`tp_chunks` (those of :func:`tp_refine` that do not
+    change from chunk to chunk): ``fine_taps`` (fine steps, T) float64, the window's
+    ``history``, ``before`` grid positions computed either side of the centres (the grid
+    dc_tp_grid gives), ``candidates``, the cosines, ``fine_rate``, ``edge_s`` (the times
+    between which a point is inner); ``best_index`` (int64) and ``best_inner`` (float64), one
+    per row, are updated in place with ``best``."""
+
+    def __init__(
+        self,
+        fine_taps: np.ndarray,
+        history: int,
+        before: int,
+        candidates: int,
+        cos_refine: float,
+        cos_fine: float,
+        fine_rate: float,
+        edge_s: tuple[float, float],
+        best_index: np.ndarray,
+        best_inner: np.ndarray,
+    ) -> None:
+        self.fine_taps, self.history, self.before = fine_taps, history, before
+        self.candidates, self.best_index, self.best_inner = candidates, best_index, best_inner
+        self.dargs = np.array([cos_refine, cos_fine, fine_rate, edge_s[0], edge_s[1]])
+
+    def pointers(
+        self, ch: int, hop: int, window: int, lead: int, positions: int, ntaps: int, factor: int
+    ) -> tuple:
+        """The six trailing pointer arguments of dc_tp_chunks, after checking them."""
+        _need(self.fine_taps, np.float64, 2, "tp_chunks")
+        _need(self.best_index, np.int64, 1, "tp_chunks")
+        _need(self.best_inner, np.float64, 1, "tp_chunks")
+        steps = self.fine_taps.shape[0]
+        step = steps // factor if factor in (1, 2, 4) else 0
+        back = ntaps // 2 - 1
+        if (
+            step < 1
+            or steps > 64
+            or self.fine_taps.shape[1] != ntaps
+            or not 0 <= self.candidates <= TP_MAX_CANDIDATES
+            or self.best_index.size != ch
+            or self.best_inner.size != ch
+            or self.before < 1
+            or lead - self.before < back
+            or lead + positions + self.before + ntaps - 1 - back > window
+            or self.history < back
+            or self.history + self.before + positions - back + ntaps > window  # last fine row
+            or hop != positions
+        ):
+            raise ValueError(
+                f"native.tp_chunks: refinement with {steps}x{self.fine_taps.shape[1]} fine taps, "
+                f"factor {factor}, {self.before} positions either side from lead {lead}, "
+                f"history {self.history}, window {window}, {self.candidates} candidates "
+                "(expected every grid and fine row inside the window, hop = positions)"
+            )
+        iargs = np.array([self.history, steps, self.candidates, self.before, 0], dtype=np.int64)
+        grid = np.empty(
+            (positions + 2 * self.before) * factor + (factor - 1) * positions, np.float32
+        )
+        self.iargs, self._grid = iargs, grid  # alive for the call; iargs[4]: refined
+        return (
+            _ptr(self.fine_taps), _ptr(iargs), _ptr(self.dargs), _ptr(self.best_index),
+            _ptr(self.best_inner), _ptr(grid),
+        )  # fmt: skip
 
 
 def tp_refine(

@@ -109,7 +109,8 @@ def stem_set_read(paths: list[str], report: bool) -> None:
 
 
 def truepeak_skip(path: str, block_frames: int) -> None:
-    """True-peak chunks interpolated / seen (the skip bound's effect), printed as 'n m'."""
+    """True-peak chunk-channels interpolated / seen (the skip bound's effect) and refined,
+    the file's final chunks included, printed as 'n m r'."""
     from checker.io.audio import read_blocks
     from checker.io.layout import default_layout
     from checker.meters.base import MeasureOptions
@@ -120,7 +121,7 @@ def truepeak_skip(path: str, block_frames: int) -> None:
     for block in blocks:
         meter.feed(block)
     meter.result()
-    print(meter.computed, meter.seen)
+    print(*meter.totals)
 
 
 if __name__ == "__main__":

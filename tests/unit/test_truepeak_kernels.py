@@ -10,10 +10,16 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_array_equal
 
 from checker.dsp import native
 from checker.dsp.interp import CHUNK_FRAMES, ROW_POSITIONS, ChunkStream, refine_gain_bound
+from checker.io.audio import Block, StreamInfo
+from checker.io.layout import default_layout
+from checker.meters.base import MeasureOptions
+from checker.meters.truepeak import TruePeakMeter
 from checker.meters.truepeak_skip import _design
 
 needs_kernels = pytest.mark.skipif(
@@ -131,3 +137,108 @@ def test_chunk_runs_are_sequences_of_the_defined_windows(sizes):
     # every chunk whose window and holdback have arrived, once, in order
     ready = (at + lead - window - holdback) // CHUNK_FRAMES + 1
     assert seen == list(range(ready))
+
+
+# ------------------------------------------------- the fused refinement (dc_tp_chunks)
+def _meter_values(x: np.ndarray, rate: int, block: int, *, fused: bool, skip: bool = True):
+    """TruePeakMeter values and chunk-channels refined, with the refinement in the block
+    routine (fused) or per chunk-channel from Python (dc_tp_grid + dc_tp_refine)."""
+    info = StreamInfo("x.wav", "WAV", "FLOAT", rate, x.shape[1], x.shape[0])
+    options = MeasureOptions(true_peak_ceiling_dbtp=-3.0, max_positions=20)
+    m = TruePeakMeter(info, default_layout(x.shape[1]), options, skip=skip)
+    m.fused = fused and skip
+    for i in range(0, x.shape[0], block):
+        m.feed(Block(x=x[i : i + block], raw=None, start=i))
+    return m.result().to_dict(), m.totals
+
+
+def _short_signal(seed: int, frames: int, channels: int) -> np.ndarray:
+    """Bursts of band-limited noise and steady tones at random levels, edges included."""
+    rng = np.random.default_rng(seed)
+    x = np.zeros((frames, channels))
+    for _ in range(int(rng.integers(1, 6))):
+        start = int(rng.integers(0, max(frames - 1, 1)))
+        n = int(rng.integers(1, max(frames - start, 2)))
+        level = 10 ** rng.uniform(-2.5, 0.1)
+        if rng.random() < 0.5:
+            w = np.cumsum(rng.standard_normal((n, channels)), axis=0)
+            w -= w.mean(axis=0)
+            w /= np.abs(w).max() + 1e-12
+        else:
+            f = rng.uniform(0.01, 0.49)
+            t = np.arange(n)[:, None]
+            w = np.sin(2 * np.pi * f * t + rng.uniform(0, 2 * np.pi, channels))
+        x[start : start + n] += level * w[: frames - start]
+    return x
+
+
+@needs_kernels
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    seed=st.integers(0, 2**31),
+    frames=st.sampled_from([1, 40, 300, 4095, 4096, 4097, 9000, 12_288, 30_000, 48_000]),
+    channels=st.sampled_from([1, 2, 6]),
+    rate=st.sampled_from([44_100, 48_000, 96_000, 192_000]),
+    block=st.sampled_from([777, 4096, 48_000]),
+)
+def test_fused_refinement_gives_the_values_of_the_per_chunk_path(
+    seed, frames, channels, rate, block
+):
+    # The block routine refines in chunk order against the running maximum itself (not a
+    # lower bound), so it skips at least as much; the values must be those of the per-chunk
+    # path and of the meter without any skipping, bit for bit (the skip bound is exact:
+    # docs/standards.md#true-peak), file edges and over counts included.
+    x = _short_signal(seed, frames, channels)
+    fused, fused_counts = _meter_values(x, rate, block, fused=True)
+    per_chunk, per_chunk_counts = _meter_values(x, rate, block, fused=False)
+    everything, _ = _meter_values(x, rate, block, fused=False, skip=False)
+    assert fused == per_chunk == everything
+    assert fused_counts[0] <= per_chunk_counts[0]  # computed: never more than before
+
+
+@needs_kernels
+def test_fused_refinement_runs_in_the_block_routine():
+    # A one-second clip: the fused path refines inside dc_tp_chunks (no Python refinement
+    # call), and refines chunk-channels where the maximum can still rise.
+    x = _short_signal(7, 48_000, 2)
+    values, (computed, seen, refined) = _meter_values(x, 48_000, 48_000, fused=True)
+    assert seen == 2 * 12 and 0 < refined <= computed <= seen
+    assert values["true_peak_dbtp"] > -60.0
+
+
+@needs_kernels
+def test_tp_chunks_refuses_refinement_arguments_outside_the_window():
+    d = _design(4)
+    x = np.zeros((1, d.interp.window_frames), np.float32)
+    refine = native.TpRefine(
+        d.fine_taps, d.interp.history, ROW_POSITIONS + 40, 4, 0.9, 0.99, 1.5e6, (0.005, 1.0),
+        np.full(1, -1, np.int64), np.zeros(1),
+    )  # fmt: skip
+    with pytest.raises(ValueError, match="refinement"):
+        native.tp_chunks(
+            x, CHUNK_FRAMES, 1, d.interp.window_frames, d.interp.history + ROW_POSITIONS,
+            CHUNK_FRAMES, d.phase_rows, 4, d.bound, 1.007, 1.08, CEILING, np.zeros(1),
+            np.zeros(1, np.uint8), 10, refine=refine,
+        )  # fmt: skip
+
+
+def test_state_copy_is_a_deep_copy_of_every_field():
+    # result() copies the meter's state (_State.copy, in place of copy.deepcopy): every
+    # field equal to deepcopy's, and no array or list shared with the original.
+    import copy
+    import dataclasses
+
+    from checker.meters.truepeak_refine import _State
+
+    st = _State(np.array([0.5, 0.25]), np.array([3, 9]), np.array([0.4, 0.2]), np.ones(2, bool))
+    st.overs, st.over_index, st.refined, st.ranges = 2, [5, 8], [(0, 1, 0.5, 3)], [(0, 1, 0.5)]
+    st.local, st.local_index, st.last_quiet = np.array([0.1, 0.2]), np.array([1, 2]), False
+    mine, reference = st.copy(), copy.deepcopy(st)
+    for f in dataclasses.fields(_State):
+        a, b, original = getattr(mine, f.name), getattr(reference, f.name), getattr(st, f.name)
+        if isinstance(a, np.ndarray):
+            assert_array_equal(a, b)
+            assert a.dtype == b.dtype and not np.shares_memory(a, original)
+        else:
+            assert a == b
+            assert not isinstance(a, list) or a is not original
