@@ -114,7 +114,7 @@ from typing import Any
 
 import numpy as np
 
-from checker.dsp import native
+from checker.dsp import native, native_tp
 from checker.dsp.interp import (
     CHUNK_FRAMES,
     ROW_POSITIONS,
@@ -278,12 +278,12 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
         last = 2**62 if last_frame is None else (last_frame - half) * self.factor + self.factor - 1
         origin = chunks.first * CHUNK_FRAMES * self.factor  # grid index of the first centre
         end_s = math.inf if last_frame is None else last_frame / self.rate_hz - EDGE_S
-        refine = native.TpRefine(
+        refine = native_tp.TpRefine(
             self.fine_taps, self.interp.history, ROW_POSITIONS, FINE_CANDIDATES,
             self.refine_cos, self.fine_cos, self.fine_rate_hz, (EDGE_S, end_s),
             st.best_index, st.best_inner,
         )  # fmt: skip
-        computed, _, overs, starts = native.tp_chunks(
+        computed, _, overs, starts = native_tp.tp_chunks(
             chunks.span(), chunks.step, count, chunks.window,
             self.interp.history + ROW_POSITIONS, CHUNK_FRAMES, self.phase_rows, self.factor,
             self.bound, self.fine_gain, self.refine_bound, self.ceiling_amp, st.best,
@@ -306,7 +306,7 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
         count = len(chunks)
         cap = max(self.max_positions - len(st.over_index), 0)
         in_run = st.in_run.astype(np.uint8)
-        computed, top, overs, starts = native.tp_chunks(
+        computed, top, overs, starts = native_tp.tp_chunks(
             chunks.span(), chunks.step, count, chunks.window,
             self.interp.history + ROW_POSITIONS, CHUNK_FRAMES, self.phase_rows, self.factor,
             self.bound, self.fine_gain, self.refine_bound, self.ceiling_amp, st.best.copy(),
@@ -341,7 +341,7 @@ class TruePeakMeter(TruePeakRefinement, TruePeakSkip, TruePeakSpanRecords):
         back = self.interp_taps // 2 - 1
         lo = self.interp.history - back
         w = window[lo : lo + self.interp.positions + self.interp_taps - 1]
-        return native.tp_grid(w, self.interp.positions, self.phase_rows, self.factor)
+        return native_tp.tp_grid(w, self.interp.positions, self.phase_rows, self.factor)
 
     def _chunk(self, st: _State, j: int, window: np.ndarray, last_frame: int | None) -> None:
         """Process chunk j (window: channels x frames). Centres: all its grid points, or

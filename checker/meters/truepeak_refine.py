@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from checker.dsp import native
+from checker.dsp import native_tp
 from checker.dsp.interp import CHUNK_FRAMES, ROW_POSITIONS, refine_peaks
 
 #: Maxima closer than this to either end of the file are flagged as at the edge...
@@ -134,7 +134,7 @@ class TruePeakRefinement:
         own = st.refined is not None
         state = np.array([0.0 if own else st.best[c], st.best_inner[c]])
         index = np.full(1, -1, dtype=np.int64) if own else st.best_index[c : c + 1].copy()
-        native.tp_refine(
+        native_tp.tp_refine(
             win, y, lo, hi, self.factor, base, limits, self.fine_taps, self.interp.history,
             FINE_CANDIDATES, self.refine_cos, self.fine_cos, top, self.refine_bound,
             self.fine_rate_hz, (EDGE_S, end_s), state, index,

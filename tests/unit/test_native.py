@@ -21,7 +21,7 @@ from meterkit import run_meter
 from numpy.testing import assert_allclose, assert_array_equal
 
 from checker.analysis.onepass import measure
-from checker.dsp import native
+from checker.dsp import native, native_tp
 from checker.dsp.iir import sosfilt_rows
 from checker.dsp.interp import (
     CHUNK_FRAMES,
@@ -366,12 +366,12 @@ def test_tp_grid_matches_numpy_interpolator_at_any_alignment(factor):
     lo = interp.history - (taps // 2 - 1)
     w = window[lo : lo + 4112 + taps - 1]
     rows = np.ascontiguousarray(phases.T[1:], dtype=np.float32)
-    got = native.tp_grid(np.ascontiguousarray(w), 4112, rows, factor)
+    got = native_tp.tp_grid(np.ascontiguousarray(w), 4112, rows, factor)
     assert_allclose(got, expected, rtol=0, atol=1e-5)
     direct = oversample(w.astype(np.float64), phases)[(taps // 2 - 1) * factor :][: got.size]
     assert_allclose(got, direct, rtol=0, atol=1e-5)
     for shift in range(1, 8):  # the same bits wherever the buffer starts
-        assert_array_equal(native.tp_grid(_aligned_copy(w, shift), 4112, rows, factor), got)
+        assert_array_equal(native_tp.tp_grid(_aligned_copy(w, shift), 4112, rows, factor), got)
 
 
 def _tp_result(x: np.ndarray, rate: int, block: int, **kw) -> dict:
@@ -412,7 +412,7 @@ def test_tp_chunks_same_bits_at_any_alignment():
     bound = np.array([3.1, 1.0, 1.6, 1e-4])
 
     def run(buf: np.ndarray):
-        return native.tp_chunks(
+        return native_tp.tp_chunks(
             buf, 4096, 4, 4176, 48, 4096, rows, 4, bound, 1.007, 1.08, 0.891,
             np.zeros(2), np.zeros(2, np.uint8), 10,
         )  # fmt: skip
@@ -472,17 +472,17 @@ def test_tp_refine_matches_its_numpy_twin(factor, rate):
 def test_tp_wrappers_refuse_wrong_buffers():
     rows = np.zeros((3, 64), dtype=np.float32)
     with pytest.raises(ValueError, match="expected 63"):
-        native.tp_grid(np.zeros(10, np.float32), 0, rows, 4)  # window of the wrong length
+        native_tp.tp_grid(np.zeros(10, np.float32), 0, rows, 4)  # window of the wrong length
     with pytest.raises(ValueError, match="factor - 1"):
-        native.tp_grid(np.zeros(63, np.float32), 0, rows, 2)
+        native_tp.tp_grid(np.zeros(63, np.float32), 0, rows, 2)
     with pytest.raises(ValueError, match="inside the buffers"):  # centres past the grid
-        native.tp_refine(
+        native_tp.tp_refine(
             np.zeros(4176, np.float32), np.zeros(100, np.float32), 32, 200, 4, 0, (0, 10),
             np.zeros((32, 64)), 40, 4, 1.0, 1.0, 1.0, 1.1, 1e6, (0.0, 1.0),
             np.zeros(2), np.zeros(1, np.int64),
         )  # fmt: skip
     with pytest.raises(ValueError, match="inside the buffer"):
-        native.tp_chunks(
+        native_tp.tp_chunks(
             np.zeros((2, 100), np.float32), 4096, 1, 4176, 48, 4096, rows, 4,
             np.zeros(4), 1.0, 1.08, 1.0, np.zeros(2), np.zeros(2, np.uint8), 10,
         )  # fmt: skip

@@ -14,7 +14,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_array_equal
 
-from checker.dsp import native
+from checker.dsp import native, native_tp
 from checker.dsp.interp import CHUNK_FRAMES, ROW_POSITIONS, ChunkStream, refine_gain_bound
 from checker.io.audio import Block, StreamInfo
 from checker.io.layout import default_layout
@@ -36,7 +36,7 @@ def _chunks(x: np.ndarray, factor: int, refine_bound: float, best: float, cap: i
     n = (x.shape[1] - window) // CHUNK_FRAMES + 1
     best_io = np.full(x.shape[0], best)
     in_run = np.zeros(x.shape[0], np.uint8)
-    computed, top, overs, starts = native.tp_chunks(
+    computed, top, overs, starts = native_tp.tp_chunks(
         x, CHUNK_FRAMES, n, window, d.interp.history + ROW_POSITIONS, CHUNK_FRAMES,
         d.phase_rows, factor, d.bound, 1.007, refine_bound, CEILING, best_io, in_run, cap,
     )  # fmt: skip
@@ -50,7 +50,7 @@ def _grid_top(x: np.ndarray, factor: int, j: int) -> float:
     lead = d.interp.history + ROW_POSITIONS
     w = x[j * CHUNK_FRAMES + lead - (taps // 2 - 1) :][: CHUNK_FRAMES + taps - 1]
     return float(
-        np.abs(native.tp_grid(np.ascontiguousarray(w), CHUNK_FRAMES, d.phase_rows, factor)).max()
+        np.abs(native_tp.tp_grid(np.ascontiguousarray(w), CHUNK_FRAMES, d.phase_rows, factor)).max()
     )
 
 
@@ -210,12 +210,12 @@ def test_fused_refinement_runs_in_the_block_routine():
 def test_tp_chunks_refuses_refinement_arguments_outside_the_window():
     d = _design(4)
     x = np.zeros((1, d.interp.window_frames), np.float32)
-    refine = native.TpRefine(
+    refine = native_tp.TpRefine(
         d.fine_taps, d.interp.history, ROW_POSITIONS + 40, 4, 0.9, 0.99, 1.5e6, (0.005, 1.0),
         np.full(1, -1, np.int64), np.zeros(1),
     )  # fmt: skip
     with pytest.raises(ValueError, match="refinement"):
-        native.tp_chunks(
+        native_tp.tp_chunks(
             x, CHUNK_FRAMES, 1, d.interp.window_frames, d.interp.history + ROW_POSITIONS,
             CHUNK_FRAMES, d.phase_rows, 4, d.bound, 1.007, 1.08, CEILING, np.zeros(1),
             np.zeros(1, np.uint8), 10, refine=refine,
