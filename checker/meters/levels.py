@@ -93,6 +93,19 @@ def trailing_zero_bits(code: int) -> int:
     return (v & -v).bit_length() - 1
 
 
+def first_peak(row: np.ndarray) -> int:
+    """Index of the first sample of largest magnitude, as ``np.abs(row).argmax()`` gives it,
+    without the copy: the largest magnitude is the maximum or minus the minimum, and where
+    both are equal the earlier of their first positions."""
+    i, j = int(row.argmax()), int(row.argmin())
+    top, bottom = row[i], -row[j]
+    if top > bottom:
+        return i
+    if bottom > top:
+        return j
+    return min(i, j)
+
+
 def _zero_frames(xt: np.ndarray) -> np.ndarray:
     """(frames,) True where every channel is digital zero."""
     if xt.shape[0] == 1:
@@ -216,9 +229,9 @@ class LevelsMeter(LevelsNoiseFloor):
         m = np.maximum(hi, -lo)
         better = m > self.peak
         if better.any():
-            idx = np.abs(xt).argmax(axis=1)
             self.peak = np.where(better, m, self.peak)
-            self.peak_frame = np.where(better, idx + block.start, self.peak_frame)
+            for c in np.flatnonzero(better):
+                self.peak_frame[c] = block.start + first_peak(xt[c])
         if rt is not None:
             if int_sums is None:
                 int_sums = rt.sum(axis=1, dtype=np.int64)

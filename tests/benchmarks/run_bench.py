@@ -371,6 +371,8 @@ def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> No
         "one measure()": [PY, w, "measureall", str(joined)],
         "tiny measure()": [PY, w, "measureall", str(tiny[0].parent)],
         "tiny one measure()": [PY, w, "measureall", str(tiny[0])],
+        "tiny files": check_cmd([tiny[0].parent], 1, out / "tiny"),
+        "tiny one": check_cmd([tiny[0]], 1, out / "tiny-one"),
     }
     runs: dict[str, list[Run]] = {k: [] for k in cmds}
     for _ in range(reps):
@@ -382,6 +384,7 @@ def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> No
         ("files", "one", "check --jobs 1"),
         ("files measure()", "one measure()", "measure() in one process"),
         ("tiny measure()", "tiny one measure()", "measure(), 10 ms files"),
+        ("tiny files", "tiny one", "check --jobs 1, 10 ms files"),
     ):
         f, o = medians(runs[many]), medians(runs[one])
         wall = statistics.median(
@@ -397,8 +400,48 @@ def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> No
         )
     print(
         "  (target: check --jobs 1 at most 5 ms per file, wall, as the issue measured it; the 10 ms"
-        " row is measure()'s fixed cost per file: each of those files against one of them)"
+        " rows are the fixed cost per file: each of those files against one of them)"
     )
+    meter_split(shorts, joined, reps)
+
+
+def meter_split(shorts: list[Path], joined: Path, reps: int) -> None:
+    """Where the one-second files' extra time goes: measure() of every file and of the joined
+    file in one process each, each meter's calls timed (workloads.py meters; medians of
+    ``reps`` runs of each, alternating)."""
+    w = str(HERE / "workloads.py")
+    env = {
+        k: v for k, v in os.environ.items() if k not in ("OPENBLAS_CORETYPE", "OPENBLAS_L2_SIZE")
+    }
+    runs: dict[str, list[dict]] = {"files": [], "one": []}
+    for _ in range(reps):
+        for name, target in (("files", shorts[0].parent), ("one", joined)):
+            out = subprocess.run(
+                [PY, w, "meters", str(target)], capture_output=True, text=True, check=True, env=env
+            )
+            runs[name].append(json.loads(out.stdout))
+    n = len(shorts)
+    print(
+        f"  where it goes (measure() in one process, each meter's calls timed, medians of {reps}):"
+    )
+    print(
+        f"    {'meter':<16} {'per file':>9} {'per second of the one file':>27} {'difference':>11}"
+    )
+    names = list(runs["files"][0]["meters_s"])
+
+    def ms(r: dict, name: str) -> float:  # per file, or per second of the one file
+        return 1000 * (r["total_s"] if name == "total" else r["meters_s"].get(name, 0.0)) / n
+
+    for name in [*names, "total"]:
+        f = statistics.median(ms(r, name) for r in runs["files"])
+        o = statistics.median(ms(r, name) for r in runs["one"])
+        print(f"    {name:<16} {f:7.2f} ms {o:24.2f} ms {f - o:8.2f} ms")
+    for name in ("files", "one"):
+        computed, seen, refined = runs[name][0]["truepeak"]
+        print(
+            f"    true peak, {name}: {computed} of {seen} chunk-channels interpolated, "
+            f"{refined} refined"
+        )
 
 
 def linked_batch(files: list[Path], n: int, folder: Path) -> list[Path]:

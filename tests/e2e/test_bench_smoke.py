@@ -37,5 +37,10 @@ def test_bench_runs_on_tiny_files(tmp_path):
     assert "6 ch" in out and "96000 Hz" in out and "FLAC" in out
     assert "throughput ratio jobs2/jobs1" in out and "under load / unloaded" in out
     assert "per-file overhead" in out and "measure() in one process" in out
-    assert "measure(), 10 ms files" in out
+    assert "measure(), 10 ms files" in out and "check --jobs 1, 10 ms files" in out
+    # the per-meter split of the short files' extra time, with every meter and the total
+    assert "where it goes" in out
+    for name in ("TruePeakMeter", "BandwidthMeter", "BlockWalk", "other", "total"):
+        assert f"    {name} " in out
+    assert "chunk-channels interpolated" in out
     assert "progress within a file" in out and "% per block" in out

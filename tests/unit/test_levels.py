@@ -16,7 +16,7 @@ from checker.analysis.onepass import measure
 from checker.io.audio import Block, read_blocks
 from checker.io.layout import default_layout
 from checker.meters.base import MeasureOptions
-from checker.meters.levels import LevelsMeter
+from checker.meters.levels import LevelsMeter, first_peak
 from checker.model.units import quantization_floor_dbfs
 
 RATE = 8_000
@@ -448,3 +448,15 @@ def test_measure_on_written_files(tmp_path):
     assert any(f.startswith("NaN samples: 5, first at 0.250 s") for f in m.findings)
     assert no_nan(m.to_dict())
     assert_allclose(m.sample_peak_dbfs, 20 * np.log10(0.5), rtol=0, atol=1e-6)
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.lists(st.sampled_from([-1.0, -0.5, -0.0, 0.0, 0.25, 0.5, 1.0]), min_size=1, max_size=40)
+)
+def test_first_peak_is_the_first_largest_magnitude(values):
+    # Arithmetic identity: the sample peak's position is np.abs(row).argmax() (the first
+    # sample of largest magnitude); first_peak finds it from argmax and argmin without a
+    # copy. Few distinct values, so ties between +m and -m and repeated maxima are common.
+    row = np.array(values)
+    assert first_peak(row) == int(np.abs(row).argmax())
