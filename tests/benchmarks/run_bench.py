@@ -183,6 +183,14 @@ def commands(path: Path) -> dict[str, list[str]]:
     }
 
 
+def paired(runs: dict, num: object, den: object, attr: str = "cpu_s") -> str:
+    """The ratio num / den (CPU, or ``attr``) of each repetition (the two ran close together,
+    so a slow spell of a shared machine weighs on both): median and range, as text."""
+    pairs = zip(runs[num], runs[den], strict=True)
+    each = sorted(getattr(n, attr) / getattr(d, attr) for n, d in pairs)
+    return f"per repetition: median {statistics.median(each):.2f}, {each[0]:.2f}-{each[-1]:.2f}"
+
+
 def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, Run]:
     info = sf.info(str(path))
     cmds = {k: v for k, v in commands(path).items() if k not in skip}
@@ -215,7 +223,10 @@ def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, Run]:
     b, b1 = result["b deliverycheck"], result.get("b1 one thread")
     ratios = [f"b/a = {b.wall_s / result['a decode'].wall_s:.2f} (wall)"]
     if b1:
-        ratios.append(f"b1/a = {b1.cpu_s / a_cpu:.2f} (CPU, one thread each; target <= 2.5)")
+        ratios.append(
+            f"b1/a = {b1.cpu_s / a_cpu:.2f} (CPU, one thread each; target <= 2.5; "
+            f"{paired(runs, 'b1 one thread', 'a decode')})"
+        )
     if "b0 numpy kernels" in result:
         ratios.append(f"b0/a = {result['b0 numpy kernels'].cpu_s / a_cpu:.2f} (CPU)")
     if "s speech gate" in result:
@@ -230,7 +241,10 @@ def bench_file(path: Path, reps: int, skip: set[str]) -> dict[str, Run]:
         d = result["d pyebur128"]
         ratios.append(f"d/b = {d.wall_s / b.wall_s:.2f} (wall)")
         if b1:
-            ratios.append(f"d/b1 = {d.cpu_s / b1.cpu_s:.2f} (CPU, one thread each; target >= 4)")
+            ratios.append(
+                f"d/b1 = {d.cpu_s / b1.cpu_s:.2f} (CPU, one thread each; target >= 4; "
+                f"{paired(runs, 'd pyebur128', 'b1 one thread')})"
+            )
     if "d1 pyebur128 I" in result and b1:
         ratios.append(f"d1/b1 = {result['d1 pyebur128 I'].cpu_s / b1.cpu_s:.2f} (CPU)")
     print("  ratios: " + "; ".join(ratios))
@@ -347,7 +361,7 @@ def bench_jobs(files: list[Path], reps: int, out: Path, spinner: bool = True) ->
         print(f"  --jobs {jobs} {load:<24} wall {r.wall_s:7.2f} s, CPU {r.cpu_s:7.2f} s")
     print(
         f"  throughput ratio jobs2/jobs1 = {m[1, False].wall_s / m[2, False].wall_s:.2f}"
-        " (target >= 1.8 on 2 cores)"
+        f" (target >= 1.8 on 2 cores; {paired(walls, (1, False), (2, False), 'wall_s')})"
     )
     if not spinner:
         return
