@@ -243,16 +243,20 @@ def sorted_results(results: Iterable[FileResult]) -> list[FileResult]:
     return sorted(results, key=lambda r: (STATUS_ORDER.get(r.status, -1), r.path))
 
 
+def own_channels(result: FileResult) -> int:
+    """The most items of this file's per-channel lists (at least 1)."""
+    most = 1
+    if result.measurement is not None:
+        for key in PER_CHANNEL_KEYS:
+            value = result.measurement.values.get(key)
+            if isinstance(value, (list, tuple)):
+                most = max(most, len(value))
+    return most
+
+
 def channel_count(results: Sequence[FileResult]) -> int:
     """Columns per per-channel key: the most channels any file's lists hold (at least 1)."""
-    most = 1
-    for r in results:
-        if r.measurement is not None:
-            for key in PER_CHANNEL_KEYS:
-                value = r.measurement.values.get(key)
-                if isinstance(value, (list, tuple)):
-                    most = max(most, len(value))
-    return most
+    return max((own_channels(r) for r in results), default=1)
 
 
 def file_columns(results: Sequence[FileResult]) -> list[str]:

@@ -27,23 +27,11 @@ import re
 from typing import Any
 
 from checker.model.results import FileResult, RunInfo
-from checker.report.cells import PER_CHANNEL_KEYS
-from checker.report.frame import csv_file_row
+from checker.report.frame import csv_file_row, own_channels
 from checker.report.htmldata import detail_json, profile_limits_for_graph
 from checker.report.jsonl import result_line
 
 _CHANNEL_LIKE = re.compile(r"_ch\d+(_|$)", re.MULTILINE)  # searched in the keys, one a line
-
-
-def own_channels(result: FileResult) -> int:
-    """The most items of this file's per-channel lists (at least 1), as channel_count counts."""
-    most = 1
-    if result.measurement is not None:
-        for key in PER_CHANNEL_KEYS:
-            value = result.measurement.values.get(key)
-            if isinstance(value, (list, tuple)):
-                most = max(most, len(value))
-    return most
 
 
 def _context(run: RunInfo) -> tuple[Any, str]:
