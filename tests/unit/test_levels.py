@@ -451,9 +451,7 @@ def test_measure_on_written_files(tmp_path):
 
 
 @settings(max_examples=300, deadline=None)
-@given(
-    st.lists(st.sampled_from([-1.0, -0.5, -0.0, 0.0, 0.25, 0.5, 1.0]), min_size=1, max_size=40)
-)
+@given(st.lists(st.sampled_from([-1.0, -0.5, -0.0, 0.0, 0.25, 0.5, 1.0]), min_size=1, max_size=40))
 def test_first_peak_is_the_first_largest_magnitude(values):
     # Arithmetic identity: the sample peak's position is np.abs(row).argmax() (the first
     # sample of largest magnitude); first_peak finds it from argmax and argmin without a
