@@ -37,7 +37,7 @@ def _escape_control(match: re.Match) -> str:
 
 def readable(text: str) -> str:
     """``text`` with undecodable bytes (surrogate escapes) shown as ``\\xNN``; see module doc."""
-    return _SURROGATE.sub(_escape_surrogate, text) if _SURROGATE.search(text) else text
+    return _SURROGATE.sub(_escape_surrogate, text) if has_surrogates(text) else text
 
 
 def has_surrogates(text: str) -> bool:

@@ -26,7 +26,7 @@ from checker.model.verdict import STATUS_ORDER
 from checker.report.chart import batch_chart
 from checker.report.fixes import fixes_html
 from checker.report.frame import list_text, sorted_results
-from checker.report.htmldata import detail_json, embed_json, profile_limits_for_graph
+from checker.report.htmldata import as_number, detail_json, embed_json, profile_limits_for_graph
 from checker.report.judged import SET_SUM_CELLS, cell_values, judged_as_dual_mono
 
 #: Status word, symbol and the sentence a screen reader hears. Colour is never the only cue.
@@ -75,14 +75,8 @@ def _csp_hash(text: str) -> str:
     return "'sha256-" + base64.b64encode(digest).decode("ascii") + "'"
 
 
-def _num(value: Any) -> float | None:
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return None
-    return None if math.isnan(value) else float(value)
-
-
 def fmt_level(value: Any, decimals: int = 1, signed: bool = False) -> str:
-    x = _num(value)
+    x = as_number(value)
     if x is None:
         return ""
     if math.isinf(x):
@@ -94,7 +88,7 @@ def fmt_level(value: Any, decimals: int = 1, signed: bool = False) -> str:
 
 
 def fmt_duration(value: Any) -> str:
-    x = _num(value)
+    x = as_number(value)
     if x is None or not math.isfinite(x):
         return ""
     minutes, seconds = divmod(x, 60.0)
@@ -103,7 +97,7 @@ def fmt_duration(value: Any) -> str:
 
 def fmt_format(values: dict[str, Any]) -> str:
     parts = []
-    rate = _num(values.get("sample_rate_hz"))
+    rate = as_number(values.get("sample_rate_hz"))
     if rate:
         parts.append(f"{rate / 1000:g} kHz")
     subtype = values.get("subtype")
@@ -120,7 +114,7 @@ def fmt_format(values: dict[str, Any]) -> str:
 
 def _sort_key(value: Any) -> Any:
     """JSON sort key: numbers stay numbers, -inf becomes "-inf", missing becomes null."""
-    x = _num(value)
+    x = as_number(value)
     if x is None:
         return None
     if math.isinf(x):

@@ -184,8 +184,8 @@ def file_detail(result: FileResult, profile: dict[str, float | None]) -> dict[st
     return detail
 
 
-def _number(value: Any) -> float | None:
-    """A number as a float (infinities kept), else None (html.py's _num)."""
+def as_number(value: Any) -> float | None:
+    """A number as a float (infinities kept), else None (NaN, bools, text)."""
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         return None
     return None if math.isnan(value) else float(value)
@@ -196,7 +196,7 @@ def detail_json(r: FileResult, profile: dict[str, float | None], mono_loudness: 
     detail = file_detail(r, profile)
     plain = r.measurement.values if r.measurement else {}
     if r.kind != "set" and judged_as_dual_mono(plain, mono_loudness):
-        judged, one = plain["integrated_dual_mono_lufs"], _number(plain.get("integrated_lufs"))
+        judged, one = plain["integrated_dual_mono_lufs"], as_number(plain.get("integrated_lufs"))
         detail["judged"] = {
             "judged_lufs": judged,
             "plain_lufs": one,
