@@ -380,6 +380,7 @@ def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> No
     tiny = make_tiny(shorts[0].parent.with_name(shorts[0].parent.name + "-tiny"), len(shorts))
     cmds = {
         "files": check_cmd([shorts[0].parent], 1, out / "files"),
+        "files jobs 2": check_cmd([shorts[0].parent], 2, out / "files-2"),
         "one": check_cmd([joined], 1, out / "one"),
         "files measure()": [PY, w, "measureall", str(shorts[0].parent)],
         "one measure()": [PY, w, "measureall", str(joined)],
@@ -421,6 +422,16 @@ def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> No
         f" files against one of them): {per_file['tiny files']:.1f} ms in a batch,"
         f" {ok[per_file['tiny files'] <= 5.0]} against the same 5 ms. What the one-second files add"
         " beyond it is their analysis (split below); README, Speed, says why it stays."
+    )
+    one, two = medians(runs["files"]), medians(runs["files jobs 2"])
+    ratio = statistics.median(
+        a.wall_s / b.wall_s for a, b in zip(runs["files"], runs["files jobs 2"], strict=True)
+    )
+    print(
+        f"  the {n} one-second files with --jobs 2 (2 workers): wall {two.wall_s:6.2f} s, CPU"
+        f" {two.cpu_s:6.2f} s; --jobs 1 / --jobs 2 wall {ratio:.2f} (per repetition, median; the"
+        " start-up and the reports do not divide, and the parent's work per file, its store row"
+        " and report pieces, shares the two cores with the workers)"
     )
     meter_split(shorts, joined, reps)
 
