@@ -12,7 +12,7 @@ from checker.model.errors import EXIT_OK, EXIT_UNCHECKED, CheckerError
 from checker.model.names import for_terminal, readable_data
 from checker.run import live
 from checker.run.progress import Progress
-from checker.run.workers import probe_duration_s
+from checker.run.workerproc import probe_duration_s
 
 # The engine (checker.analysis.onepass, numpy, soundfile) is imported in run(): building the
 # parser, for --help or another command, must not load it (README, Speed: start-up).

@@ -12,14 +12,8 @@ from collections.abc import Callable, Iterator
 from checker.meters.base import MeasureOptions
 from checker.model.errors import UsageError
 from checker.run import live
-from checker.run.workers import (
-    DEFAULT_MEMORY_MB,
-    MIB,
-    Outcome,
-    Task,
-    longest_first,
-    measure_task,
-)
+from checker.run.workerproc import MIB, Outcome, measure_task
+from checker.run.workers import DEFAULT_MEMORY_MB, Task, longest_first
 
 
 def parse_cluster(address: str) -> tuple[str, int | None]:

@@ -57,7 +57,7 @@ def stem_set_key(stem_set, options_key: str) -> str | None:
 def longest_declared_s(stem_set) -> float | None:
     """The longest length the headers of a set's stems and mix declare (the lockstep read
     runs that long), or None when none declares one."""
-    from checker.run.workers import probe_duration_s
+    from checker.run.workerproc import probe_duration_s
 
     paths = list(stem_set.stem_paths) + ([stem_set.mix_path] if stem_set.mix_path else [])
     lengths = [s for s in map(probe_duration_s, paths) if s is not None]

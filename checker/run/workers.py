@@ -13,8 +13,15 @@ limit is killed and replaced, and only that file becomes an error row. Each
 worker caps its own address space (RLIMIT_AS) so a runaway file ends in a
 MemoryError row instead of swapping the machine.
 
-Workers never write anything; the parent alone writes the store.
-The Dask pool (same tasks and outcomes) is in checker/run/daskpool.py.
+A worker that exits while starting, before it says "ready" (it imported a user's
+unguarded script again, or the engine cannot load), is no file's fault: its file goes
+back to the queue, and once more workers have failed so than the pool holds, every file
+left becomes an error row that says why (checker/run/workerstart.py) instead of a
+"died while measuring" row and a new worker for each.
+
+Workers never write anything; the parent alone writes the store. What runs inside a
+worker (its loop, measuring one file) is checker/run/workerproc.py; the Dask pool
+(same tasks and outcomes) is in checker/run/daskpool.py.
 """
 
 from __future__ import annotations
@@ -23,23 +30,20 @@ import contextlib
 import functools
 import math
 import os
-import signal
-import sys
 import time
 from collections import deque
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from checker.dsp.heap import keep_freed_memory
-from checker.dsp.threads import claim_process
-from checker.model.errors import CheckerError, UsageError
+from checker.model.errors import UsageError
 from checker.run import live
+from checker.run.workerproc import Outcome, worker_main
+from checker.run.workerstart import exit_text, start_failure
 
 if TYPE_CHECKING:  # annotations only: importing this module must not load numpy (see
     from checker.meters.base import MeasureOptions  # start_worker_server)
 
-MIB = 1024 * 1024
 #: Default per-worker address-space ceiling (virtual memory, includes libraries).
 DEFAULT_MEMORY_MB = 4096
 #: Default per-file time limit: this much plus DEFAULT_TIME_PER_AUDIO_S per second of audio.
@@ -56,9 +60,6 @@ class Task:
     index: int  # position in the batch (stable id)
     path: str
     size_bytes: int = 0
-
-
-Outcome = tuple
 
 
 def time_limit_s(task: Task, duration_s: float | None, fixed_s: float | None = None) -> float:
@@ -87,24 +88,6 @@ def worker_measure_fn(workers: int, cores: int) -> Callable:
     return functools.partial(measure, read_ahead=True) if cores >= 2 * workers else measure
 
 
-def measure_task(
-    path: str, options: MeasureOptions, measure_fn: Callable, on_frames: Callable | None = None
-) -> Outcome:
-    """Measure one file; never raises. Runs in a worker (process pool or Dask).
-    ``on_frames``: passed to a ``measure_fn`` that takes it (checker.run.live)."""
-    try:
-        if on_frames is not None:
-            return ("ok", measure_fn(path, options, on_frames=on_frames))
-        return ("ok", measure_fn(path, options))
-    except CheckerError as exc:
-        return ("error", str(exc), False)
-    except MemoryError:
-        return ("error", f"{path}: ran out of memory while measuring (worker memory ceiling)", True)
-    except Exception as exc:  # a bug or an OS hiccup: keep the batch going, try again next run
-        text = str(exc).strip().replace("\n", " ")
-        return ("error", f"{path}: measuring failed ({type(exc).__name__}: {text})", True)
-
-
 def longest_first(tasks: list[Task]) -> list[Task]:
     """The order files go to the workers: the largest first (size stands in for measuring
     time), ties in batch order. A long file handed out last would be measured alone while
@@ -113,70 +96,7 @@ def longest_first(tasks: list[Task]) -> list[Task]:
     return sorted(tasks, key=lambda task: -task.size_bytes)
 
 
-def probe_duration_s(path: str) -> float | None:
-    """Duration from the header (cheap), or None when unknown or unreadable."""
-    try:
-        import soundfile as sf
-
-        info = sf.info(path)
-        frames, rate = int(info.frames), int(info.samplerate)
-        if rate <= 0 or frames < 0 or frames >= 2**62:
-            return None
-        return frames / rate
-    except Exception:
-        return None
-
-
 # -- local process pool ------------------------------------------------------------
-
-
-def _limit_memory(memory_mb: int | None) -> None:
-    if not memory_mb:
-        return
-    try:
-        import resource
-
-        limit = int(memory_mb) * MIB
-        soft, hard = resource.getrlimit(resource.RLIMIT_AS)
-        if hard != resource.RLIM_INFINITY:
-            limit = min(limit, hard)
-        resource.setrlimit(resource.RLIMIT_AS, (limit, hard))
-    except (ImportError, ValueError, OSError):  # pragma: no cover - non-POSIX
-        pass
-
-
-def _die_with_parent() -> None:
-    if sys.platform.startswith("linux"):
-        try:
-            import ctypes
-
-            ctypes.CDLL(None).prctl(1, signal.SIGKILL)  # PR_SET_PDEATHSIG
-        except Exception:  # pragma: no cover
-            pass
-
-
-def _worker_main(conn, memory_mb, measure_fn, slot=None) -> None:
-    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides how to stop
-    _die_with_parent()
-    claim_process()  # one thread per library pool: parallelism is the pool's workers
-    keep_freed_memory()  # no page faults for every file's buffers again
-    _limit_memory(memory_mb)
-    report = live.reporter(slot) if slot is not None and live.takes_on_frames(measure_fn) else None
-    while True:
-        try:
-            msg = conn.recv()
-        except (EOFError, OSError):
-            return
-        if msg is None:
-            return
-        index, path, options = msg
-        if slot is not None:
-            slot.value = 0.0  # before "started": the parent reads it only after that
-        try:
-            conn.send(("started", index, probe_duration_s(path)))
-            conn.send(("done", index, measure_task(path, options, measure_fn, report)))
-        except (BrokenPipeError, OSError):
-            return
 
 
 class _Worker:
@@ -185,13 +105,14 @@ class _Worker:
         self.conn = parent_conn
         self.slot = live.new_slot(ctx)  # seconds decoded of its file (checker.run.live)
         self.process = ctx.Process(
-            target=_worker_main, args=(child_conn, memory_mb, measure_fn, self.slot), daemon=True
+            target=worker_main, args=(child_conn, memory_mb, measure_fn, self.slot), daemon=True
         )
         self.process.start()
         child_conn.close()
         self.task: Task | None = None
         self.deadline = math.inf
         self.started = 0.0
+        self.ready = False  # it said so: it got through its start (the main module's import)
 
     def assign(self, task: Task, options: MeasureOptions, provisional_limit_s: float) -> bool:
         """Hand over one file; False when the worker is gone (its pipe is closed)."""
@@ -262,17 +183,6 @@ def start_worker_server() -> None:
         forkserver.ensure_running()
 
 
-def _exit_text(code: int | None) -> str:
-    if code is None:
-        return "unknown exit"
-    if code < 0:
-        try:
-            return f"killed by {signal.Signals(-code).name}"
-        except ValueError:
-            return f"killed by signal {-code}"
-    return f"exit code {code}"
-
-
 class LocalPool:
     """A pool of ``jobs`` worker processes with per-file time limits and crash recovery."""
 
@@ -309,7 +219,10 @@ class LocalPool:
             ledger.plan(task.index, task.size_bytes)
         ctx = _context()
         workers: list[_Worker] = []
-        broken = 0  # workers found dead before they got a file
+        # Workers that exited before they took a file (their pipe closed when given one, or
+        # they exited before saying "ready": checker/run/workerstart.py). One more of them than
+        # there are workers, and the remaining files become error rows at once.
+        broken = 0
         try:
             while pending or any(w.task for w in workers):
                 for w in [w for w in workers if w.task is None and not w.process.is_alive()]:
@@ -326,16 +239,9 @@ class LocalPool:
                         w.kill()  # its pipe broke: try a new worker, but not forever
                         workers.remove(w)
                         broken += 1
-                        if broken <= 3 * self.jobs:
-                            pending.appendleft(task)
-                        else:
-                            code = _exit_text(w.process.exitcode)
-                            if ledger is not None:
-                                ledger.finished(task.index, 0.0, whole=False)
-                            yield (
-                                task,
-                                ("error", f"{task.path}: no worker would start ({code})", True),
-                            )
+                        pending.appendleft(task)
+                        if broken > self.jobs:
+                            yield from self._give_up(pending, w.process.exitcode, broken)
                 busy = [w for w in workers if w.task is not None]
                 if not busy:
                     continue
@@ -349,6 +255,14 @@ class LocalPool:
                     if result is None:
                         continue
                     task, outcome, replace = result
+                    if outcome is None:  # it exited while starting: not this file's doing
+                        w.kill()
+                        workers.remove(w)
+                        broken += 1
+                        pending.appendleft(task)
+                        if broken > self.jobs:
+                            finished.extend(self._give_up(pending, w.process.exitcode, broken))
+                        continue
                     if ledger is not None:
                         ledger.finished(task.index, *live.outcome_seconds(outcome, w.slot.value))
                     if replace:
@@ -368,6 +282,17 @@ class LocalPool:
     def _limit(self, task: Task) -> float:
         return time_limit_s(task, None, self.timeout_s)
 
+    def _give_up(self, pending: deque, code: int | None, times: int) -> list[tuple[Task, Outcome]]:
+        """Every file still waiting, as an error row: workers keep exiting while starting
+        (checker/run/workerstart.py says why and what to do). Empties ``pending``."""
+        rows = []
+        while pending:
+            task = pending.popleft()
+            if self.ledger is not None:
+                self.ledger.finished(task.index, 0.0, whole=False)
+            rows.append((task, ("error", start_failure(task.path, exit_text(code), times), True)))
+        return rows
+
     def _service(self, w: _Worker, ready: set):
         """Handle what happened to one busy worker; (task, outcome, replace) or None."""
         task = w.task
@@ -376,6 +301,9 @@ class LocalPool:
             try:
                 while w.conn.poll():
                     kind, index, payload = w.conn.recv()
+                    if kind == "ready":
+                        w.ready = True
+                        continue
                     if index != task.index:  # pragma: no cover - protocol guard
                         continue
                     if kind == "started":  # the file's own clock starts now
@@ -391,13 +319,16 @@ class LocalPool:
             if not w.process.is_alive() or w.process.sentinel in ready:
                 w.process.join(timeout=5)
                 if not w.process.is_alive():
+                    if not w.ready:  # it never got through its start: no file's fault
+                        w.task = None
+                        return task, None, True
                     code = w.process.exitcode
                     return (
                         task,
                         (
                             "error",
                             f"{task.path}: worker process died while measuring "
-                            f"({_exit_text(code)}; e.g. out of memory or a decoder crash)",
+                            f"({exit_text(code)}; e.g. out of memory or a decoder crash)",
                             True,
                         ),
                         True,

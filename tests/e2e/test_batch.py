@@ -9,8 +9,11 @@ processes can import them.
 
 from __future__ import annotations
 
+import json
 import os
 import signal
+import subprocess
+import sys
 import time
 
 import numpy as np
@@ -243,6 +246,44 @@ def test_crashed_worker_becomes_error_row_and_pool_goes_on(tmp_path):
     assert status == {"a.wav": PASS, "b-crash.wav": ERROR, "c.wav": PASS, "d.wav": FAIL}
     crashed = next(r for r in results if r.status == ERROR)
     assert "worker process died" in crashed.error and "SIGKILL" in crashed.error
+
+
+UNGUARDED_SCRIPT = """\
+import json
+import os
+
+import checker
+
+# No `if __name__ == "__main__":` guard, a common first script: every worker process imports
+# this file again as it starts, and runs the batch below again inside itself.
+out = os.path.join({out!r}, str(os.getpid()))
+run, results = checker.check([{src!r}], "measure-only", out, jobs=1)
+print(json.dumps([[os.path.basename(r.path), r.status, r.error] for r in results]))
+"""
+
+
+@pytest.mark.slow
+def test_unguarded_script_gets_the_reason_not_a_crash_row_and_a_worker_per_file(tmp_path):
+    # Python's multiprocessing imports the main script in each child it starts this way
+    # (its "safe importing of main module" rule); the worker exits before it takes a file.
+    src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b.wav", 1.0), ("c.wav", 1.0)])
+    script = tmp_path / "my_check.py"
+    script.write_text(UNGUARDED_SCRIPT.format(out=str(tmp_path / "out"), src=str(src)))
+    proc = subprocess.run(
+        [sys.executable, str(script)], capture_output=True, text=True, timeout=600, cwd=tmp_path
+    )
+    assert proc.returncode == 0, proc.stderr
+    rows = json.loads(proc.stdout.strip().splitlines()[-1])
+    assert [(name, status) for name, status, _ in rows] == [
+        ("a.wav", ERROR),
+        ("b.wav", ERROR),
+        ("c.wav", ERROR),
+    ]
+    for _, _, error in rows:
+        assert "worker processes exited while starting, before they took a file" in error
+        assert "(exit code 1; 2 times)" in error  # one worker, so it stopped after two
+        assert str(script) in error and 'if __name__ == "__main__":' in error
+        assert "decoder crash" not in error
 
 
 @pytest.mark.slow
