@@ -34,9 +34,10 @@ def exit_text(code: int | None) -> str:
 
 
 def user_script() -> str | None:
-    """The script this process runs as ``__main__``, when worker processes would import it
-    again: a file of the user's, not ``deliverycheck``'s own entry points (``python -m
-    checker``, the ``deliverycheck`` command) and not an interactive session or notebook
+    """The script this process runs as ``__main__``, when worker processes import it again:
+    a file run by its path, or a module run with ``python -m`` (multiprocessing imports it by
+    name), but not a package's ``__main__`` (``python -m pytest``: multiprocessing leaves those
+    alone), not deliverycheck's own entry points and not an interactive session or notebook
     (no file: nothing to import)."""
     main = sys.modules.get("__main__")
     path = getattr(main, "__file__", None)
@@ -44,6 +45,8 @@ def user_script() -> str | None:
         return None
     spec = getattr(main, "__spec__", None)
     name = getattr(spec, "name", None) or ""
+    if name == "__main__" or name.endswith(".__main__"):
+        return None
     if name == "checker" or name.startswith("checker."):
         return None
     if os.path.basename(path) in ("deliverycheck", "deliverycheck.exe", "deliverycheck-script.py"):

@@ -26,6 +26,8 @@ def _main(monkeypatch, file: str | None, spec_name: str | None = None) -> None:
         ("/home/me/qc/check_spots.py", None, "/home/me/qc/check_spots.py"),  # a user's script
         ("/opt/venv/bin/deliverycheck", None, None),  # the command's entry point
         ("/src/checker/__main__.py", "checker.__main__", None),  # python -m checker
+        ("/venv/lib/pytest/__main__.py", "pytest.__main__", None),  # not imported again
+        ("/home/me/qc/spots.py", "spots", "/home/me/qc/spots.py"),  # python -m spots: it is
         (None, None, None),  # interactive session or notebook: nothing is imported again
     ],
 )
