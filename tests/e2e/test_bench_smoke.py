@@ -38,6 +38,10 @@ def test_bench_runs_on_tiny_files(tmp_path):
     assert "throughput ratio jobs2/jobs1" in out and "under load / unloaded" in out
     assert "per-file overhead" in out and "measure() in one process" in out
     assert "measure(), 10 ms files" in out and "check --jobs 1, 10 ms files" in out
+    # the goal judged on both measures, and the one-second files with --jobs 2
+    assert "goal, check --jobs 1 at most 5 ms per one-second file" in out
+    assert "ms in a batch, met against the same 5 ms" in out or "not met against the same" in out
+    assert "one-second files with --jobs 2 (2 workers)" in out
     # the per-meter split of the short files' extra time, with every meter and the total
     assert "where it goes" in out
     for name in ("TruePeakMeter", "BandwidthMeter", "BlockWalk", "other", "total"):
