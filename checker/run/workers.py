@@ -15,8 +15,8 @@ MemoryError row instead of swapping the machine.
 
 A worker that exits while starting, before it says "ready" (it imported a user's
 unguarded script again, or the engine cannot load), is no file's fault: its file goes
-back to the queue, and once more workers have failed so than the pool holds, every file
-left becomes an error row that says why (checker/run/workerstart.py) instead of a
+back to the queue. Once more workers have failed that way than the pool holds, every file
+left becomes an error row that says why (checker/run/workerstart.py), instead of a
 "died while measuring" row and a new worker for each.
 
 Workers never write anything; the parent alone writes the store. What runs inside a
