@@ -202,6 +202,7 @@ class LocalPool:
         self.measure_fn = measure_fn or measure
         self.timeout_s = timeout_s
         self.workers_started = 0
+        self.start_failures = 0  # workers that exited before they took a file (this run)
         self.ledger = None
 
     def run(
@@ -219,10 +220,7 @@ class LocalPool:
             ledger.plan(task.index, task.size_bytes)
         ctx = _context()
         workers: list[_Worker] = []
-        # Workers that exited before they took a file (their pipe closed when given one, or
-        # they exited before saying "ready": checker/run/workerstart.py). One more of them than
-        # there are workers, and the remaining files become error rows at once.
-        broken = 0
+        self.start_failures = 0
         try:
             while pending or any(w.task for w in workers):
                 for w in [w for w in workers if w.task is None and not w.process.is_alive()]:
@@ -236,12 +234,8 @@ class LocalPool:
                         task = pending.popleft()
                         if w.assign(task, options, self._limit(task)):
                             continue
-                        w.kill()  # its pipe broke: try a new worker, but not forever
-                        workers.remove(w)
-                        broken += 1
-                        pending.appendleft(task)
-                        if broken > self.jobs:
-                            yield from self._give_up(pending, w.process.exitcode, broken)
+                        # its pipe broke: try a new worker, but not forever
+                        yield from self._lost_at_start(w, workers, task, pending)
                 busy = [w for w in workers if w.task is not None]
                 if not busy:
                     continue
@@ -256,12 +250,7 @@ class LocalPool:
                         continue
                     task, outcome, replace = result
                     if outcome is None:  # it exited while starting: not this file's doing
-                        w.kill()
-                        workers.remove(w)
-                        broken += 1
-                        pending.appendleft(task)
-                        if broken > self.jobs:
-                            finished.extend(self._give_up(pending, w.process.exitcode, broken))
+                        finished.extend(self._lost_at_start(w, workers, task, pending))
                         continue
                     if ledger is not None:
                         ledger.finished(task.index, *live.outcome_seconds(outcome, w.slot.value))
@@ -282,15 +271,28 @@ class LocalPool:
     def _limit(self, task: Task) -> float:
         return time_limit_s(task, None, self.timeout_s)
 
-    def _give_up(self, pending: deque, code: int | None, times: int) -> list[tuple[Task, Outcome]]:
-        """Every file still waiting, as an error row: workers keep exiting while starting
-        (checker/run/workerstart.py says why and what to do). Empties ``pending``."""
+    def _lost_at_start(
+        self, w: _Worker, workers: list[_Worker], task: Task, pending: deque
+    ) -> list[tuple[Task, Outcome]]:
+        """A worker exited before it took ``task`` (its pipe closed when given the file, or it
+        exited before saying "ready"): drop it and put the file back. Once this has happened
+        more times than the pool has workers, every file still waiting becomes an error row
+        at once (checker/run/workerstart.py says why and what to do), and none is left to
+        start another worker for."""
+        w.kill()
+        workers.remove(w)
+        self.start_failures += 1
+        pending.appendleft(task)
+        if self.start_failures <= self.jobs:
+            return []
+        code = exit_text(w.process.exitcode)
         rows = []
         while pending:
             task = pending.popleft()
             if self.ledger is not None:
                 self.ledger.finished(task.index, 0.0, whole=False)
-            rows.append((task, ("error", start_failure(task.path, exit_text(code), times), True)))
+            text = start_failure(task.path, code, self.start_failures)
+            rows.append((task, ("error", text, True)))
         return rows
 
     def _service(self, w: _Worker, ready: set):
