@@ -15,8 +15,8 @@ MemoryError row instead of swapping the machine.
 
 A worker that exits while starting, before it says "ready" (it imported a user's
 unguarded script again, or the engine cannot load), is no file's fault: its file goes
-back to the queue. Once more workers have failed that way than the pool holds, every file
-left becomes an error row that says why (checker/run/workerstart.py), instead of a
+back to the queue. Once more workers in a row have failed that way than the pool holds,
+every file left becomes an error row that says why (checker/run/workerstart.py), instead of a
 "died while measuring" row and a new worker for each.
 
 Workers never write anything; the parent alone writes the store. What runs inside a
@@ -202,7 +202,7 @@ class LocalPool:
         self.measure_fn = measure_fn or measure
         self.timeout_s = timeout_s
         self.workers_started = 0
-        self.start_failures = 0  # workers that exited before they took a file (this run)
+        self.start_failures = 0  # workers that exited before they took a file, in a row
         self.ledger = None
 
     def run(
@@ -276,9 +276,9 @@ class LocalPool:
     ) -> list[tuple[Task, Outcome]]:
         """A worker exited before it took ``task`` (its pipe closed when given the file, or it
         exited before saying "ready"): drop it and put the file back. Once this has happened
-        more times than the pool has workers, every file still waiting becomes an error row
-        at once (checker/run/workerstart.py says why and what to do), and none is left to
-        start another worker for."""
+        more times in a row (no worker said "ready" in between) than the pool has workers,
+        every file still waiting becomes an error row at once (checker/run/workerstart.py
+        says why and what to do), and none is left to start another worker for."""
         w.kill()
         workers.remove(w)
         self.start_failures += 1
@@ -305,6 +305,7 @@ class LocalPool:
                     kind, index, payload = w.conn.recv()
                     if kind == "ready":
                         w.ready = True
+                        self.start_failures = 0  # workers can start: earlier exits were chance
                         continue
                     if index != task.index:  # pragma: no cover - protocol guard
                         continue

@@ -286,6 +286,62 @@ def test_unguarded_script_gets_the_reason_not_a_crash_row_and_a_worker_per_file(
         assert "decoder crash" not in error
 
 
+STARTS_SCRIPT = """\
+import json
+import os
+import signal
+
+from checker.analysis.onepass import measure
+
+STATE = {state!r}
+if __name__ == "__mp_main__":  # a worker starting: the first and the third to start exit
+    started = len(os.listdir(STATE))
+    open(os.path.join(STATE, str(started)), "w").close()
+    if started in (0, 2):
+        raise SystemExit(1)
+
+
+def crash_on_name(path, options):
+    if "crash" in os.path.basename(path):
+        os.kill(os.getpid(), signal.SIGKILL)
+    return measure(path, options)
+
+
+if __name__ == "__main__":
+    import checker
+
+    run, results = checker.check(
+        [{src!r}], "measure-only", {out!r}, jobs=1, measure_fn=crash_on_name
+    )
+    print(json.dumps([[os.path.basename(r.path), r.status, r.error] for r in results]))
+"""
+
+
+@pytest.mark.slow
+def test_workers_that_exit_while_starting_now_and_then_do_not_stop_the_batch(tmp_path):
+    # One worker: the first start fails, the second measures a.wav and is killed on
+    # b-crash.wav, the third start fails, the fourth measures c.wav. Two start failures for
+    # one worker's pool, but not in a row (a worker started in between): no file given up.
+    src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b-crash.wav", 1.0), ("c.wav", 1.0)])
+    state = tmp_path / "starts"
+    state.mkdir()
+    script = tmp_path / "starts.py"
+    script.write_text(
+        STARTS_SCRIPT.format(state=str(state), src=str(src), out=str(tmp_path / "out"))
+    )
+    proc = subprocess.run(
+        [sys.executable, str(script)], capture_output=True, text=True, timeout=600, cwd=tmp_path
+    )
+    assert proc.returncode == 0, proc.stderr
+    rows = {
+        name: (status, error) for name, status, error in json.loads(proc.stdout.splitlines()[-1])
+    }
+    assert rows["a.wav"][0] != ERROR and rows["c.wav"][0] != ERROR, rows
+    assert rows["b-crash.wav"][0] == ERROR
+    assert "worker process died while measuring" in rows["b-crash.wav"][1]
+    assert sorted(os.listdir(state)) == ["0", "1", "2", "3"]  # four workers started
+
+
 @pytest.mark.slow
 def test_memory_ceiling_becomes_error_row(tmp_path):
     src = make_batch(tmp_path / "in", [("a.wav", 1.0), ("b-greedy.wav", 1.0), ("c.wav", 1.0)])
