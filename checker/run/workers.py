@@ -296,7 +296,9 @@ class LocalPool:
         return rows
 
     def _service(self, w: _Worker, ready: set):
-        """Handle what happened to one busy worker; (task, outcome, replace) or None."""
+        """Handle what happened to one busy worker; (task, outcome, replace) or None.
+        Outcome None: the worker exited before saying "ready" (run() hands it, file and all,
+        to _lost_at_start, which drops the worker itself)."""
         task = w.task
         assert task is not None
         if w.conn in ready or w.process.sentinel in ready:
@@ -324,7 +326,7 @@ class LocalPool:
                 if not w.process.is_alive():
                     if not w.ready:  # it never got through its start: no file's fault
                         w.task = None
-                        return task, None, True
+                        return task, None, False
                     code = w.process.exitcode
                     return (
                         task,

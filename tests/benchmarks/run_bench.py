@@ -423,7 +423,7 @@ def bench_overhead(shorts: list[Path], joined: Path, reps: int, out: Path) -> No
         f" {ok[per_file['tiny files'] <= 5.0]} against the same 5 ms. What the one-second files add"
         " beyond it is their analysis (split below); README, Speed, says why it stays."
     )
-    one, two = medians(runs["files"]), medians(runs["files jobs 2"])
+    two = medians(runs["files jobs 2"])
     ratio = statistics.median(
         a.wall_s / b.wall_s for a, b in zip(runs["files"], runs["files jobs 2"], strict=True)
     )
